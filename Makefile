@@ -1,0 +1,31 @@
+# The two README commands: `make demo` and `make test`. Each sets itself up from nothing.
+PYTHON ?= python3
+VENV ?= .venv
+PY := $(VENV)/bin/python
+STAMP := $(VENV)/.installed-stamp
+# Hermetic runs: no plugin but ours (and xdist where asked) may change a result.
+HERMETIC := PYTEST_DISABLE_PLUGIN_AUTOLOAD=1
+
+.PHONY: demo test lint bench study clean
+
+$(STAMP): pyproject.toml
+	$(PYTHON) -m venv $(VENV)
+	$(PY) -m pip install --quiet --upgrade pip
+	$(PY) -m pip install --quiet -e '.[test,plots]'
+	touch $(STAMP)
+
+test: $(STAMP)
+	$(HERMETIC) $(PY) -m pytest -p meanband -p xdist -n 2 -q tests
+
+lint: $(STAMP)
+	$(VENV)/bin/ruff check plugin tests benchmarks sample_suites
+	$(VENV)/bin/mypy
+
+demo: $(STAMP)
+	$(HERMETIC) $(PY) -m pytest -p meanband -p no:cacheprovider sample_suites
+
+bench: $(STAMP)
+	for script in benchmarks/*.py; do $(PY) $$script || exit 1; done
+
+clean:
+	rm -rf $(VENV) .pytest_cache .hypothesis build *.egg-info plugin/*.egg-info

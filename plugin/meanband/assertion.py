@@ -1,0 +1,36 @@
+"""The stand-alone check: assert that the interval of the mean lies inside a band."""
+
+from __future__ import annotations
+
+from collections.abc import Iterable
+
+import numpy as np
+
+from meanband.bands import Decision, Edge, decide, make_band
+from meanband.errors import BandViolation
+from meanband.explain import assumption_notes, describe
+
+__all__ = ["assert_mean_within"]
+
+
+def assert_mean_within(
+    values: Iterable[float] | np.ndarray,
+    low: Edge = None,
+    high: Edge = None,
+    *,
+    center: Edge = None,
+    tolerance: Edge = None,
+    confidence: float = 0.95,
+    method: str = "t",
+    unit: str | None = None,
+) -> Decision:
+    """Return the :class:`Decision` when the interval of the mean lies inside the band.
+
+    Raises :class:`BandViolation` (an ``AssertionError``) on FAIL or UNDECIDED, with a message
+    that gives n, mean, interval, band, verdict and diagnostics.
+    """
+    band = make_band(low, high, center=center, tolerance=tolerance, unit=unit)
+    decision = decide(values, band, confidence=confidence, method=method)
+    if not decision.passed:
+        raise BandViolation(describe(decision, notes=assumption_notes(decision.diagnostics)), decision)
+    return decision

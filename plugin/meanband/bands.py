@@ -1,0 +1,188 @@
+"""Bands, verdicts and the decision of a check: does the interval of the mean lie inside?"""
+
+from __future__ import annotations
+
+import enum
+import math
+from collections.abc import Iterable
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from meanband.diagnostics import Diagnostics, diagnose
+from meanband.errors import TrialError
+from meanband.interval import Interval, mean_interval
+from meanband.planning import trials_needed
+from meanband.sample import as_sample, check_confidence
+from meanband.units import SECONDS, parse_duration
+
+__all__ = ["Band", "Decision", "Verdict", "decide", "make_band"]
+
+Edge = float | int | str | None
+
+
+class Verdict(str, enum.Enum):
+    """Outcome of a check. FAIL and UNDECIDED both fail the test, with different messages."""
+
+    PASS = "PASS"
+    FAIL = "FAIL"
+    UNDECIDED = "UNDECIDED"
+
+    def __str__(self) -> str:
+        return self.value
+
+
+@dataclass(frozen=True, slots=True)
+class Band:
+    """The range the mean must lie in; an open edge is -inf or +inf."""
+
+    low: float
+    high: float
+    unit: str | None = None
+
+    @property
+    def side(self) -> str:
+        """Which interval the check uses: ``two-sided``, ``upper`` (a budget) or ``lower``."""
+        if math.isfinite(self.low) and math.isfinite(self.high):
+            return "two-sided"
+        return "upper" if math.isfinite(self.high) else "lower"
+
+    def to_dict(self) -> dict[str, Any]:
+        """Builtin types only."""
+        return {"low": float(self.low), "high": float(self.high), "unit": self.unit}
+
+
+def make_band(
+    low: Edge = None,
+    high: Edge = None,
+    *,
+    center: Edge = None,
+    tolerance: Edge = None,
+    unit: str | None = None,
+) -> Band:
+    """Build a band from ``low``/``high`` or from ``center`` +/- ``tolerance``.
+
+    Edges may be duration strings (``"3ms"``) when the trials are timings (``unit="s"``).
+    """
+    if center is not None or tolerance is not None:
+        if low is not None or high is not None:
+            raise TrialError(
+                "give the band either as low=/high= or as center=/tolerance=, not both"
+            )
+        if center is None or tolerance is None:
+            raise TrialError("center= and tolerance= go together; give both")
+        middle = _edge_value(center, unit, "center")
+        spread = _edge_value(tolerance, unit, "tolerance")
+        if spread < 0:
+            raise TrialError(f"tolerance must be >= 0, got {tolerance!r}")
+        low_value, high_value = middle - spread, middle + spread
+    else:
+        if low is None and high is None:
+            raise TrialError("a band needs at least one edge: give low=, high= or center=/tolerance=")
+        low_value = -math.inf if low is None else _edge_value(low, unit, "low")
+        high_value = math.inf if high is None else _edge_value(high, unit, "high")
+    if low_value > high_value:
+        raise TrialError(
+            f"the band's low edge {low!r} lies above its high edge {high!r}; swap them"
+        )
+    return Band(low_value, high_value, unit)
+
+
+def _edge_value(edge: Edge, unit: str | None, name: str) -> float:
+    if isinstance(edge, str):
+        if unit != SECONDS:
+            raise TrialError(
+                f"{name}={edge!r}: a band edge with a unit string needs timing trials "
+                f"(these trials are in {unit or 'no unit'}); give a plain number"
+            )
+        return parse_duration(edge)
+    try:
+        value = float(edge)  # type: ignore[arg-type]
+    except (TypeError, ValueError) as exc:
+        raise TrialError(f"{name}= must be a number, got {edge!r}") from exc
+    if math.isnan(value) or (name in ("center", "tolerance") and math.isinf(value)):
+        raise TrialError(f"{name}= must be a finite number, got {edge!r}")
+    return value
+
+
+@dataclass(frozen=True, slots=True)
+class Decision:
+    """The verdict of one check and everything behind it."""
+
+    verdict: Verdict
+    band: Band
+    interval: Interval
+    counter: Interval | None
+    diagnostics: Diagnostics
+    suggested_n: int | None
+    unit: str | None = None
+
+    @property
+    def passed(self) -> bool:
+        """True for PASS only."""
+        return self.verdict is Verdict.PASS
+
+    def to_dict(self) -> dict[str, Any]:
+        """Builtin types only, safe for JSON and for pytest-xdist's report transport."""
+        return {
+            "verdict": self.verdict.value,
+            "band": self.band.to_dict(),
+            "interval": self.interval.to_dict(),
+            "counter": None if self.counter is None else self.counter.to_dict(),
+            "diagnostics": self.diagnostics.to_dict(),
+            "suggested_n": self.suggested_n,
+            "unit": self.unit,
+        }
+
+
+def decide(
+    values: Iterable[float] | np.ndarray,
+    band: Band,
+    *,
+    confidence: float = 0.95,
+    method: str = "t",
+    power: float = 0.9,
+    alpha: float = 0.05,
+) -> Decision:
+    """Decide a check at ``confidence``.
+
+    Two-sided band: the two-sided interval must lie inside (PASS), wholly outside on an edge
+    (FAIL) or straddles an edge (UNDECIDED). A budget (one open edge): the one-sided bound at
+    ``confidence`` must be inside for PASS; the opposite one-sided bound beyond the edge is FAIL.
+    This is guarded acceptance with the guard band equal to the expanded uncertainty
+    (ILAC-G8:2019; JCGM 106:2012, clause 8).
+    """
+    level = check_confidence(confidence)
+    x = as_sample(values, minimum=2)
+    side = band.side
+    interval = mean_interval(x, level, side, method)
+    counter: Interval | None = None
+    if side == "two-sided":
+        if band.low <= interval.low and interval.high <= band.high:
+            verdict = Verdict.PASS
+        elif interval.high < band.low or interval.low > band.high:
+            verdict = Verdict.FAIL
+        else:
+            verdict = Verdict.UNDECIDED
+    else:
+        counter = mean_interval(x, level, "lower" if side == "upper" else "upper", method)
+        if side == "upper":
+            inside, beyond = interval.high <= band.high, counter.low > band.high
+        else:
+            inside, beyond = interval.low >= band.low, counter.high < band.low
+        verdict = Verdict.PASS if inside else Verdict.FAIL if beyond else Verdict.UNDECIDED
+    diagnostics = diagnose(x, alpha=alpha)
+    suggested = None
+    if verdict is not Verdict.FAIL:
+        suggested = trials_needed(
+            interval.sd, margin=edge_margin(interval.mean, band), confidence=level,
+            side=side, power=power,
+        )
+    return Decision(verdict, band, interval, counter, diagnostics, suggested, band.unit)
+
+
+def edge_margin(mean: float, band: Band) -> float:
+    """Distance from the mean to the band edge that decides the check (the nearest one)."""
+    distances = [abs(mean - edge) for edge in (band.low, band.high) if math.isfinite(edge)]
+    return min(distances)

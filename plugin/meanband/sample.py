@@ -1,0 +1,73 @@
+"""Turn user input into a clean float64 sample, and its location and scale, stably."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable
+
+import numpy as np
+
+from meanband.errors import TrialError
+
+__all__ = ["as_sample", "check_confidence", "location_scale"]
+
+_MAX_LISTED_POSITIONS = 8
+
+
+def as_sample(values: Iterable[float] | np.ndarray, *, minimum: int = 2) -> np.ndarray:
+    """Return ``values`` as a 1-D float64 array, refusing NaN, infinities and too few values."""
+    try:
+        x = np.asarray(values, dtype=np.float64)
+    except (TypeError, ValueError) as exc:
+        raise TrialError(f"trials must be numbers; could not convert them: {exc}") from exc
+    if x.ndim == 0:
+        x = x.reshape(1)
+    if x.ndim != 1:
+        raise TrialError(f"trials must be a flat sequence of numbers, got an array of shape {x.shape}")
+    bad = ~np.isfinite(x)
+    if bad.any():
+        positions = np.flatnonzero(bad)
+        shown = ", ".join(str(int(p)) for p in positions[:_MAX_LISTED_POSITIONS])
+        more = f" and {positions.size - _MAX_LISTED_POSITIONS} more" if positions.size > 8 else ""
+        raise TrialError(
+            f"{positions.size} of {x.size} trials are NaN or infinite (0-based positions {shown}{more}); "
+            "drop or re-measure them before computing an interval"
+        )
+    if x.size < minimum:
+        raise TrialError(
+            f"an interval of the mean needs at least {minimum} trials, got {x.size}; "
+            "collect more trials"
+        )
+    return x
+
+
+def check_confidence(confidence: float) -> float:
+    """Return ``confidence`` as a float if it lies strictly between 0 and 1."""
+    try:
+        level = float(confidence)
+    except (TypeError, ValueError) as exc:
+        raise TrialError(f"confidence must be a number between 0 and 1, got {confidence!r}") from exc
+    if not (0.0 < level < 1.0) or math.isnan(level):
+        hint = f"; did you mean {level / 100:g}?" if 1.0 < level < 100.0 else ""
+        raise TrialError(f"confidence must lie strictly between 0 and 1, got {confidence!r}{hint}")
+    return level
+
+
+def location_scale(x: np.ndarray) -> tuple[float, float]:
+    """Mean and sample standard deviation (n - 1 divisor), accurate under a large offset.
+
+    The data are shifted by their first value before summing: values close to one another
+    subtract exactly (Sterbenz's lemma), so the deviations that remain are small and the
+    two-pass sum of squares keeps its digits (NIST StRD NumAcc3/NumAcc4 exist to catch this).
+    """
+    shift = x[0]
+    d = x - shift
+    mean_d = float(np.mean(d))
+    d = d - mean_d
+    # Second-pass correction (Chan, Golub & LeVeque 1983): removes the rounding left in mean_d.
+    correction = float(np.mean(d))
+    mean_d += correction
+    d -= correction
+    n = x.size
+    sd = math.sqrt(float(np.dot(d, d)) / (n - 1)) if n > 1 else math.nan
+    return float(shift + mean_d), sd

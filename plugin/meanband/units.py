@@ -1,0 +1,75 @@
+"""Duration strings in, readable numbers with units out."""
+
+from __future__ import annotations
+
+import math
+import re
+
+from meanband.errors import TrialError
+
+__all__ = ["SECONDS", "format_number", "format_value", "parse_duration"]
+
+#: The unit label of timing trials; values are seconds per call.
+SECONDS = "s"
+
+_DURATION_SCALE = {
+    "ns": 1e-9,
+    "us": 1e-6,
+    "µs": 1e-6,
+    "μs": 1e-6,  # Greek mu as well as the micro sign: both are typed in the wild
+    "ms": 1e-3,
+    "s": 1.0,
+}
+_DURATION = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([a-zA-Zµμ]+)\s*$")
+
+
+def parse_duration(text: str) -> float:
+    """Seconds in a duration string such as ``"800ns"``, ``"250us"``, ``"250µs"``, ``"3ms"``."""
+    match = _DURATION.match(text)
+    if not match or match.group(2) not in _DURATION_SCALE:
+        raise TrialError(
+            f"cannot read {text!r} as a duration; write a number and one of the units "
+            "ns, us (or µs), ms, s, e.g. '250us' or '3ms'"
+        )
+    return float(match.group(1)) * _DURATION_SCALE[match.group(2)]
+
+
+def format_number(value: float, digits: int = 4) -> str:
+    """A number with ``digits`` significant digits, without an exponent where one is not needed."""
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return "nan"
+    if math.isinf(value):
+        return "-inf" if value < 0 else "inf"
+    if value == 0:
+        return "0"
+    magnitude = math.floor(math.log10(abs(value)))
+    if -4 <= magnitude < 9:
+        decimals = max(digits - 1 - magnitude, 0)
+        return f"{value:.{decimals}f}"
+    return f"{value:.{digits - 1}e}"
+
+
+def format_value(value: float, unit: str | None, digits: int = 4, *, scale: float | None = None) -> str:
+    """``value`` with its unit; seconds are shown in ns, µs, ms or s as fits.
+
+    Pass ``scale`` (seconds per shown unit, from :func:`time_scale`) so that the numbers of one
+    row share a unit.
+    """
+    if unit == SECONDS:
+        factor = scale if scale is not None else time_scale(value)
+        label = _SCALE_LABEL[factor]
+        return f"{format_number(value / factor, digits)} {label}"
+    text = format_number(value, digits)
+    return f"{text} {unit}" if unit else text
+
+
+_SCALE_LABEL = {1e-9: "ns", 1e-6: "µs", 1e-3: "ms", 1.0: "s"}
+
+
+def time_scale(value: float) -> float:
+    """Seconds per unit of the largest of ns, µs, ms, s that shows ``value`` as at least 1."""
+    magnitude = abs(value) if math.isfinite(value) else 0.0
+    for factor in (1.0, 1e-3, 1e-6):
+        if magnitude >= factor:
+            return factor
+    return 1e-9
