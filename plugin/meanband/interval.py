@@ -114,3 +114,7 @@ def mean_interval(
 def _check_side(side: str) -> None:
     if side not in SIDES:
         raise TrialError(f"unknown side {side!r}; choose one of {', '.join(SIDES)}")
+
+
+# The other methods register themselves in METHODS; imported last because they use this module.
+from meanband import methods as _methods  # noqa: E402, F401
