@@ -96,6 +96,7 @@ class Diagnostics:
     bimodality: float = math.nan
     log_skewness: float = math.nan
     log_normality_pvalue: float = math.nan
+    log_bimodality: float = math.nan
 
     def to_dict(self) -> dict[str, Any]:
         """Builtin types only, safe for JSON and for pytest-xdist's report transport."""
@@ -147,13 +148,16 @@ def diagnose(values: Iterable[float] | np.ndarray, *, alpha: float = 0.05) -> Di
     else:
         lag1, limit, significant, effective_n = math.nan, math.nan, False, float(n)
     kurtosis = _excess_kurtosis(x, mean) if n > 3 and not zero_spread else math.nan
-    log_skewness, log_pvalue = math.nan, math.nan
-    if n > 2 and not zero_spread and bool(np.all(x > 0.0)):
+    log_skewness, log_pvalue, log_bimodality = math.nan, math.nan, math.nan
+    if n > 3 and not zero_spread and bool(np.all(x > 0.0)):
         y = np.log(x)
         log_mean, log_sd = location_scale(y)
         if log_sd > 0.0:
             log_skewness = _skewness(y, log_mean, log_sd)
             log_pvalue = _normality(y, False).pvalue
+            log_bimodality = bimodality_coefficient(
+                log_skewness, _excess_kurtosis(y, log_mean), n
+            )
     fences = tukey_fences(x)
     outliers = int(np.count_nonzero((x < fences[0]) | (x > fences[1])))
     return Diagnostics(
@@ -174,6 +178,7 @@ def diagnose(values: Iterable[float] | np.ndarray, *, alpha: float = 0.05) -> Di
         bimodality=bimodality_coefficient(skewness, kurtosis, n),
         log_skewness=log_skewness,
         log_normality_pvalue=log_pvalue,
+        log_bimodality=log_bimodality,
     )
 
 

@@ -3,12 +3,20 @@
 from __future__ import annotations
 
 import math
+from statistics import NormalDist
 
 from meanband.bands import Band, Decision, Verdict
-from meanband.diagnostics import Diagnostics
+from meanband.diagnostics import BIMODAL_THRESHOLD, Diagnostics
 from meanband.units import SECONDS, format_value, time_scale
 
-__all__ = ["assumption_notes", "describe", "format_band", "format_interval"]
+__all__ = [
+    "COCHRAN_FACTOR",
+    "assumption_notes",
+    "describe",
+    "format_band",
+    "format_interval",
+    "trials_for_skewness",
+]
 
 
 def format_interval(low: float, high: float, unit: str | None, scale: float | None = None) -> str:
@@ -31,10 +39,35 @@ def _fmt(value: float, unit: str | None, scale: float | None) -> str:
     return format_value(value, unit, scale=scale)
 
 
+#: Cochran's rule: the normal approximation to the mean holds when n > 25 * G1^2 (Cochran 1977,
+#: Sampling Techniques, 3rd ed., section 2.15).
+COCHRAN_FACTOR = 25.0
+#: Methods that assume roughly normal raw trials (batch means average them first).
+_NORMAL_THEORY = ("t",)
+_LOG_NORMAL_THEORY = ("log-t", "cox")
+
+
+def trials_for_skewness(skewness: float) -> float:
+    """Trials the t interval needs before a skewness G1 stops moving its coverage (Cochran 1977)."""
+    return COCHRAN_FACTOR * skewness * skewness
+
+
 def assumption_notes(
-    diagnostics: Diagnostics, *, min_n: int = 10, normality_alpha: float = 0.05
+    diagnostics: Diagnostics,
+    *,
+    min_n: int = 10,
+    normality_alpha: float = 0.05,
+    method: str = "t",
+    alpha: float = 0.05,
 ) -> list[dict[str, str]]:
-    """Notes on the assumptions behind the interval, each ``{"code": ..., "text": ...}``."""
+    """Notes on the assumptions behind the interval, each ``{"code": ..., "text": ...}``.
+
+    A note that recommends another interval method carries its name under ``"recommend"``.
+    Notes judge risk, not significance: a normality rejection is called harmful only when the
+    skewness is large for this n by Cochran's rule (n > 25 G1^2, Cochran 1977); positive lag-1
+    autocorrelation only when one-sided significant at ``alpha`` (Box & Jenkins 1976 limits);
+    ``method`` is the interval method in use, so no note recommends what is already used.
+    """
     notes: list[dict[str, str]] = []
     d = diagnostics
     if d.n < min_n:
@@ -49,19 +82,123 @@ def assumption_notes(
             "text": "all trials are equal: the interval is the single point [mean, mean]; "
             "check that the measurement resolves the quantity",
         })
-    if d.normality.rejects(normality_alpha):
+        return notes
+    skew_risk = _skew_risk(d, normality_alpha)
+    if method in _NORMAL_THEORY:
+        notes.extend(_normality_notes(d, normality_alpha, skew_risk))
+    elif method in _LOG_NORMAL_THEORY:
+        notes.extend(_log_normality_notes(d, normality_alpha, method))
+    if skew_risk and d.outliers > 0 and method in _NORMAL_THEORY:
+        low, high = d.outlier_fences
         notes.append({
-            "code": "not-normal",
-            "text": f"normality doubtful: {d.normality.method} p = {d.normality.pvalue:.3g} "
-            f"(< {normality_alpha:g}); the t interval assumes roughly normal trials",
+            "code": "outliers",
+            "text": f"{d.outliers} of {d.n} trials lie outside Tukey's fences "
+            f"[{low:.4g}, {high:.4g}] (1.5 IQR beyond the quartiles); they are kept, and they "
+            "make the skewness that puts the t interval at risk",
         })
-    if d.lag1_significant:
+    if _bimodal(d, normality_alpha):
+        text = (f"trials look like two groups (bimodality coefficient {d.bimodality:.2f} > 5/9): "
+                "the mean mixes two regimes in this run's proportions, and the interval holds "
+                "only while that proportion is steady")
+        note = {"code": "bimodal", "text": text}
+        if skew_risk and method in _NORMAL_THEORY:
+            note["text"] += "; method='bootstrap' does not assume one normal group"
+            note["recommend"] = "bootstrap"
+        notes.append(note)
+    notes.extend(_independence_notes(d, alpha, method))
+    drift = d.drift
+    if drift is not None and drift.rejects(alpha):
         notes.append({
-            "code": "autocorrelated",
-            "text": f"trials autocorrelated: lag-1 r = {d.lag1:.3f}, effective n about "
-            f"{d.effective_n:.0f} of {d.n}; the interval is likely too narrow",
+            "code": "drift",
+            "text": f"trials drift: the level moved by about {drift.change:.4g} from first to "
+            f"last trial (Mann-Kendall p = {drift.pvalue:.3g}); the mean is not steady, so the "
+            "interval describes this run only: warm up longer or find the cause",
         })
     return notes
+
+
+def _skew_risk(d: Diagnostics, alpha: float) -> bool:
+    """A real departure (the test rejects) whose skewness is too large for this n."""
+    if not d.normality.rejects(alpha) or math.isnan(d.skewness):
+        return False
+    return d.n <= trials_for_skewness(d.skewness)
+
+
+def _log_normal_fits(d: Diagnostics, alpha: float) -> bool:
+    """Positive trials whose logarithms look normal enough for a log-normal model."""
+    if math.isnan(d.log_skewness) or math.isnan(d.log_normality_pvalue):
+        return False
+    return d.log_normality_pvalue >= alpha or d.n > trials_for_skewness(d.log_skewness)
+
+
+def _normality_notes(d: Diagnostics, alpha: float, skew_risk: bool) -> list[dict[str, str]]:
+    normality = d.normality
+    if not normality.rejects(alpha):
+        return []
+    needed = trials_for_skewness(d.skewness)
+    test = f"{normality.method} p = {normality.pvalue:.3g}"
+    if not skew_risk:
+        return [{
+            "code": "not-normal-harmless",
+            "text": f"normality rejected ({test}), but the skewness G1 = {d.skewness:.2f} is "
+            f"small for {d.n} trials (Cochran's rule asks n > 25 G1^2 = {needed:.0f}): the "
+            "t interval's coverage is not at risk",
+        }]
+    if _log_normal_fits(d, alpha):
+        recommend = "cox"
+        why = ("the logarithms of the trials look normal, so method='cox' bounds the mean under "
+               "a log-normal model (Zhou & Gao 1997)")
+    else:
+        recommend = "bootstrap"
+        why = ("method='bootstrap' (BCa) bounds the mean without assuming a shape "
+               "(Efron 1987)")
+    return [{
+        "code": "not-normal",
+        "text": f"normality matters here: skewness G1 = {d.skewness:.2f} ({test}) needs about "
+        f"{needed:.0f} trials before the t interval holds its coverage (Cochran's rule "
+        f"n > 25 G1^2), this check has {d.n}; {why}",
+        "recommend": recommend,
+    }]
+
+
+def _log_normality_notes(d: Diagnostics, alpha: float, method: str) -> list[dict[str, str]]:
+    if math.isnan(d.log_normality_pvalue) or _log_normal_fits(d, alpha):
+        return []
+    return [{
+        "code": "log-not-normal",
+        "text": f"method={method!r} assumes log-normal trials, but their logarithms are not "
+        f"normal (p = {d.log_normality_pvalue:.3g}, log skewness {d.log_skewness:.2f}); "
+        "method='bootstrap' (BCa) assumes no shape",
+        "recommend": "bootstrap",
+    }]
+
+
+def _bimodal(d: Diagnostics, alpha: float) -> bool:
+    if d.n < 20 or math.isnan(d.bimodality) or d.bimodality <= BIMODAL_THRESHOLD:
+        return False
+    if not d.normality.rejects(alpha):
+        return False
+    # A strong skew alone raises the coefficient; two groups stay two groups on the log scale.
+    return math.isnan(d.log_bimodality) or d.log_bimodality > BIMODAL_THRESHOLD
+
+
+def _independence_notes(d: Diagnostics, alpha: float, method: str) -> list[dict[str, str]]:
+    if math.isnan(d.lag1) or d.n < 4 or method == "batch-means":
+        return []
+    # One-sided: only positive autocorrelation narrows the interval too much (Box & Jenkins 1976,
+    # white-noise limits -1/n +/- z / sqrt(n)).
+    limit = -1.0 / d.n + NormalDist().inv_cdf(1.0 - alpha) / math.sqrt(d.n)
+    if d.lag1 <= limit:
+        return []
+    inflation = math.sqrt((1.0 + d.lag1) / (1.0 - d.lag1)) if d.lag1 < 1.0 else math.inf
+    return [{
+        "code": "autocorrelated",
+        "text": f"trials autocorrelated: lag-1 r = {d.lag1:.3f}, effective n about "
+        f"{d.effective_n:.0f} of {d.n}; the standard error is about {inflation:.1f}x larger "
+        "than independent trials would give, so the interval is too narrow; "
+        "method='batch-means' allows for it",
+        "recommend": "batch-means",
+    }]
 
 
 def describe(decision: Decision, *, label: str = "", notes: list[dict[str, str]] | None = None) -> str:
