@@ -97,6 +97,7 @@ class Diagnostics:
     log_skewness: float = math.nan
     log_normality_pvalue: float = math.nan
     log_bimodality: float = math.nan
+    log_sd: float = math.nan
 
     def to_dict(self) -> dict[str, Any]:
         """Builtin types only, safe for JSON and for pytest-xdist's report transport."""
@@ -124,7 +125,7 @@ def diagnose(values: Iterable[float] | np.ndarray, *, alpha: float = 0.05) -> Di
       1976, section 2.1.6); the effective sample size n(1 - r)/(1 + r) assumes an AR(1) process
       (Bayley & Hammersley 1946) and is capped at n, so a negative r never inflates it;
     - skewness G1 and excess kurtosis G2: the adjusted coefficients (Joanes & Gill 1998), and
-      the skewness and normality p-value of log(x) when every trial is positive;
+      the sd, skewness, bimodality and normality p-value of log(x) when every trial is positive;
     - outliers: counted outside Tukey's fences Q1 - 1.5 IQR, Q3 + 1.5 IQR (Tukey 1977), never
       removed;
     - drift: ``drift_test`` (Mann-Kendall with Sen's slope);
@@ -148,10 +149,11 @@ def diagnose(values: Iterable[float] | np.ndarray, *, alpha: float = 0.05) -> Di
     else:
         lag1, limit, significant, effective_n = math.nan, math.nan, False, float(n)
     kurtosis = _excess_kurtosis(x, mean) if n > 3 and not zero_spread else math.nan
-    log_skewness, log_pvalue, log_bimodality = math.nan, math.nan, math.nan
+    log_skewness, log_pvalue, log_bimodality, log_spread = math.nan, math.nan, math.nan, math.nan
     if n > 3 and not zero_spread and bool(np.all(x > 0.0)):
         y = np.log(x)
         log_mean, log_sd = location_scale(y)
+        log_spread = log_sd
         if log_sd > 0.0:
             log_skewness = _skewness(y, log_mean, log_sd)
             log_pvalue = _normality(y, False).pvalue
@@ -179,6 +181,7 @@ def diagnose(values: Iterable[float] | np.ndarray, *, alpha: float = 0.05) -> Di
         log_skewness=log_skewness,
         log_normality_pvalue=log_pvalue,
         log_bimodality=log_bimodality,
+        log_sd=log_spread,
     )
 
 
