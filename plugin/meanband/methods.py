@@ -44,6 +44,11 @@ def _bounds(center: float, reach_low: float, reach_high: float, side: str) -> tu
     return low, high
 
 
+def _exp_bounds(low: float, high: float) -> tuple[float, float]:
+    """Back-transform log-scale bounds; an open lower end stays -inf as for every upper bound."""
+    return (-math.inf if low == -math.inf else math.exp(low)), math.exp(high)
+
+
 def _positive(x: np.ndarray, method: str) -> np.ndarray:
     if not bool(np.all(x > 0.0)):
         bad = np.flatnonzero(x <= 0.0)
@@ -69,8 +74,9 @@ def log_t_interval(x: np.ndarray, confidence: float, side: str) -> Interval:
     reach = crit * log_sd / math.sqrt(n)
     low, high = _bounds(log_mean, reach, reach, side)
     _, sd = location_scale(x)
+    low, high = _exp_bounds(low, high)
     return Interval(
-        math.exp(log_mean), math.exp(low), math.exp(high), confidence, side, n, float(n - 1), sd,
+        math.exp(log_mean), low, high, confidence, side, n, float(n - 1), sd,
         sd / math.sqrt(n), "log-t", crit, "geometric mean",
     )
 
@@ -90,8 +96,9 @@ def cox_interval(x: np.ndarray, confidence: float, side: str) -> Interval:
     reach = crit * math.sqrt(s2 / n + s2 * s2 / (2.0 * (n - 1)))
     low, high = _bounds(center, reach, reach, side)
     _, sd = location_scale(x)
+    low, high = _exp_bounds(low, high)
     return Interval(
-        math.exp(center), math.exp(low), math.exp(high), confidence, side, n, float(n - 1), sd,
+        math.exp(center), low, high, confidence, side, n, float(n - 1), sd,
         sd / math.sqrt(n), "cox", crit, "mean",
     )
 
