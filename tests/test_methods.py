@@ -10,8 +10,6 @@ import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
-from scipy import stats
-
 from meanband import TrialError, mean_interval
 from meanband.interval import METHODS
 from meanband.methods import (
@@ -19,6 +17,7 @@ from meanband.methods import (
     batch_count,
     bca_mean_bounds,
 )
+from scipy import stats
 
 SIDES = ("two-sided", "upper", "lower")
 SCIPY_ALTERNATIVE = {"two-sided": "two-sided", "upper": "less", "lower": "greater"}
