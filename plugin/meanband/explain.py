@@ -61,13 +61,15 @@ def assumption_notes(
     normality_alpha: float = 0.05,
     method: str = "t",
     alpha: float = 0.05,
+    drift_alpha: float = 0.01,
 ) -> list[dict[str, str]]:
     """Notes on the assumptions behind the interval, each ``{"code": ..., "text": ...}``.
 
     A note that recommends another interval method carries its name under ``"recommend"``.
     Notes judge risk, not significance: a normality rejection is called harmful only when the
     skewness is large for this n by Cochran's rule (n > 25 G1^2, Cochran 1977); positive lag-1
-    autocorrelation only when one-sided significant at ``alpha`` (Box & Jenkins 1976 limits);
+    autocorrelation only when one-sided significant at ``alpha`` (Box & Jenkins 1976 limits); a
+    drift when Mann-Kendall rejects at ``drift_alpha`` (stricter, as a drift note asks for action);
     ``method`` is the interval method in use, so no note recommends what is already used.
     """
     notes: list[dict[str, str]] = []
@@ -107,15 +109,16 @@ def assumption_notes(
             note["text"] += "; method='bootstrap' does not assume one normal group"
             note["recommend"] = "bootstrap"
         notes.append(note)
-    notes.extend(_independence_notes(d, alpha, method))
+    independence = _independence_notes(d, alpha, method)
+    notes.extend(independence)
     drift = d.drift
-    if drift is not None and drift.rejects(alpha):
-        notes.append({
-            "code": "drift",
-            "text": f"trials drift: the level moved by about {drift.change:.4g} from first to "
-            f"last trial (Mann-Kendall p = {drift.pvalue:.3g}); the mean is not steady, so the "
-            "interval describes this run only: warm up longer or find the cause",
-        })
+    if drift is not None and drift.rejects(drift_alpha):
+        text = (f"trials drift: the level moved by about {drift.change:.4g} from first to last "
+                f"trial (Mann-Kendall p = {drift.pvalue:.3g}); the mean is not steady, so the "
+                "interval describes this run only: warm up longer or find the cause")
+        if independence or d.lag1_significant:
+            text += " (autocorrelated trials alone can make this test fire)"
+        notes.append({"code": "drift", "text": text})
     return notes
 
 

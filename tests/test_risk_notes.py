@@ -1,0 +1,241 @@
+"""Diagnostics of shape, outliers, drift and bimodality, and notes that judge risk at this n."""
+
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+import pytest
+from meanband import diagnose
+from meanband.diagnostics import (
+    DRIFT_MAX_N,
+    Diagnostics,
+    NormalityTest,
+    bimodality_coefficient,
+    drift_test,
+    tukey_fences,
+)
+from meanband.explain import assumption_notes, lognormal_skewness, trials_for_skewness
+from scipy import stats
+
+SEEDS = range(40)
+
+
+def lognormal(seed: int, n: int = 30, sigma: float = 1.0) -> np.ndarray:
+    """Invented request latencies (ms): median 10, log-sd ``sigma``."""
+    return np.random.default_rng(seed).lognormal(math.log(10.0), sigma, n)
+
+
+def normal(seed: int, n: int = 30) -> np.ndarray:
+    """Invented sensor readings: mean 10, sd 1."""
+    return np.random.default_rng(seed).normal(10.0, 1.0, n)
+
+
+def ar1(seed: int, n: int = 30, phi: float = 0.5) -> np.ndarray:
+    """Invented latencies with a slowly wandering background load: stationary AR(1) around 10."""
+    rng = np.random.default_rng(seed)
+    shocks = rng.standard_normal(n) * math.sqrt(1.0 - phi * phi)
+    x = np.empty(n)
+    x[0] = rng.standard_normal()
+    for i in range(1, n):
+        x[i] = phi * x[i - 1] + shocks[i]
+    return 10.0 + x
+
+
+def two_modes(seed: int, n: int = 60) -> np.ndarray:
+    """Invented timings: a fast path at 10 ms and, one time in three, a slow path at 15 ms."""
+    rng = np.random.default_rng(seed)
+    slow = rng.random(n) < 1 / 3
+    return np.where(slow, rng.normal(15.0, 0.5, n), rng.normal(10.0, 0.5, n))
+
+
+def codes(values: np.ndarray, **kwargs: object) -> dict[str, dict[str, str]]:
+    return {note["code"]: note for note in assumption_notes(diagnose(values), **kwargs)}
+
+
+def recommended(values: np.ndarray) -> set[str]:
+    return {n["recommend"] for n in assumption_notes(diagnose(values)) if "recommend" in n}
+
+
+# --- the notes -------------------------------------------------------------------------------
+
+
+def test_lognormal_sigma1_at_30_gets_a_harmful_normality_note_recommending_cox() -> None:
+    notes = codes(lognormal(2))
+    assert notes["not-normal"]["recommend"] == "cox"
+    assert "Cochran" in notes["not-normal"]["text"]
+
+
+def test_lognormal_recommendation_holds_across_seeds() -> None:
+    hits = sum("cox" in recommended(lognormal(seed)) for seed in SEEDS)
+    assert hits >= 0.9 * len(SEEDS)
+
+
+def test_ar1_gets_an_autocorrelation_note_recommending_batch_means() -> None:
+    notes = codes(ar1(0))
+    assert notes["autocorrelated"]["recommend"] == "batch-means"
+    # One-sided detection has about 80% power at n = 30 and nearly 100% at n = 100
+    # (studies/coverage.py); seeded, so these shares are fixed.
+    assert sum("batch-means" in recommended(ar1(s)) for s in SEEDS) >= 0.7 * len(SEEDS)
+    assert sum("batch-means" in recommended(ar1(s, 100)) for s in SEEDS) >= 0.95 * len(SEEDS)
+
+
+def test_normal_data_of_the_same_n_stay_quiet() -> None:
+    assert codes(normal(0)) == {}
+    # A recommendation on normal data is a false alarm: at most the tests' own error rates.
+    false_alarms = sum(bool(recommended(normal(seed))) for seed in SEEDS)
+    assert false_alarms <= 0.15 * len(SEEDS)
+
+
+def test_no_note_recommends_the_method_already_in_use() -> None:
+    assert "autocorrelated" not in codes(ar1(0), method="batch-means")
+    assert "not-normal" not in codes(lognormal(2), method="cox")
+    assert "not-normal" not in codes(lognormal(2), method="bootstrap")
+
+
+def test_harmless_rejection_is_said_to_be_harmless() -> None:
+    # Gamma(shape 100): skewness 2 / sqrt(100) = 0.2 (common practice, from the gamma moments),
+    # so Cochran's rule asks n > 1; 5000 trials make Shapiro-Wilk reject anyway.
+    x = np.random.default_rng(1).gamma(100.0, 0.1, 5000)
+    notes = codes(x)
+    assert "not-normal" not in notes
+    assert "recommend" not in notes["not-normal-harmless"]
+    assert "not at risk" in notes["not-normal-harmless"]["text"]
+
+
+def test_skewed_but_not_lognormal_data_get_the_bootstrap() -> None:
+    # Shifted exponential: a floor of 5 ms plus an exponential tail; logs stay skewed.
+    x = 5.0 + np.random.default_rng(4).exponential(1.0, 40) ** 2
+    assert codes(x)["not-normal"]["recommend"] == "bootstrap"
+
+
+def test_log_methods_are_warned_when_logs_are_not_normal() -> None:
+    x = 5.0 + np.random.default_rng(4).exponential(1.0, 40) ** 2
+    assert codes(x, method="cox")["log-not-normal"]["recommend"] == "bootstrap"
+    assert codes(lognormal(2), method="cox") == {}
+
+
+def test_negative_autocorrelation_is_not_a_risk() -> None:
+    x = 10.0 + np.tile([1.0, -1.0], 20) + np.random.default_rng(0).normal(0, 0.1, 40)
+    assert diagnose(x).lag1 < -0.5
+    assert "autocorrelated" not in codes(x)
+
+
+def test_bimodal_note_fires_on_two_modes_but_not_on_skew_alone() -> None:
+    assert "bimodal" in codes(two_modes(3))
+    assert sum("bimodal" in codes(lognormal(s, 60)) for s in SEEDS) <= 2
+
+
+def test_outlier_note_counts_and_keeps_the_trials() -> None:
+    x = lognormal(2)
+    d = diagnose(x)
+    low, high = tukey_fences(x)
+    assert d.outliers == int(np.sum((x < low) | (x > high))) > 0
+    assert str(d.outliers) in codes(x)["outliers"]["text"]
+    assert d.n == x.size and d.mean == pytest.approx(x.mean(), rel=1e-12)
+
+
+def test_drift_note_fires_on_a_warming_up_series() -> None:
+    # Invented: a cache warming over 50 trials, 2 ms slower at the start.
+    rng = np.random.default_rng(8)
+    x = 10.0 + np.linspace(2.0, 0.0, 50) + rng.normal(0, 0.3, 50)
+    assert "drift" in codes(x)
+    assert "drift" not in codes(normal(0, 50))
+
+
+def test_cochran_rule() -> None:
+    # n > 25 G1^2 (Cochran 1977, Sampling Techniques, 3rd ed., section 2.15).
+    assert trials_for_skewness(2.0) == 100.0
+    # Log-normal skewness (exp(s^2) + 2) sqrt(exp(s^2) - 1); s = 1 gives 6.18 (Johnson, Kotz &
+    # Balakrishnan 1994, chapter 14; value from memory).
+    assert lognormal_skewness(1.0) == pytest.approx(6.1849, abs=1e-4)
+
+
+def test_old_signature_still_works() -> None:
+    assert assumption_notes(diagnose(normal(0)), min_n=10, normality_alpha=0.05) == []
+
+
+# --- the diagnostics -------------------------------------------------------------------------
+
+
+def test_kurtosis_and_skewness_match_scipy() -> None:
+    x = lognormal(5, 50)
+    d = diagnose(x)
+    # scipy.stats.skew / kurtosis with bias=False are G1 and G2 (reference library).
+    assert d.skewness == pytest.approx(stats.skew(x, bias=False), rel=1e-10)
+    assert d.excess_kurtosis == pytest.approx(stats.kurtosis(x, bias=False), rel=1e-10)
+    y = np.log(x)
+    assert d.log_skewness == pytest.approx(stats.skew(y, bias=False), rel=1e-10)
+    assert d.log_sd == pytest.approx(np.std(y, ddof=1), rel=1e-10)
+
+
+def test_tukey_fences_by_hand() -> None:
+    # 1..9 and 40: quartiles 3.25 and 7.75 (linear interpolation, numpy's default), IQR 4.5,
+    # fences -3.5 and 14.5 (Tukey 1977: 1.5 IQR beyond the quartiles).
+    x = np.array([1, 2, 3, 4, 5, 6, 7, 8, 9, 40], dtype=float)
+    assert tukey_fences(x) == pytest.approx((-3.5, 14.5))
+    d = diagnose(x)
+    assert d.outliers == 1 and d.outlier_fences == pytest.approx((-3.5, 14.5))
+
+
+def test_bimodality_coefficient_by_hand() -> None:
+    # Sarle's b = (G1^2 + 1) / (G2 + 3 (n-1)^2 / ((n-2)(n-3))) (SAS Institute 1990; Pfister et
+    # al. 2013), with scipy's unbiased G1, G2 as the reference.
+    x = two_modes(3)
+    g1, g2, n = stats.skew(x, bias=False), stats.kurtosis(x, bias=False), x.size
+    expected = (g1**2 + 1) / (g2 + 3 * (n - 1) ** 2 / ((n - 2) * (n - 3)))
+    assert diagnose(x).bimodality == pytest.approx(expected, rel=1e-10)
+    assert expected > 5 / 9
+    assert math.isnan(bimodality_coefficient(0.1, 0.2, 3))
+
+
+def test_mann_kendall_by_hand() -> None:
+    x = np.array([3.1, 2.9, 3.4, 3.8, 3.3, 4.0, 4.4, 3.9, 4.6, 4.8])
+    n = x.size
+    # S = sum of sign(x_j - x_i), i < j; tau = S / (n(n-1)/2) (Mann 1945; Kendall 1975).
+    s = sum(np.sign(x[j] - x[i]) for i in range(n) for j in range(i + 1, n))
+    # Sen's slope: median of the pairwise slopes (Sen 1968).
+    slopes = [(x[j] - x[i]) / (j - i) for i in range(n) for j in range(i + 1, n)]
+    result = drift_test(x)
+    assert result.statistic == pytest.approx(s / (n * (n - 1) / 2))
+    assert result.slope == pytest.approx(float(np.median(slopes)))
+    assert result.change == pytest.approx(result.slope * (n - 1))
+    assert result.rejects(0.01)
+
+
+def test_mann_kendall_p_value_by_the_normal_approximation() -> None:
+    # Above 50 untied trials the p-value is the normal approximation with
+    # var(S) = n(n-1)(2n+5)/18 (Kendall 1975), computed here by hand.
+    x = np.random.default_rng(6).normal(size=80) + np.linspace(0.0, 0.5, 80)
+    n = x.size
+    s = float(sum(np.sum(np.sign(x[i + 1:] - x[i])) for i in range(n)))
+    z = s / math.sqrt(n * (n - 1) * (2 * n + 5) / 18)
+    assert drift_test(x).pvalue == pytest.approx(2 * stats.norm.sf(abs(z)), rel=1e-9)
+
+
+def test_drift_test_subsamples_long_series_and_refuses_bad_input() -> None:
+    x = np.random.default_rng(2).normal(size=DRIFT_MAX_N * 3)
+    assert drift_test(x).used == DRIFT_MAX_N
+    assert not drift_test([1.0, 2.0]).testable
+    assert drift_test([2.0] * 10).reason == "all trials are equal"
+    with pytest.raises(ValueError, match="NaN"):
+        drift_test([1.0, float("nan"), 2.0, 3.0])
+
+
+def test_diagnostics_travel_as_json_and_old_constructor_works() -> None:
+    d = diagnose(lognormal(1))
+    back = json.loads(json.dumps(d.to_dict()))
+    assert back["drift"]["method"] == "Mann-Kendall"
+    assert back["outlier_fences"] == list(d.outlier_fences)
+    old = Diagnostics(3, 1.0, 0.5, False, 0.0, NormalityTest("Shapiro-Wilk", 1.0, 0.5, True),
+                      0.0, 1.0, False, 3.0)
+    assert old.outliers == 0 and old.drift is None
+
+
+def test_diagnose_stays_vectorised_on_a_million_trials() -> None:
+    # Not a timing assertion: a million trials must go through (no O(n^2) step) and subsample.
+    x = np.random.default_rng(0).lognormal(0.0, 0.3, 1_000_000)
+    d = diagnose(x)
+    assert d.drift is not None and d.drift.used == DRIFT_MAX_N
+    assert d.outliers > 0
