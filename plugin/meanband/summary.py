@@ -147,7 +147,9 @@ def _suggestions(checks: Sequence[Row]) -> list[str]:
         elif verdict == "PASS" and suggested is not None and suggested < n:
             out.append(f"  {row_name(row)}: PASS at n={n}; about {suggested} trials would "
                        "still pass")
-    return ["", "suggested trial counts (90% power):", *out] if out else []
+    powers = {r.get("settings", {}).get("power", 0.9) for r in checks}
+    power = f"{powers.pop() * 100:g}% power" if len(powers) == 1 else "stated power"
+    return ["", f"suggested trial counts ({power}):", *out] if out else []
 
 
 def _unchecked(rows: Sequence[Row]) -> list[str]:
