@@ -32,5 +32,6 @@ def assert_mean_within(
     band = make_band(low, high, center=center, tolerance=tolerance, unit=unit)
     decision = decide(values, band, confidence=confidence, method=method)
     if not decision.passed:
-        raise BandViolation(describe(decision, notes=assumption_notes(decision.diagnostics)), decision)
+        raise BandViolation(describe(decision, notes=assumption_notes(decision.diagnostics, method=method)),
+                            decision)
     return decision

@@ -100,7 +100,11 @@ def assumption_notes(
             f"[{low:.4g}, {high:.4g}] (1.5 IQR beyond the quartiles); they are kept, and they "
             "make the skewness that puts the t interval at risk",
         })
-    if _bimodal(d, normality_alpha):
+    drift = d.drift
+    drifting = drift is not None and drift.rejects(drift_alpha)
+    # A steady drift spreads the trials evenly, which the bimodality coefficient reads as two
+    # groups: the drift note says what is going on.
+    if not drifting and _bimodal(d, normality_alpha):
         text = (f"trials look like two groups (bimodality coefficient {d.bimodality:.2f} > 5/9): "
                 "the mean mixes two regimes in this run's proportions, and the interval holds "
                 "only while that proportion is steady")
@@ -111,8 +115,8 @@ def assumption_notes(
         notes.append(note)
     independence = _independence_notes(d, alpha, method)
     notes.extend(independence)
-    drift = d.drift
-    if drift is not None and drift.rejects(drift_alpha):
+    if drifting:
+        assert drift is not None
         text = (f"trials drift: the level moved by about {drift.change:.4g} from first to last "
                 f"trial (Mann-Kendall p = {drift.pvalue:.3g}); the mean is not steady, so the "
                 "interval describes this run only: warm up longer or find the cause")

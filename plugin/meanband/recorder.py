@@ -120,7 +120,8 @@ class Series:
             power=settings.power,
         )
         notes = assumption_notes(
-            decision.diagnostics, min_n=settings.min_n, normality_alpha=settings.normality_alpha
+            decision.diagnostics, min_n=settings.min_n, normality_alpha=settings.normality_alpha,
+            method=settings.method,
         )
         self._rows.append(self._row("check", settings, decision.to_dict(), notes))
         if not decision.passed:
