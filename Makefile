@@ -18,7 +18,7 @@ test: $(STAMP)
 	$(HERMETIC) $(PY) -m pytest -p meanband -p xdist -n 2 -q tests
 
 lint: $(STAMP)
-	$(VENV)/bin/ruff check plugin tests benchmarks sample_suites
+	$(VENV)/bin/ruff check plugin tests benchmarks sample_suites studies
 	$(VENV)/bin/mypy
 
 demo: $(STAMP)
@@ -26,6 +26,9 @@ demo: $(STAMP)
 
 bench: $(STAMP)
 	for script in benchmarks/*.py; do $(PY) $$script || exit 1; done
+
+study: $(STAMP)
+	$(PY) studies/coverage.py
 
 clean:
 	rm -rf $(VENV) .pytest_cache .hypothesis build *.egg-info plugin/*.egg-info
