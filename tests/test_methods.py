@@ -208,3 +208,20 @@ def test_batch_means_repairs_the_coverage_of_t_on_autocorrelated_trials() -> Non
         x[:, i] = phi * x[:, i - 1] + shocks[:, i]
     assert _coverage("t", x, 0.0) < 0.85
     assert _coverage("batch-means", x, 0.0) > 0.92
+
+
+def test_trial_suggestions_follow_the_long_run_spread_of_batch_means() -> None:
+    from meanband import decide, make_band
+
+    rng = np.random.default_rng(73)
+    x = np.empty(200)
+    x[0] = 0.0
+    for i in range(1, 200):
+        x[i] = 0.7 * x[i - 1] + rng.normal(0.0, 0.7)
+    band = make_band(high=float(x.mean()) + 0.3)
+    plain = decide(x, band, method="t")
+    batched = decide(x, band, method="batch-means")
+    assert plain.suggested_n is not None and batched.suggested_n is not None
+    # AR(1) phi = 0.7: long-run variance (1 + phi) / (1 - phi), about 5.7 times the plain one
+    # (common practice); the sample ratio is rough, so only "clearly more" is asserted.
+    assert batched.suggested_n > 2 * plain.suggested_n

@@ -175,8 +175,10 @@ def decide(
     diagnostics = diagnose(x, alpha=alpha)
     suggested = None
     if verdict is not Verdict.FAIL:
+        # sem * sqrt(n) is the sd per trial that the method's interval implies: the plain sd for
+        # independent trials, the larger long-run sd for batch means of autocorrelated ones.
         suggested = trials_needed(
-            interval.sd, margin=edge_margin(interval.mean, band), confidence=level,
+            interval.sem * math.sqrt(interval.n), margin=edge_margin(interval.mean, band), confidence=level,
             side=side, power=power,
         )
     return Decision(verdict, band, interval, counter, diagnostics, suggested, band.unit)

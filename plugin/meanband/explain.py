@@ -93,12 +93,11 @@ def assumption_notes(
     elif method in _LOG_NORMAL_THEORY:
         notes.extend(_log_normality_notes(d, normality_alpha, method))
     if skew_risk and d.outliers > 0 and method in _NORMAL_THEORY:
-        low, high = d.outlier_fences
         notes.append({
             "code": "outliers",
-            "text": f"{d.outliers} of {d.n} trials lie outside Tukey's fences "
-            f"[{low:.4g}, {high:.4g}] (1.5 IQR beyond the quartiles); they are kept, and they "
-            "make the skewness that puts the t interval at risk",
+            "text": f"{d.outliers} of {d.n} trials lie outside Tukey's fences (1.5 IQR beyond "
+            "the quartiles); they are kept, and they make the skewness that puts the t "
+            "interval at risk",
         })
     drift = d.drift
     drifting = drift is not None and drift.rejects(drift_alpha)
