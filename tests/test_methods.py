@@ -72,7 +72,8 @@ def test_log_t_by_hand() -> None:
 
 def test_cox_by_hand_zhou_gao() -> None:
     # Modified Cox interval (Zhou & Gao 1997, Statistics in Medicine 16:783-790, "modified Cox
-    # method"): ybar + s^2/2 +/- t(n-1) sqrt(s^2/n + s^4/(2(n-1))), back-transformed with exp.
+    # method"): ybar + s^2/2 +/- t(n-1) sqrt(s^2/n + s^4/(2(n-1))), back-transformed with exp
+    # (formula from memory of the paper).
     y = [math.log(v) for v in TIMES]
     n = len(y)
     ybar = sum(y) / n

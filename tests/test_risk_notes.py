@@ -145,7 +145,7 @@ def test_drift_note_fires_on_a_warming_up_series() -> None:
 
 
 def test_cochran_rule() -> None:
-    # n > 25 G1^2 (Cochran 1977, Sampling Techniques, 3rd ed., section 2.15).
+    # n > 25 G1^2 (Cochran 1977, Sampling Techniques, 3rd ed., section 2.15; from memory).
     assert trials_for_skewness(2.0) == 100.0
     # Log-normal skewness (exp(s^2) + 2) sqrt(exp(s^2) - 1); s = 1 gives 6.18 (Johnson, Kotz &
     # Balakrishnan 1994, chapter 14; value from memory).

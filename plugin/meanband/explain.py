@@ -42,7 +42,7 @@ def _fmt(value: float, unit: str | None, scale: float | None, digits: int = 4) -
 
 
 #: Cochran's rule: the normal approximation to the mean holds when n > 25 * G1^2 (Cochran 1977,
-#: Sampling Techniques, 3rd ed., section 2.15).
+#: Sampling Techniques, 3rd ed., section 2.15; rule and section number from memory).
 COCHRAN_FACTOR = 25.0
 #: Methods that assume roughly normal raw trials (batch means average them first).
 _NORMAL_THEORY = ("t",)

@@ -32,7 +32,8 @@ __all__ = [
 BOOTSTRAP_SEED = 20_260_907
 #: Resamples for the BCa interval (scipy.stats.bootstrap's default as well).
 BOOTSTRAP_RESAMPLES = 9999
-#: Upper limit on the number of batches (Schmeiser 1982: little is gained beyond 30).
+#: Upper limit on the number of batches (Schmeiser 1982: little is gained beyond 30; from
+#: memory).
 MAX_BATCHES = 30
 # Bound on resampled values held in memory at once by the bootstrap.
 _BOOTSTRAP_CHUNK = 4_000_000
@@ -86,6 +87,7 @@ def cox_interval(x: np.ndarray, confidence: float, side: str) -> Interval:
 
     With y = log x: exp(ybar + s^2/2 +/- t(n-1) * sqrt(s^2/n + s^4 / (2(n-1)))), Zhou & Gao
     (1997, "modified Cox method"), after Land (1972); the point estimate is exp(ybar + s^2/2).
+    Formula from memory of the paper; tested against a hand computation of it.
     """
     y = _positive(x, "cox")
     n = x.size
