@@ -50,6 +50,7 @@ class Scenario:
     draw: Callable[[np.random.Generator, int, int], np.ndarray]
     mean: float
     geometric_mean: float
+    required: bool = True  # False: an extra scenario, reported but not one of the targets
 
 
 def _ar1(rng: np.random.Generator, reps: int, n: int, phi: float = 0.5) -> np.ndarray:
@@ -87,7 +88,7 @@ def scenarios() -> list[Scenario]:
         Scenario("lognormal s=1", ln1, 10.0 * math.exp(0.5), 10.0),
         Scenario("AR(1) phi=0.5", _ar1, 10.0, _geometric_mean(_ar1)),
         Scenario("two modes", _two_modes, 0.75 * 10.0 + 0.25 * 15.0, _geometric_mean(_two_modes)),
-        Scenario("floor + exponential", floor_exp, 10.0, _geometric_mean(floor_exp)),
+        Scenario("floor + exponential", floor_exp, 10.0, _geometric_mean(floor_exp), False),
     ]
 
 
@@ -134,6 +135,7 @@ def recommendations(x: np.ndarray) -> list[str]:
 @dataclass
 class Cell:
     scenario: str
+    required: bool
     n: int
     coverage: dict[str, float]
     false_pass: dict[str, float]
@@ -165,7 +167,7 @@ def run_cell(scenario: Scenario, n: int, reps: int, rng: np.random.Generator) ->
         follow_inside[rows] = inside_by_method[method][rows]
         follow_under[rows] = under_by_method[method][rows]
     return Cell(
-        scenario.name, n, coverage, false_pass,
+        scenario.name, scenario.required, n, coverage, false_pass,
         {m: c / reps for m, c in counts.most_common()},
         float(follow_inside.mean()), float(follow_under.mean()),
     )
@@ -185,7 +187,10 @@ def target_status(cell: Cell) -> str:
     tolerance = {30: 0.025, 100: 0.015}.get(cell.n)
     if tolerance is None:
         return "-"
-    return "met" if abs(cell.coverage[modal(cell)] - CONFIDENCE) <= tolerance else "MISSED"
+    met = abs(cell.coverage[modal(cell)] - CONFIDENCE) <= tolerance
+    if not cell.required:
+        return "met (extra)" if met else "missed (extra)"
+    return "met" if met else "MISSED"
 
 
 def format_tables(cells: list[Cell], reps: int) -> str:
@@ -266,7 +271,9 @@ def main(argv: list[str] | None = None) -> int:
     table = format_tables(cells, args.reps)
     print(table)
     missed = [c for c in cells if target_status(c) == "MISSED"]
-    print(f"\ntargets missed: {len(missed)}; took {time.perf_counter() - started:.0f} s")
+    extra = [c for c in cells if target_status(c) == "missed (extra)"]
+    print(f"\ntargets missed: {len(missed)} (extra scenario: {len(extra)}); "
+          f"took {time.perf_counter() - started:.0f} s")
     if not args.no_write:
         docs = ROOT / "docs"
         docs.mkdir(exist_ok=True)
@@ -279,7 +286,8 @@ def main(argv: list[str] | None = None) -> int:
             "median 10 and log-sd 0.5 or 1; a stationary AR(1) around 10 with phi 0.5 and sd 1; "
             "two modes, N(10, 0.5) three times in four and N(15, 0.8) otherwise; a floor of 8 "
             "plus an exponential wait with mean 2 (skewness 2, not log-normal; an extra "
-            "scenario to show the bootstrap where the notes recommend it).\n\n"
+            "scenario, outside the targets, to show the bootstrap where the notes recommend "
+            "it).\n\n"
             "\"notes recommend\" is the share of samples for which `assumption_notes` recommends "
             "each method (t: no recommendation); \"notes\" is the coverage of following that "
             "advice sample by sample. \"target\": plain t within 1 point of 95% on normal data; "
