@@ -1,0 +1,7 @@
+"""``python -m meanband`` runs the ``meanband`` console command."""
+
+from __future__ import annotations
+
+from meanband.cli import main
+
+raise SystemExit(main())

@@ -1,0 +1,115 @@
+"""Judge a check against its baseline: ratio interval, limit and a verdict in plain words."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from meanband.bands import Verdict
+from meanband.ratio import RatioInterval, judge_ratio, ratio_interval
+from meanband.units import SECONDS
+
+__all__ = [
+    "CANNOT_TELL",
+    "DEFAULT_MAX_CHANGE",
+    "DEFAULT_MAX_INCREASE",
+    "NO_BASELINE",
+    "NO_REGRESSION",
+    "REGRESSED",
+    "Limits",
+    "compare_samples",
+    "format_limit",
+    "format_ratio",
+    "is_timing",
+]
+
+REGRESSED = "regressed"
+NO_REGRESSION = "no regression"
+CANNOT_TELL = "cannot tell yet"
+NO_BASELINE = "no baseline"
+
+#: A timing may grow by this fraction of its baseline before it counts as a regression.
+DEFAULT_MAX_INCREASE = 0.05
+#: A measured value (not a timing) may move by this fraction either way.
+DEFAULT_MAX_CHANGE = 0.05
+
+_WORDS = {Verdict.FAIL: REGRESSED, Verdict.PASS: NO_REGRESSION, Verdict.UNDECIDED: CANNOT_TELL}
+
+
+@dataclass(frozen=True, slots=True)
+class Limits:
+    """How far a check may move from its baseline: timings up, other values either way."""
+
+    max_increase: float = DEFAULT_MAX_INCREASE
+    max_change: float = DEFAULT_MAX_CHANGE
+
+    def band(self, timing: bool) -> tuple[float, float]:
+        """The allowed range of current/baseline."""
+        if timing:
+            return (-math.inf, 1.0 + self.max_increase)
+        return (1.0 - self.max_change, 1.0 + self.max_change)
+
+
+def is_timing(unit: str | None, source: str | None) -> bool:
+    """Timings are compared on the log scale and may only grow by ``max_increase``."""
+    return unit == SECONDS or source == "time"
+
+
+def compare_samples(
+    current: Iterable[float] | np.ndarray,
+    baseline: Iterable[float] | np.ndarray,
+    *,
+    timing: bool,
+    confidence: float = 0.95,
+    limits: Limits | None = None,
+) -> dict[str, Any]:
+    """Compare ``current`` trials with ``baseline`` trials of the same check.
+
+    The two-sided ``confidence`` interval of current/baseline decides: wholly above the limit is
+    ``regressed``, wholly inside the allowed range is ``no regression``, across an edge is
+    ``cannot tell yet``. For timings the ratio is of geometric means on the log scale (Welch
+    1947 on log values); for other values it is the ratio of means by Fieller (1954). When the
+    true ratio sits exactly on the limit, a check is called regressed with probability at most
+    (1 - confidence) / 2.
+
+    Returns builtin types only (it becomes the ``"baseline"`` key of a row).
+    """
+    limits = limits or Limits()
+    xc = np.asarray(current, dtype=np.float64)
+    xb = np.asarray(baseline, dtype=np.float64)
+    positive = bool(np.all(xc > 0) and np.all(xb > 0))
+    method = "log" if timing and positive else "fieller"
+    interval: RatioInterval = ratio_interval(xc, xb, confidence, method)
+    low, high = limits.band(timing)
+    status = _WORDS[judge_ratio(interval, low, high)]
+    return {
+        "status": status,
+        "timing": timing,
+        "ratio": interval.to_dict(),
+        "limit_low": None if math.isinf(low) else low,
+        "limit_high": high,
+        "current_mean": interval.mean_current,
+        "baseline_mean": interval.mean_baseline,
+        "n_current": interval.n_current,
+        "n_baseline": interval.n_baseline,
+    }
+
+
+def format_limit(comparison: dict[str, Any]) -> str:
+    """The allowed range of a comparison in words: ``<= 1.05x`` or ``0.95x..1.05x``."""
+    high = comparison["limit_high"]
+    low = comparison.get("limit_low")
+    if low is None:
+        return f"<= {high:.4g}x"
+    return f"{low:.4g}x..{high:.4g}x"
+
+
+def format_ratio(ratio: dict[str, Any]) -> str:
+    """A ratio interval as ``1.21x [1.15, 1.27]``; unbounded intervals say so."""
+    if not ratio.get("bounded", True):
+        return f"{ratio['ratio']:.3f}x [unbounded]"
+    return f"{ratio['ratio']:.3f}x [{ratio['low']:.3f}, {ratio['high']:.3f}]"
