@@ -186,7 +186,7 @@ class HistoryStore:
                 raise StoreError(
                     f"{self.path} is an SQLite database but not a meanband history store "
                     f"(it holds tables {', '.join(sorted(foreign))}); it was left untouched. "
-                    f"Or {_ELSEWHERE}"
+                    f"Move it aside, or {_ELSEWHERE}"
                 )
         if version < SCHEMA_VERSION:
             self._upgrade()
