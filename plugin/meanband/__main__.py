@@ -1,7 +1,9 @@
-"""``python -m meanband`` runs the ``meanband`` console command."""
+"""``python -m meanband``: the same as the ``meanband`` console command."""
 
 from __future__ import annotations
 
+import sys
+
 from meanband.cli import main
 
-raise SystemExit(main())
+sys.exit(main())

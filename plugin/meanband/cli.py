@@ -1,4 +1,4 @@
-"""The ``meanband`` console command; feature modules add their subcommands here."""
+"""The ``meanband`` console command: subcommands are registered by feature modules."""
 
 from __future__ import annotations
 
@@ -7,33 +7,39 @@ import importlib
 import sys
 from collections.abc import Sequence
 
-__all__ = ["FEATURES", "build_parser", "main"]
-
-#: Modules that each expose ``register(subparsers)`` and add their subcommands. A subcommand
-#: sets ``func`` (``args -> exit code``) with ``set_defaults``.
-FEATURES = ("meanband.history_cli",)
+#: Modules that each expose ``register(subparsers)``; a missing one is skipped. Each subcommand
+#: sets ``handler=function(args) -> int`` with ``set_defaults``.
+SUBCOMMAND_MODULES = ("meanband.history_cli", "meanband.plan_cli", "meanband.report_cli")
 
 
 def build_parser() -> argparse.ArgumentParser:
-    """The full parser, with every feature's subcommands."""
-    from meanband import __version__
-
+    """The argument parser with every available subcommand."""
     parser = argparse.ArgumentParser(
-        prog="meanband", description="Work with meanband's stored runs and results."
+        prog="meanband",
+        description="Inspect meanband results: history, plans and reports.",
     )
-    parser.add_argument("--version", action="version", version=f"meanband {__version__}")
     subparsers = parser.add_subparsers(dest="command", metavar="COMMAND")
-    for name in FEATURES:
-        importlib.import_module(name).register(subparsers)
+    for name in SUBCOMMAND_MODULES:
+        try:
+            module = importlib.import_module(name)
+        except ModuleNotFoundError as exc:
+            if exc.name != name:
+                raise
+            continue
+        module.register(subparsers)
     return parser
 
 
 def main(argv: Sequence[str] | None = None) -> int:
-    """Run the command; returns the exit status (2 for usage errors)."""
+    """Run the command; return its exit status (0 ok, 1 a finding, 2 a usage or file error)."""
     parser = build_parser()
     args = parser.parse_args(argv)
-    func = getattr(args, "func", None)
-    if func is None:
+    handler = getattr(args, "handler", None)
+    if handler is None:
         parser.print_help(sys.stderr)
         return 2
-    return int(func(args))
+    return int(handler(args) or 0)
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

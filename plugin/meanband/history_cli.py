@@ -30,17 +30,17 @@ def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) ->
         "history", help="Stored runs: list, show, compare, export, prune",
         description="Read and tidy the history store that --meanband-record writes.",
     )
-    history.set_defaults(func=lambda args: _usage(history))
+    history.set_defaults(handler=lambda args: _usage(history))
     commands = history.add_subparsers(dest="history_command", metavar="SUBCOMMAND")
 
     listing = commands.add_parser("list", help="List stored runs, newest first")
     _store_option(listing)
-    listing.set_defaults(func=_guarded(_list))
+    listing.set_defaults(handler=_guarded(_list))
 
     show = commands.add_parser("show", help="Show the checks of one run")
     show.add_argument("run", metavar="RUN", help=_RUN_HELP)
     _store_option(show)
-    show.set_defaults(func=_guarded(_show))
+    show.set_defaults(handler=_guarded(_show))
 
     compare = commands.add_parser(
         "compare", help="Compare run B with run A (A is the baseline)",
@@ -62,7 +62,7 @@ def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) ->
         help="Confidence of the two-sided ratio interval (default 0.95)",
     )
     _store_option(compare)
-    compare.set_defaults(func=_guarded(_compare))
+    compare.set_defaults(handler=_guarded(_compare))
 
     export = commands.add_parser("export", help="Write one run as JSON or CSV")
     export.add_argument("run", metavar="RUN", help=_RUN_HELP)
@@ -71,12 +71,12 @@ def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) ->
         "--output", "-o", metavar="FILE", default="-", help="Write here instead of standard output"
     )
     _store_option(export)
-    export.set_defaults(func=_guarded(_export))
+    export.set_defaults(handler=_guarded(_export))
 
     prune = commands.add_parser("prune", help="Delete all but the newest runs")
     prune.add_argument("--keep", type=int, required=True, metavar="N", help="How many runs to keep")
     _store_option(prune)
-    prune.set_defaults(func=_guarded(_prune))
+    prune.set_defaults(handler=_guarded(_prune))
 
 
 _RUN_HELP = "A run id (7 or #7), a label (newest run with it), or 'latest'."
