@@ -188,6 +188,15 @@ class HistoryStore:
                     f"(it holds tables {', '.join(sorted(foreign))}); it was left untouched. "
                     f"Move it aside, or {_ELSEWHERE}"
                 )
+        if version > 0:
+            # Find damage before anything is written, so a damaged file is never made worse.
+            problems = [r[0] for r in conn.execute("PRAGMA quick_check").fetchall()]
+            if problems != ["ok"]:
+                raise StoreError(
+                    f"the history store {self.path} is damaged ({'; '.join(problems[:3])}); it "
+                    "was left untouched. Move it aside (earlier runs may be rescued with the "
+                    "sqlite3 shell's .recover) and a new store will be started"
+                )
         if version < SCHEMA_VERSION:
             self._upgrade()
         mode = conn.execute("PRAGMA journal_mode = WAL").fetchone()[0]
