@@ -12,7 +12,6 @@ import math
 import sys
 
 import numpy as np
-
 from meanband.bands import Verdict
 from meanband.ratio import judge_ratio, ratio_interval
 
