@@ -184,3 +184,14 @@ def test_python_dash_m_meanband_runs_the_command(store: Path) -> None:
         capture_output=True, text=True, env=env, timeout=60, check=False,
     )
     assert failed.returncode == 2 and "no history store" in failed.stderr
+
+
+def test_compare_leaves_in_run_comparisons_alone(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    path = tmp_path / "h.sqlite"
+    row = {"nodeid": "test_p.py::test_v2", "series": "v2 / v1", "kind": "check", "unit": "x",
+           "source": "compare", "values": [1.1, 1.12, 1.09], "decision": None}
+    with HistoryStore(path) as s:
+        s.record_run([row], label="a", environment=ENV)
+        s.record_run([{**row, "values": [1.5, 1.6, 1.55]}], label="b", environment=ENV)
+    code, out, _ = run(capsys, "history", "compare", "a", "b", "--store", str(path))
+    assert code == 0 and out.rstrip().endswith("in-run comparison, its own gate")

@@ -233,3 +233,11 @@ def test_no_store_is_touched_without_the_options(pytester: pytest.Pytester, run_
     assert result.ret == 0
     assert not (pytester.path / ".meanband").exists()
     assert "baseline" not in result.stdout.str()
+
+
+def test_recording_a_run_without_trials_says_so(pytester: pytest.Pytester, run_suite) -> None:
+    pytester.makepyfile("def test_plain():\n    assert True\n")
+    result = run_suite("--meanband-record=main")
+    assert result.ret == 0
+    result.stdout.fnmatch_lines(["meanband: no test recorded trials, so there was nothing to record"])
+    assert not (pytester.path / ".meanband").exists()

@@ -211,6 +211,13 @@ class HistoryPlugin:
         self.recorded = (run_id, label)
         return True
 
+    def pytest_terminal_summary(self, terminalreporter: pytest.TerminalReporter) -> None:
+        # With no rows the meanband hooks never run; say so rather than record nothing silently.
+        if self.record is not None and self.recorded is None and self.record_error is None:
+            terminalreporter.write_line(
+                "meanband: no test recorded trials, so there was nothing to record"
+            )
+
     def pytest_meanband_summary_lines(
         self, config: pytest.Config, rows: list[dict[str, Any]]
     ) -> list[str]:
