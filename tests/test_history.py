@@ -69,6 +69,13 @@ def test_round_trip_keeps_trials_bit_for_bit_and_the_row(store_path: Path) -> No
         assert check.high == 2e-4 and check.low is None  # open ends are stored as NULL
 
 
+def test_row_without_trials_is_stored_with_an_empty_mean(store_path: Path) -> None:
+    row = {"nodeid": "t.py::test_empty", "series": "", "kind": "unchecked", "values": []}
+    with HistoryStore(store_path) as store:
+        (check,) = store.checks(store.record_run([row], environment=ENV))
+    assert check.n == 0 and check.values.size == 0 and np.isnan(check.mean)
+
+
 def test_schema_version_wal_and_no_pickle(store_path: Path) -> None:
     with HistoryStore(store_path) as store:
         store.record_run([make_row("t.py::test_a")], environment=ENV)

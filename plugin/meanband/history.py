@@ -119,7 +119,7 @@ def _schema_1(conn: sqlite3.Connection) -> None:
             unit TEXT,
             source TEXT,
             n INTEGER NOT NULL,
-            mean REAL NOT NULL,
+            mean REAL,
             low REAL,
             high REAL,
             verdict TEXT,
@@ -434,8 +434,8 @@ def _check_columns(row: Mapping[str, Any]) -> tuple[Any, ...]:
     decision = row.get("decision") or {}
     interval = decision.get("interval") or {}
     mean = interval.get("mean")
-    if mean is None:
-        mean = float(np.mean(values)) if values.size else math.nan
+    if mean is None and values.size:
+        mean = float(np.mean(values))
     return (
         str(row.get("nodeid", "")),
         str(row.get("series", "")),
@@ -443,7 +443,7 @@ def _check_columns(row: Mapping[str, Any]) -> tuple[Any, ...]:
         row.get("unit"),
         row.get("source"),
         int(values.size),
-        float(mean),
+        _finite_or_none(mean),
         _finite_or_none(interval.get("low")),
         _finite_or_none(interval.get("high")),
         decision.get("verdict"),
@@ -462,6 +462,7 @@ def _finite_or_none(value: Any) -> float | None:
 
 def _stored_check(r: tuple[Any, ...]) -> StoredCheck:
     row = json.loads(r[11])
+    r = (*r[:7], math.nan if r[7] is None else r[7], *r[8:])
     values = np.frombuffer(r[12], dtype=_TRIAL_DTYPE).astype(np.float64)
     warmup = np.frombuffer(r[13], dtype=_TRIAL_DTYPE).astype(np.float64)
     return StoredCheck(
