@@ -241,3 +241,22 @@ def test_recording_a_run_without_trials_says_so(pytester: pytest.Pytester, run_s
     assert result.ret == 0
     result.stdout.fnmatch_lines(["meanband: no test recorded trials, so there was nothing to record"])
     assert not (pytester.path / ".meanband").exists()
+
+
+def test_changed_unit_is_not_compared(pytester: pytest.Pytester, run_suite) -> None:
+    write_suite(pytester, data(1))
+    run_suite("--meanband-record=main")
+    pytester.makepyfile(test_fares=SUITE.format(**data(1)).replace('unit="V"', 'unit="mV"'))
+    result = run_suite("--meanband-baseline=main")
+    assert result.ret == 0
+    result.stdout.fnmatch_lines([
+        "  test_fares.py::test_rail [[]volts[]]: not compared: the unit changed from V to mV since run 1",
+    ])
+
+
+def test_zero_timings_fall_back_to_fieller_with_a_note(pytester: pytest.Pytester, run_suite) -> None:
+    pytester.makepyfile(test_fares="def test_quote(trials):\n"
+                        "    trials.extend([0.0, 2e-6, 1e-6, 3e-6, 2e-6, 1e-6], unit='s')\n")
+    run_suite("--meanband-record=main")
+    result = run_suite("--meanband-baseline=main")
+    result.stdout.fnmatch_lines(["  test_fares.py::test_quote: some timings are zero or negative*Fieller*"])

@@ -181,6 +181,10 @@ def _compare(args: argparse.Namespace) -> int:
             rows.append([b.nodeid, b.series or "-", _value(a.mean, a.unit),
                          _value(b.mean, b.unit), "-", "-", "in-run comparison, its own gate"])
             continue
+        if a.unit != b.unit:
+            rows.append([b.nodeid, b.series or "-", _value(a.mean, a.unit),
+                         _value(b.mean, b.unit), "-", "-", "not compared: the unit changed"])
+            continue
         try:
             result = compare_samples(
                 b.values, a.values, timing=is_timing(b.unit, b.source),

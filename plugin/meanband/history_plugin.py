@@ -175,6 +175,10 @@ class HistoryPlugin:
         if stored is None:
             return {**about, "status": NO_BASELINE,
                     "reason": f"run {run.id} has no trials for this check"}
+        if stored.unit != row.get("unit"):
+            return {**about, "status": "not compared",
+                    "reason": f"the unit changed from {stored.unit or 'none'} to "
+                              f"{row.get('unit') or 'none'} since run {run.id}"}
         confidence = (row.get("settings") or {}).get("confidence", 0.95)
         try:
             result = compare_samples(
@@ -264,6 +268,8 @@ def baseline_lines(run: Any, rows: list[dict[str, Any]]) -> list[str]:
             format_value(info["current_mean"], unit), format_ratio(info["ratio"]),
             format_limit(info), info["status"],
         ])
+        if info.get("note"):
+            notes.append(f"  {name}: {info['note']}")
         if info["status"] == REGRESSED:
             regressed.append(name)
     if table:

@@ -86,7 +86,7 @@ def compare_samples(
     interval: RatioInterval = ratio_interval(xc, xb, confidence, method)
     low, high = limits.band(timing)
     status = _WORDS[judge_ratio(interval, low, high)]
-    return {
+    result: dict[str, Any] = {
         "status": status,
         "timing": timing,
         "ratio": interval.to_dict(),
@@ -97,6 +97,12 @@ def compare_samples(
         "n_current": interval.n_current,
         "n_baseline": interval.n_baseline,
     }
+    if timing and not positive:
+        result["note"] = (
+            "some timings are zero or negative, so they were compared as a ratio of means "
+            "(Fieller) rather than on the log scale"
+        )
+    return result
 
 
 def format_limit(comparison: dict[str, Any]) -> str:
