@@ -260,3 +260,18 @@ def test_zero_timings_fall_back_to_fieller_with_a_note(pytester: pytest.Pytester
     run_suite("--meanband-record=main")
     result = run_suite("--meanband-baseline=main")
     result.stdout.fnmatch_lines(["  test_fares.py::test_quote: some timings are zero or negative*Fieller*"])
+
+
+def test_cannot_tell_yet_says_how_many_trials_would_decide(
+    pytester: pytest.Pytester, run_suite
+) -> None:
+    write_suite(pytester, data(1))
+    run_suite("--meanband-record=main")
+    write_suite(pytester, data(6, slowdown=1.05))  # right on the limit, 30% noise, 40 trials
+    result = run_suite("--meanband-baseline=main")
+    assert result.ret == 0  # undecided does not fail the session
+    assert baseline_line(result, "test_quote").endswith("cannot tell yet")
+    result.stdout.re_match_lines([
+        r"  test_fares.py::test_quote: cannot tell yet at n=40 \(baseline n=40\); "
+        r"(about \d+ trials in both runs would likely decide it|the ratio sits on the limit.*)",
+    ])

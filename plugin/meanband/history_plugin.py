@@ -239,7 +239,13 @@ class HistoryPlugin:
 
 def baseline_lines(run: Any, rows: list[dict[str, Any]]) -> list[str]:
     """The baseline section of the summary: one line per compared check, then the verdicts."""
-    from meanband.regression import NO_BASELINE, REGRESSED, format_limit, format_ratio
+    from meanband.regression import (
+        CANNOT_TELL,
+        NO_BASELINE,
+        REGRESSED,
+        format_limit,
+        format_ratio,
+    )
     from meanband.summary import row_name
     from meanband.units import format_value
 
@@ -268,6 +274,14 @@ def baseline_lines(run: Any, rows: list[dict[str, Any]]) -> list[str]:
             format_value(info["current_mean"], unit), format_ratio(info["ratio"]),
             format_limit(info), info["status"],
         ])
+        if info["status"] == CANNOT_TELL:
+            more = info.get("suggested_n")
+            notes.append(
+                f"  {name}: cannot tell yet at n={info['n_current']} (baseline "
+                f"n={info['n_baseline']}); "
+                + (f"about {more} trials in both runs would likely decide it" if more else
+                   "the ratio sits on the limit, more trials are unlikely to decide it")
+            )
         if info.get("note"):
             notes.append(f"  {name}: {info['note']}")
         if info["status"] == REGRESSED:

@@ -97,12 +97,43 @@ def compare_samples(
         "n_current": interval.n_current,
         "n_baseline": interval.n_baseline,
     }
+    if status == CANNOT_TELL:
+        result["suggested_n"] = _trials_to_decide(xc, xb, interval, (low, high), confidence)
     if timing and not positive:
         result["note"] = (
             "some timings are zero or negative, so they were compared as a ratio of means "
             "(Fieller) rather than on the log scale"
         )
     return result
+
+
+def _trials_to_decide(
+    xc: np.ndarray, xb: np.ndarray, interval: RatioInterval, band: tuple[float, float],
+    confidence: float,
+) -> int | None:
+    """Trials per run (the same in both) that would likely decide an undecided comparison.
+
+    On the scale the interval is built on (logs for the log method, the ratio itself by the
+    delta method otherwise) the difference of two means of n trials each has the spread of one
+    mean of n trials with sd sqrt(s_c^2 + s_b^2); the count then follows from the noncentral t
+    power of planning.trials_needed.
+    """
+    from meanband.planning import trials_needed
+
+    if not interval.bounded:
+        return None
+    edges = [e for e in band if math.isfinite(e)]
+    if interval.method == "log":
+        sd = math.hypot(float(np.std(np.log(xc), ddof=1)), float(np.std(np.log(xb), ddof=1)))
+        margin = min(abs(math.log(interval.ratio) - math.log(e)) for e in edges)
+    else:
+        cv_c = float(np.std(xc, ddof=1)) / abs(interval.mean_current)
+        cv_b = float(np.std(xb, ddof=1)) / abs(interval.mean_baseline)
+        sd = abs(interval.ratio) * math.hypot(cv_c, cv_b)
+        margin = min(abs(interval.ratio - e) for e in edges)
+    if not (sd > 0 and margin > 0 and math.isfinite(sd)):
+        return None
+    return trials_needed(sd, margin=margin, confidence=confidence, side="two-sided")
 
 
 def format_limit(comparison: dict[str, Any]) -> str:
