@@ -275,3 +275,27 @@ def test_cannot_tell_yet_says_how_many_trials_would_decide(
         r"  test_fares.py::test_quote: cannot tell yet at n=40 \(baseline n=40\); "
         r"(about \d+ trials in both runs would likely decide it|the ratio sits on the limit.*)",
     ])
+
+
+def test_locked_store_fails_clearly_after_the_timeout(pytester: pytest.Pytester, run_suite) -> None:
+    import sqlite3
+
+    write_suite(pytester, data(1))
+    run_suite("--meanband-record=main")
+    store = pytester.path / ".meanband" / "history.sqlite"
+    holder = sqlite3.connect(store, isolation_level=None)
+    holder.execute("BEGIN IMMEDIATE")  # another run is saving and does not finish
+    try:
+        result = run_suite("--meanband-record=second", "--meanband-store-timeout=0.2")
+    finally:
+        holder.execute("ROLLBACK")
+        holder.close()
+    result.assert_outcomes(passed=2)
+    result.stdout.fnmatch_lines([
+        "test_fares.py::test_quote * PASS",
+        "meanband: ERROR: this run was not recorded: the history store * stayed locked by another "
+        "process for 0.2 s*",
+    ])
+    assert result.ret == 1
+    with HistoryStore(store, create=False) as s:
+        assert [r.label for r in s.runs()] == ["main"]
