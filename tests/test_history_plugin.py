@@ -299,3 +299,11 @@ def test_locked_store_fails_clearly_after_the_timeout(pytester: pytest.Pytester,
     assert result.ret == 1
     with HistoryStore(store, create=False) as s:
         assert [r.label for r in s.runs()] == ["main"]
+
+
+def test_label_with_equals_may_match_a_directory_name(pytester: pytest.Pytester, run_suite) -> None:
+    write_suite(pytester, data(1))
+    (pytester.path / "main").mkdir()
+    result = run_suite("--meanband-record=main")
+    assert result.ret == 0
+    result.stdout.fnmatch_lines(["meanband: recorded run 1 'main' in *"])

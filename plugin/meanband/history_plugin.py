@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import itertools
 import math
 import os
 from pathlib import Path
@@ -61,8 +62,12 @@ def pytest_configure(config: pytest.Config) -> None:
     from meanband.ratio import parse_fraction
     from meanband.regression import DEFAULT_MAX_CHANGE, DEFAULT_MAX_INCREASE, Limits
 
+    args = [str(a) for a in config.invocation_params.args]
     for option, value in (("--meanband-record", record), ("--meanband-baseline", baseline)):
-        if value and os.path.exists(value):
+        # "--meanband-record tests/" takes the path as the label; "--meanband-record=main" is
+        # what was meant even when a directory called main exists.
+        separate = any(a == option and b == value for a, b in itertools.pairwise(args))
+        if value and separate and os.path.exists(value):
             raise pytest.UsageError(
                 f"{option} took {value!r} as its label, but that is a path; write the label "
                 f"with '=' ({option}=LABEL) or put the option after the paths"
