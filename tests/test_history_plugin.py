@@ -307,3 +307,13 @@ def test_label_with_equals_may_match_a_directory_name(pytester: pytest.Pytester,
     result = run_suite("--meanband-record=main")
     assert result.ret == 0
     result.stdout.fnmatch_lines(["meanband: recorded run 1 'main' in *"])
+
+
+def test_interrupted_session_is_not_recorded(pytester: pytest.Pytester, run_suite) -> None:
+    pytester.makepyfile(test_fares="def test_a(trials):\n    trials.extend([1.0, 1.1, 0.9])\n\n"
+                        "import pytest\n\ndef test_b():\n    pytest.exit('bench power lost')\n")
+    result = run_suite("--meanband-record=main")
+    assert result.ret == pytest.ExitCode.INTERRUPTED
+    result.stdout.fnmatch_lines(["*meanband: the session ended early (exit status 2), so this run "
+                                 "was not recorded"])
+    assert not (pytester.path / ".meanband").exists()

@@ -151,6 +151,7 @@ class HistoryPlugin:
         self.session: pytest.Session | None = None
         self.recorded: tuple[int, str] | None = None
         self.record_error: str | None = None
+        self.record_skipped: str | None = None
 
     def load_baseline(self, ref: str) -> None:
         from meanband.history import HistoryStore
@@ -201,8 +202,16 @@ class HistoryPlugin:
         from meanband.regression import REGRESSED
 
         failed = any((r.get("baseline") or {}).get("status") == REGRESSED for r in rows)
+        status = self.session.exitstatus if self.session is not None else pytest.ExitCode.OK
         if self.record is not None:
-            failed |= not self._record(rows)
+            if status in (pytest.ExitCode.OK, pytest.ExitCode.TESTS_FAILED):
+                failed |= not self._record(rows)
+            else:
+                # An interrupted run holds only some checks: a poor baseline for later runs.
+                self.record_skipped = (
+                    f"the session ended early (exit status {int(status)}), so this run was not "
+                    "recorded"
+                )
         if failed and self.session is not None and self.session.exitstatus == pytest.ExitCode.OK:
             self.session.exitstatus = pytest.ExitCode.TESTS_FAILED
 
@@ -222,7 +231,7 @@ class HistoryPlugin:
 
     def pytest_terminal_summary(self, terminalreporter: pytest.TerminalReporter) -> None:
         # With no rows the meanband hooks never run; say so rather than record nothing silently.
-        if self.record is not None and self.recorded is None and self.record_error is None:
+        if self.record is not None and not (self.recorded or self.record_error or self.record_skipped):
             terminalreporter.write_line(
                 "meanband: no test recorded trials, so there was nothing to record"
             )
@@ -237,6 +246,8 @@ class HistoryPlugin:
             run_id, label = self.recorded
             named = f" '{label}'" if label else ""
             lines += ["", f"meanband: recorded run {run_id}{named} in {self.store}"]
+        if self.record_skipped is not None:
+            lines += ["", f"meanband: {self.record_skipped}"]
         if self.record_error is not None:
             lines += ["", f"meanband: ERROR: this run was not recorded: {self.record_error}"]
         return lines
