@@ -7,6 +7,8 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from meanband import TrialError, Verdict
 from meanband.ratio import (
     judge_ratio,
@@ -245,3 +247,35 @@ def test_parse_fraction(text: str | float, value: float) -> None:
 def test_parse_fraction_refuses_bad_text(text: str) -> None:
     with pytest.raises(TrialError, match="max_increase"):
         parse_fraction(text, "max_increase")
+
+
+# -- properties ------------------------------------------------------------------------------------
+
+positive_samples = st.lists(st.floats(1e-3, 1e3), min_size=3, max_size=30).filter(
+    lambda xs: max(xs) / min(xs) > 1.0001
+)
+
+
+@settings(max_examples=60, deadline=None)
+@given(positive_samples, positive_samples, st.floats(1e-6, 1e6))
+def test_log_ratio_is_unit_free_and_inverts(a: list[float], b: list[float], scale: float) -> None:
+    forward = ratio_interval(a, b)
+    # Same answer in any unit (seconds or microseconds): the log method only sees ratios.
+    scaled = ratio_interval(np.array(a) * scale, np.array(b) * scale)
+    assert (scaled.low, scaled.high) == pytest.approx((forward.low, forward.high), rel=1e-9)
+    # Swapping the samples inverts the interval exactly.
+    backward = ratio_interval(b, a)
+    assert (backward.low, backward.high) == pytest.approx((1 / forward.high, 1 / forward.low),
+                                                          rel=1e-9)
+    assert forward.low <= forward.ratio <= forward.high
+
+
+@settings(max_examples=60, deadline=None)
+@given(positive_samples, positive_samples, st.floats(1e-6, 1e6))
+def test_fieller_is_unit_free(a: list[float], b: list[float], scale: float) -> None:
+    forward = ratio_interval(a, b, method="fieller")
+    scaled = ratio_interval(np.array(a) * scale, np.array(b) * scale, method="fieller")
+    assert scaled.bounded == forward.bounded
+    if forward.bounded:
+        assert (scaled.low, scaled.high) == pytest.approx((forward.low, forward.high), rel=1e-7)
+        assert forward.low <= forward.ratio <= forward.high
