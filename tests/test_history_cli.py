@@ -70,6 +70,7 @@ def test_show_lists_each_check(store: Path, capsys: pytest.CaptureFixture[str]) 
     code, out, _ = run(capsys, "history", "show", "main", "--store", str(store))
     assert code == 0
     assert "run 1 'main'" in out and "uncommitted changes" in out
+    assert "machine x86_64, 2 CPUs, Linux, meanband 0.1.0" in out
     assert "test_fares.py::test_quote" in out and "µs" in out and "PASS" in out
     assert re.search(r"^test_bench.py::test_rail +volts +25 +5.0\d* V .* unchecked$", out, re.M)
 

@@ -132,6 +132,8 @@ def _show(args: argparse.Namespace) -> int:
         run = store.find_run(args.run)
         checks = store.checks(run.id)
     print(_run_heading(run))
+    cpus = f", {run.cpus} CPUs" if run.cpus else ""
+    print(f"machine {run.machine}{cpus}, {run.system}, meanband {run.meanband}")
     if not checks:
         print("(no checks recorded)")
         return 0
