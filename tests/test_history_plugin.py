@@ -317,3 +317,25 @@ def test_interrupted_session_is_not_recorded(pytester: pytest.Pytester, run_suit
     result.stdout.fnmatch_lines(["*meanband: the session ended early (exit status 2), so this run "
                                  "was not recorded"])
     assert not (pytester.path / ".meanband").exists()
+
+
+def test_baseline_from_another_machine_gets_a_warning(pytester: pytest.Pytester, run_suite) -> None:
+    import sqlite3
+
+    write_suite(pytester, data(1))
+    run_suite("--meanband-record=main")
+    store = pytester.path / ".meanband" / "history.sqlite"
+    conn = sqlite3.connect(store)  # pretend it was recorded on a CI runner
+    try:
+        conn.execute("UPDATE runs SET host = 'ci-runner-3', cpus = 64")
+        conn.commit()
+    finally:
+        conn.close()
+    result = run_suite("--meanband-baseline=main")
+    result.stdout.fnmatch_lines(["note: the baseline ran on ci-runner-3 (*, 64 CPUs, *), this run "
+                                 "on *; timing ratios compare the machines as well as the code"])
+    write_suite(pytester, data(1))
+    same = run_suite("--meanband-record=again", "--meanband-baseline=main")
+    assert "timing ratios compare the machines" in same.stdout.str()
+    again = run_suite("--meanband-baseline=again")
+    assert "timing ratios compare the machines" not in again.stdout.str()

@@ -152,6 +152,7 @@ class HistoryPlugin:
         self.recorded: tuple[int, str] | None = None
         self.record_error: str | None = None
         self.record_skipped: str | None = None
+        self._environment: dict[str, Any] | None = None
 
     def load_baseline(self, ref: str) -> None:
         from meanband.history import HistoryStore
@@ -159,6 +160,14 @@ class HistoryPlugin:
         with HistoryStore(self.store, create=False, timeout=self.timeout) as store:
             self.baseline_run = store.find_run(ref)
             self.baseline_checks = {c.key: c for c in store.checks(self.baseline_run.id)}
+
+    def environment(self) -> dict[str, Any]:
+        """This run's commit, machine and Python, looked up once."""
+        if self._environment is None:
+            from meanband.history import describe_environment
+
+            self._environment = describe_environment(self.config.rootpath)
+        return self._environment
 
     def pytest_sessionstart(self, session: pytest.Session) -> None:
         self.session = session
@@ -216,9 +225,9 @@ class HistoryPlugin:
             self.session.exitstatus = pytest.ExitCode.TESTS_FAILED
 
     def _record(self, rows: list[dict[str, Any]]) -> bool:
-        from meanband.history import HistoryStore, StoreError, describe_environment
+        from meanband.history import HistoryStore, StoreError
 
-        environment = describe_environment(self.config.rootpath)
+        environment = self.environment()
         label = self.record or environment.get("branch") or ""
         try:
             with HistoryStore(self.store, timeout=self.timeout) as store:
@@ -242,6 +251,9 @@ class HistoryPlugin:
         lines: list[str] = []
         if self.baseline_run is not None:
             lines += baseline_lines(self.baseline_run, rows)
+            elsewhere = machine_difference(self.baseline_run, self.environment())
+            if elsewhere:
+                lines.append(f"note: {elsewhere}")
         if self.recorded is not None:
             run_id, label = self.recorded
             named = f" '{label}'" if label else ""
@@ -315,3 +327,18 @@ def baseline_lines(run: Any, rows: list[dict[str, Any]]) -> list[str]:
                   f"allowed change from run {run.id}{label}; the session fails:"]
         lines += [f"  {name}" for name in regressed]
     return lines
+
+
+def machine_difference(run: Any, environment: dict[str, Any]) -> str | None:
+    """A warning when the baseline ran on another machine or Python: timing ratios then compare
+    the machines as well as the code."""
+    then = (run.host, run.machine, run.cpus, run.python)
+    now = (environment.get("host"), environment.get("machine"), environment.get("cpus"),
+           environment.get("python"))
+    if then == now:
+        return None
+    return (
+        f"the baseline ran on {run.host} ({run.machine}, {run.cpus} CPUs, {run.python}), this "
+        f"run on {now[0]} ({now[1]}, {now[2]} CPUs, {now[3]}); timing ratios compare the "
+        "machines as well as the code"
+    )
