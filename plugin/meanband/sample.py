@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from collections.abc import Iterable
+from collections.abc import Iterable, Sequence
 
 import numpy as np
 
@@ -16,6 +16,10 @@ _MAX_LISTED_POSITIONS = 8
 
 def as_sample(values: Iterable[float] | np.ndarray, *, minimum: int = 2) -> np.ndarray:
     """Return ``values`` as a 1-D float64 array, refusing NaN, infinities and too few values."""
+    if isinstance(values, Iterable) and not (
+        isinstance(values, Sequence) or hasattr(values, "__array__")
+    ):
+        values = list(values)  # generators, map objects, dict views: numpy cannot read them
     try:
         x = np.asarray(values, dtype=np.float64)
     except (TypeError, ValueError) as exc:
