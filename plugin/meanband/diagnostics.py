@@ -9,6 +9,7 @@ from typing import Any
 
 import numpy as np
 
+from meanband.errors import TrialError
 from meanband.sample import as_sample, location_scale
 
 __all__ = ["SHAPIRO_MAX_N", "Diagnostics", "NormalityTest", "diagnose", "lag1_autocorrelation"]
@@ -74,6 +75,8 @@ def diagnose(values: Iterable[float] | np.ndarray, *, alpha: float = 0.05) -> Di
       (Bayley & Hammersley 1946) and is capped at n, so a negative r never inflates it;
     - skewness: the adjusted Fisher-Pearson coefficient G1 (Joanes & Gill 1998).
     """
+    if not 0.0 < alpha < 1.0:
+        raise TrialError(f"alpha must lie strictly between 0 and 1, got {alpha!r}")
     x = as_sample(values, minimum=1)
     n = x.size
     mean, sd = location_scale(x) if n > 1 else (float(x[0]), math.nan)
