@@ -9,7 +9,7 @@ import warnings
 import numpy as np
 import pytest
 from meanband import Diagnostics, NormalityTest, TrialError, diagnose
-from meanband.diagnostics import SHAPIRO_MAX_N, lag1_autocorrelation
+from meanband.diagnostics import SHAPIRO_MAX_N, dagostino_pearson, lag1_autocorrelation
 from reference_data import DATA, STRD_NAMES, STRD_RTOL, load_values, strd_certified
 
 
@@ -123,6 +123,62 @@ class TestAgainstScipy:
         assert d.normality.method == "D'Agostino-Pearson K2"
         assert d.normality.statistic == pytest.approx(float(ref.statistic), rel=1e-9)
         assert d.normality.pvalue == pytest.approx(float(ref.pvalue), rel=1e-7, abs=1e-300)
+
+    @pytest.mark.parametrize("n", [20, 50, 400, 3000])
+    @pytest.mark.parametrize("shape", [0.5, 3.0, 100.0])
+    def test_k2_from_moments_matches_scipy(self, n: int, shape: float) -> None:
+        from scipy.stats import normaltest
+
+        x = np.random.default_rng(n).gamma(shape, size=n)
+        dev = x - x.mean()
+        moments = [float(np.mean(dev**k)) for k in (2, 3, 4)]
+        statistic, pvalue = dagostino_pearson(n, *moments)
+        # scipy.stats.normaltest on the same values.
+        ref = normaltest(x)
+        assert statistic == pytest.approx(float(ref.statistic), rel=1e-9)
+        assert pvalue == pytest.approx(float(ref.pvalue), rel=1e-7, abs=1e-300)
+
+    def test_k2_of_a_symmetric_sample_has_no_skewness_part(self) -> None:
+        from scipy.stats import kurtosistest
+
+        x = np.concatenate([-np.arange(1.0, 51.0), np.arange(1.0, 51.0)])  # skewness exactly 0
+        dev = x - x.mean()
+        statistic, _ = dagostino_pearson(x.size, *(float(np.mean(dev**k)) for k in (2, 3, 4)))
+        # With b1 = 0, K^2 is the square of the kurtosis test's Z (scipy.stats.kurtosistest).
+        assert statistic == pytest.approx(float(kurtosistest(x).statistic) ** 2, rel=1e-9)
+
+    def test_k2_needs_eight_values(self) -> None:
+        with pytest.raises(TrialError, match="at least 8 values, got 7"):
+            dagostino_pearson(7, 1.0, 0.0, 3.0)
+
+    def test_k2_is_scale_free(self) -> None:
+        base = dagostino_pearson(500, 2.0, 0.7, 13.0)
+        scaled = dagostino_pearson(500, 2.0 * 9, 0.7 * 27, 13.0 * 81)
+        assert scaled == pytest.approx(base, rel=1e-12)
+
+    def test_large_sample_statistics_hold_beyond_one_block(self) -> None:
+        from scipy.stats import skew
+
+        # 200,000 trials: more than one block of the summation; references computed plainly.
+        x = 1e4 + np.cumsum(np.random.default_rng(14).normal(size=200_000)) * 1e-3
+        d = diagnose(x)
+        dev = x - math.fsum(x.tolist()) / x.size
+        expected = math.fsum((dev[:-1] * dev[1:]).tolist()) / math.fsum((dev * dev).tolist())
+        assert d.lag1 == pytest.approx(expected, rel=1e-12)
+        assert d.sd == pytest.approx(float(np.std(x, ddof=1)), rel=1e-10)  # numpy.std(ddof=1)
+        assert d.skewness == pytest.approx(float(skew(x, bias=False)), rel=1e-8)  # scipy.stats.skew
+
+    @pytest.mark.parametrize("scale", [1e-120, 1e-9, 1e110])
+    def test_extreme_scales_keep_skewness_and_lag1(self, scale: float) -> None:
+        from scipy.stats import skew
+
+        x = np.array([1.0, 3.0, 2.0, 7.0, 4.0, 4.5]) * scale
+        d = diagnose(x)
+        unit = diagnose(x / scale)
+        assert d.lag1 == pytest.approx(unit.lag1, rel=1e-12)
+        assert d.skewness == pytest.approx(unit.skewness, rel=1e-12)
+        assert d.normality.statistic == pytest.approx(unit.normality.statistic, rel=1e-12)
+        assert unit.skewness == pytest.approx(float(skew(x / scale, bias=False)), rel=1e-12)
 
     def test_normality_switches_method_above_the_shapiro_limit(self) -> None:
         x = np.random.default_rng(3).normal(size=SHAPIRO_MAX_N + 1)

@@ -11,7 +11,13 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from meanband import TrialError
-from meanband.sample import as_sample, check_confidence, location_scale
+from meanband.sample import (
+    as_sample,
+    check_confidence,
+    deviations,
+    location_scale,
+    sum_of_products,
+)
 from reference_data import STRD_NAMES, STRD_RTOL, load_strd_dat, load_values, strd_certified
 
 
@@ -152,6 +158,39 @@ class TestLocationScale:
         shifted_mean, shifted_sd = location_scale(x + offset)
         assert shifted_mean == pytest.approx(mean + offset, rel=1e-15, abs=1e-12)
         assert shifted_sd == pytest.approx(sd, rel=1e-9, abs=1e-12)
+
+
+class TestDeviations:
+    def test_deviations_are_centred_and_consistent(self) -> None:
+        x = 1e7 + np.random.default_rng(21).normal(0.0, 0.1, 5000)
+        mean, sd, dev = deviations(x)
+        assert (mean, sd) == location_scale(x)
+        assert abs(float(np.sum(dev))) < 1e-12 * x.size * sd
+        # math.fsum: correctly rounded reference sum.
+        assert math.sqrt(math.fsum(dev * dev) / (x.size - 1)) == pytest.approx(sd, rel=1e-14)
+
+    def test_input_is_not_modified(self) -> None:
+        x = np.array([3.0, 1.0, 2.0])
+        deviations(x)
+        assert x.tolist() == [3.0, 1.0, 2.0]
+
+
+class TestSumOfProducts:
+    @pytest.mark.parametrize("n", [1, 2, 7, 1000, 32768, 32769, 100_003])
+    def test_matches_a_correctly_rounded_sum(self, n: int) -> None:
+        rng = np.random.default_rng(n)
+        a, b = rng.normal(size=n), rng.normal(size=n)
+        # math.fsum of the exact products' doubles: the reference (Shewchuk 1997).
+        expected = math.fsum((a * b).tolist())
+        scale = math.fsum(np.abs(a * b).tolist())
+        assert sum_of_products(a, b) == pytest.approx(expected, rel=0, abs=1e-15 * scale + 1e-300)
+
+    def test_views_and_lags(self) -> None:
+        x = np.arange(100_000, dtype=np.float64) % 7 - 3.0
+        assert sum_of_products(x[:-1], x[1:]) == math.fsum((x[:-1] * x[1:]).tolist())
+
+    def test_empty(self) -> None:
+        assert sum_of_products(np.array([]), np.array([])) == 0.0
 
 
 def test_importing_the_package_loads_neither_pytest_nor_scipy() -> None:
