@@ -48,10 +48,15 @@ def test_fail_raises_an_assertion_error_with_the_decision() -> None:
     assert error.decision.verdict is Verdict.FAIL
     message = str(error)
     assert message.startswith("meanband FAIL: the mean is confidently outside the band")
+    iv = error.decision.interval
     assert re.search(r"^  n +12$", message, re.M)
-    assert re.search(r"^  mean +85\.01$", message, re.M)
-    assert re.search(r"^  interval +\[-inf, 85\.0\d\] \(0\.95 upper bound, t\)$", message, re.M)
-    assert re.search(r"^  band +<= 84\.00$", message, re.M)
+    shown_mean = re.search(r"^  mean +([-\d.]+)$", message, re.M)
+    assert shown_mean is not None
+    assert float(shown_mean.group(1)) == pytest.approx(iv.mean, rel=1e-5)
+    shown_bound = re.search(r"^  interval +\[-inf, ([-\d.]+)\] \(95% upper bound, t", message, re.M)
+    assert shown_bound is not None
+    assert float(shown_bound.group(1)) == pytest.approx(iv.high, rel=1e-5)
+    assert re.search(r"^  band +<= 84(\.0*)?$", message, re.M)
     assert re.search(r"^  verdict +FAIL$", message, re.M)
     assert "normality  Shapiro-Wilk" in message
     assert "lag-1 r" in message
@@ -86,8 +91,8 @@ def test_timings_are_shown_in_a_readable_unit() -> None:
     with pytest.raises(BandViolation) as info:
         assert_mean_within(latency, high="2ms", unit="s")
     message = str(info.value)
-    assert re.search(r"^  mean +2\.200 ms$", message, re.M)
-    assert re.search(r"^  band +<= 2\.000 ms$", message, re.M)
+    assert re.search(r"^  mean +2\.20* ms$", message, re.M)
+    assert re.search(r"^  band +<= 2(\.0*)? ms$", message, re.M)
 
 
 def test_notes_on_assumptions() -> None:
