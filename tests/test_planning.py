@@ -80,13 +80,13 @@ class TestHalfWidthAgainstBruteForce:
     def _scan(sd: float, half_width: float, level: float, side: str) -> int:
         from scipy.stats import t
 
-        # Brute force: the first n whose interval half-width t(n-1) sd / sqrt(n) is small enough
-        # (scipy.stats.t.ppf for the quantile).
+        # Brute force: every n from 2 to 100,000, and the first whose interval half-width
+        # t(n-1) sd / sqrt(n) is small enough (scipy.stats.t.ppf for the quantile).
         q = (1.0 + level) / 2.0 if side == "two-sided" else level
-        n = 2
-        while t.ppf(q, n - 1) * sd / math.sqrt(n) > half_width:
-            n += 1
-        return n
+        n = np.arange(2, 100_001)
+        small_enough = np.flatnonzero(t.ppf(q, n - 1) * sd / np.sqrt(n) <= half_width)
+        assert small_enough.size > 0
+        return int(n[small_enough[0]])
 
     @pytest.mark.parametrize("side", ["two-sided", "upper", "lower"])
     @pytest.mark.parametrize("ratio", [0.05, 0.1, 0.25, 0.5, 1.0, 3.0])
