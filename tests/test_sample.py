@@ -193,14 +193,27 @@ class TestSumOfProducts:
         assert sum_of_products(np.array([]), np.array([])) == 0.0
 
 
-def test_importing_the_package_loads_neither_pytest_nor_scipy() -> None:
-    # DESIGN.md architecture: scipy is imported lazily and the core never imports pytest.
-    code = (
-        "import sys, meanband; "
-        "loaded = sorted(m for m in ('pytest', '_pytest', 'scipy') if m in sys.modules); "
-        "print(','.join(loaded))"
+def _modules_loaded_after(code: str) -> list[str]:
+    probe = (
+        f"import sys; {code}; "
+        "print(','.join(m for m in ('pytest', '_pytest', 'scipy', 'numpy') if m in sys.modules))"
     )
     result = subprocess.run(
-        [sys.executable, "-c", code], capture_output=True, text=True, check=True, timeout=60
+        [sys.executable, "-c", probe], capture_output=True, text=True, check=True, timeout=60
     )
-    assert result.stdout.strip() == ""
+    return [m for m in result.stdout.strip().split(",") if m]
+
+
+def test_importing_the_package_loads_neither_pytest_nor_scipy() -> None:
+    # DESIGN.md architecture: scipy is imported lazily and the core never imports pytest.
+    assert _modules_loaded_after("import meanband") == []
+
+
+def test_using_the_core_does_not_load_pytest() -> None:
+    loaded = _modules_loaded_after(
+        "import meanband; meanband.mean_interval([1.0, 2.0, 4.0]); meanband.diagnose([3.0, 1.0, 2.0]); "
+        "meanband.decide([1.0, 2.0, 4.0], meanband.make_band(high=9.0))"
+    )
+    assert "scipy" in loaded  # the statistics did run
+    assert "pytest" not in loaded
+    assert "_pytest" not in loaded
