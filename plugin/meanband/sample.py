@@ -69,8 +69,8 @@ def deviations(x: np.ndarray) -> tuple[float, float, np.ndarray]:
     The data are shifted by their first value before summing: values close to one another
     subtract exactly (Sterbenz's lemma), so the deviations that remain are small and the
     two-pass sum of squares keeps its digits (NIST StRD NumAcc3/NumAcc4 exist to catch this).
-    One new array holds the deviations; it is updated in place, so a million trials cost one
-    allocation, not three.
+    One new array holds the deviations and is updated in place; callers may reuse it (diagnose
+    standardises it in place), since it is theirs alone.
     """
     shift = x[0]
     d = x - shift
