@@ -372,7 +372,12 @@ def test_interval_contains_the_mean(values: list[float], level: float) -> None:
     for side in ("upper", "lower"):
         iv = mean_interval(values, level, side)
         assert iv.low <= iv.high
-        assert iv.contains(iv.mean) == (level >= 0.5 or iv.sd == 0)
+        if level >= 0.5:
+            assert iv.contains(iv.mean)
+        elif side == "upper":
+            assert iv.high <= iv.mean
+        else:
+            assert iv.low >= iv.mean
 
 
 @settings(max_examples=100, deadline=None)
@@ -387,7 +392,9 @@ def test_interval_widens_with_confidence(values: list[float], a: float, b: float
         assert wide.low <= narrow.low
         assert wide.high >= narrow.high
         if narrow.sd > 0:
-            assert wide.half_width() > narrow.half_width()
+            # Compared as critical * sem: next to a large mean, the bounds themselves may round
+            # to the same double.
+            assert wide.critical * wide.sem > narrow.critical * narrow.sem
 
 
 @settings(max_examples=100, deadline=None)
@@ -433,8 +440,8 @@ def test_one_sided_bound_is_tighter_than_the_two_sided_edge(
     assert upper.high <= two.high
     assert lower.low >= two.low
     if two.sd > 0:
-        assert upper.high < two.high
-        assert lower.low > two.low
+        assert upper.critical * upper.sem < two.critical * two.sem
+        assert lower.critical * lower.sem < two.critical * two.sem
 
 
 def test_coverage_with_few_trials_needs_t_not_z() -> None:
