@@ -22,7 +22,6 @@ import time
 from pathlib import Path
 
 import numpy as np
-
 from meanband import report_json
 from meanband.bands import decide, make_band
 from meanband.explain import assumption_notes

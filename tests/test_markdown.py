@@ -31,8 +31,8 @@ def test_one_table_row_per_result_under_a_headline():
     assert [c[2] for c in body] == ["PASS", "**UNDECIDED**", "PASS", "**FAIL**", "PASS", "no check"]
     assert body[2][:2] == ["`tests/test_chamber.py::test_probe_mean`", "probe-a"]
     assert body[2][3] == "25"
-    assert body[2][6] == "[84.60 degC, 85.40 degC]"
-    assert body[0][6] == "<= 2.000 ms"
+    assert body[2][6] == "[84.6 degC, 85.4 degC]"
+    assert body[0][6] == "<= 2 ms"
     assert body[0][5].endswith("(95% upper bound)") and body[0][5].startswith("≤ ")
 
 

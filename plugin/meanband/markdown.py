@@ -8,10 +8,9 @@ from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
-from meanband.bands import Band
-from meanband.explain import format_band
 from meanband.report_json import ReportError, totals
-from meanband.units import SECONDS, format_value, time_scale
+from meanband.summary import format_band
+from meanband.units import SECONDS, format_value, significant_digits, time_scale
 
 __all__ = ["DEFAULT_SUMMARY_VARIABLE", "append_job_summary", "format_markdown", "write_markdown"]
 
@@ -32,23 +31,26 @@ def _code(text: str) -> str:
     return f"{fence}{pad}{_cell(text)}{pad}{fence}"
 
 
-def _number(value: float, unit: str | None, scale: float | None) -> str:
+def _number(value: float, unit: str | None, digits: int, scale: float | None) -> str:
     if not math.isfinite(value):
         return "nan" if math.isnan(value) else ("-inf" if value < 0 else "inf")
-    return format_value(value, unit, scale=scale)
+    return format_value(value, unit, digits, scale=scale)
 
 
-def _interval_text(interval: Mapping[str, Any], unit: str | None, scale: float | None) -> str:
+def _interval_text(
+    interval: Mapping[str, Any], unit: str | None, digits: int, scale: float | None
+) -> str:
     side = interval["side"]
-    level = f"{interval['confidence'] * 100:.4g}%"
+    level = f"{interval['confidence'] * 100:g}%"
     if side == "upper":
-        bound = f"≤ {_number(interval['high'], unit, scale)}"
+        bound = f"≤ {_number(interval['high'], unit, digits, scale)}"
     elif side == "lower":
-        bound = f"≥ {_number(interval['low'], unit, scale)}"
+        bound = f"≥ {_number(interval['low'], unit, digits, scale)}"
     else:
-        bound = (f"[{_number(interval['low'], unit, scale)}, "
-                 f"{_number(interval['high'], unit, scale)}]")
-    return f"{bound} ({level} {_SIDE_WORDS.get(side, side)})"
+        bound = (f"[{_number(interval['low'], unit, digits, scale)}, "
+                 f"{_number(interval['high'], unit, digits, scale)}]")
+    method = interval.get("method", "t")
+    return f"{bound} ({level} {_SIDE_WORDS.get(side, side)}{'' if method == 't' else ', ' + method})"
 
 
 def _row_notes(row: Mapping[str, Any]) -> list[str]:
@@ -63,26 +65,27 @@ def _row_notes(row: Mapping[str, Any]) -> list[str]:
 
 
 def _row_cells(row: Mapping[str, Any]) -> list[str]:
+    """Verdict, n, mean, interval and band, with the digits and units of the terminal summary."""
     unit = row.get("unit")
     decision = row.get("decision")
     if decision is None:
         values = row.get("values")
-        if values:
-            mean = math.fsum(values) / len(values)
-            scale = time_scale(mean) if unit == SECONDS else None
-            return ["no check", str(len(values)), _number(mean, unit, scale), "", ""]
-        return ["no check", "", "", "", ""]
+        if values is None:
+            return ["no check", "", "", "", ""]
+        mean = math.fsum(values) / len(values) if values else math.nan
+        return ["no check", str(len(values)), _number(mean, unit, 4, None), "", ""]
     interval = decision["interval"]
-    scale = time_scale(interval["mean"]) if unit == SECONDS else None
+    mean = interval["mean"]
+    scale = time_scale(mean) if unit == SECONDS else None
+    digits = significant_digits(mean, interval["sem"])
     band = decision["band"]
-    band_text = format_band(Band(band["low"], band["high"], band["unit"]), scale)
     verdict = decision["verdict"]
     return [
         verdict if verdict == "PASS" else f"**{verdict}**",
         str(interval["n"]),
-        _number(interval["mean"], unit, scale),
-        _interval_text(interval, unit, scale),
-        band_text,
+        _number(mean, unit, digits, scale),
+        _interval_text(interval, unit, digits, scale),
+        format_band(band["low"], band["high"], unit, digits),
     ]
 
 

@@ -27,7 +27,7 @@ def register(subparsers: Any) -> None:
     merge.add_argument("--pool", action="store_true",
                        help="pool the trials of a check found in several reports and decide it "
                        "afresh from all of them (for repeated runs of the same tests)")
-    merge.set_defaults(func=run_merge)
+    merge.set_defaults(handler=run_merge)
 
     report = subparsers.add_parser(
         "report",
@@ -50,7 +50,7 @@ def register(subparsers: Any) -> None:
     report.add_argument("--plots", metavar="DIR", help="draw the plots into DIR")
     report.add_argument("--plot-format", metavar="FORMATS", default=("png",), type=_formats,
                         help="png (default), svg, or png,svg")
-    report.set_defaults(func=run_report)
+    report.set_defaults(handler=run_report)
 
 
 def _formats(text: str) -> tuple[str, ...]:

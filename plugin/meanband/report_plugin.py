@@ -163,6 +163,7 @@ class ReportWriter:
     def __init__(self, config: pytest.Config, settings: ReportSettings) -> None:
         self.config = config
         self.settings = settings
+        self.finished = False
 
     def _say(self, text: str, **markup: bool) -> None:
         reporter = self.config.pluginmanager.get_plugin("terminalreporter")
@@ -172,6 +173,7 @@ class ReportWriter:
     def pytest_meanband_session_finish(self, config: pytest.Config, rows: list[dict]) -> None:
         if hasattr(config, "workerinput"):
             return
+        self.finished = True
         from meanband.report_json import ReportError
 
         s = self.settings
@@ -188,6 +190,12 @@ class ReportWriter:
             except (ReportError, OSError) as exc:
                 # Every other file is still written; the failure is shown, never swallowed.
                 self._say(f"meanband: could not write the {what}: {exc}", red=True, bold=True)
+
+    @pytest.hookimpl(trylast=True)
+    def pytest_sessionfinish(self, session: pytest.Session) -> None:
+        # A shard that ran no checks still leaves its (empty) report, so a merge finds every file.
+        if not self.finished:
+            self.pytest_meanband_session_finish(self.config, [])
 
     def _write_report(self, rows: list[dict]) -> None:
         from meanband import report_json
