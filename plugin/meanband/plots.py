@@ -13,7 +13,7 @@ from pathlib import Path
 from typing import Any
 
 from meanband.report_json import ReportError
-from meanband.units import SECONDS, time_scale
+from meanband.units import SECONDS, format_number, time_scale
 
 __all__ = [
     "FORMATS",
@@ -166,6 +166,19 @@ def _save(figure: Any, stem: Path, formats: Sequence[str], dpi: int) -> list[Pat
     return paths
 
 
+def _short_labels(rows: Sequence[Mapping[str, Any]], width: int = 48) -> list[str]:
+    """Test names without their file where that leaves them unambiguous."""
+    short = []
+    for row in rows:
+        text = row["nodeid"].split("::", 1)[-1]
+        if row["series"]:
+            text += f" [{row['series']}]"
+        short.append(text if len(text) <= width else text[:width - 1] + "…")
+    if len(set(short)) < len(short):
+        return [_label(row, width) for row in rows]
+    return short
+
+
 def _label(row: Mapping[str, Any], width: int = 56) -> str:
     text = row["nodeid"].rsplit("/", 1)[-1]
     if row["series"]:
@@ -227,16 +240,20 @@ def _draw_intervals(rows: Sequence[Mapping[str, Any]], title: str) -> Any:
         mean = min(max(pos.mean, left), right)
         ax.plot([mean], [yi], linestyle="none", markersize=8, zorder=4,
                 markeredgecolor="black", markeredgewidth=0.6, **style)
+        if mean != pos.mean:  # off the chart: say where it is
+            ax.annotate(f"mean at {format_number(pos.mean, 3)}", xy=(mean, yi),
+                        xytext=(-6 if mean == right else 6, 7), textcoords="offset points",
+                        ha="right" if mean == right else "left", fontsize=7,
+                        color=style["color"])
         ax.annotate(verdict, xy=(1.01, yi), xycoords=("axes fraction", "data"), va="center",
                     fontsize=8, color=style["color"], fontweight="bold")
     ax.axvline(0.0, color="#555555", linewidth=0.8, linestyle="--", zorder=1)
     ax.axvline(1.0, color="#555555", linewidth=0.8, linestyle="--", zorder=1)
     ax.set_xlim(left, right)
     ax.set_ylim(-0.7, len(rows) - 0.3)
-    ax.set_yticks(y, [_label(row) for row in rows], fontsize=8)
-    ax.set_xlabel("position in the band: 0 = low edge, 1 = high edge "
-                  "(budget: fraction of the budget; lower limit: multiples of it from the edge)",
-                  fontsize=8)
+    ax.set_yticks(y, _short_labels(rows), fontsize=8)
+    ax.set_xlabel("position in the band: 0 = low edge, 1 = high edge; a budget's edge is at 1, "
+                  "zero at 0", fontsize=8)
     ax.set_title(title, fontsize=10)
     from matplotlib.lines import Line2D
     from matplotlib.patches import Patch
@@ -261,6 +278,42 @@ def _scaled(row: Mapping[str, Any], values: Any) -> tuple[float, str]:
 
 def _axis_label(unit: str) -> str:
     return f"value ({unit})" if unit else "value"
+
+
+def _band_edges(ax: Any, band: Mapping[str, Any], factor: float, unit: str, data: Any, *,
+                vertical: bool) -> None:
+    """Draw the band edges near the data; name the far ones at the border instead.
+
+    An edge far from the trials would squash them into a flat line, hiding drift and warm-up;
+    an edge within one data span of them stays in view, so a near miss shows.
+    """
+    import numpy as np
+
+    lowest, highest = float(np.min(data)), float(np.max(data))
+    span = highest - lowest or (abs(highest) * 0.01 or 1.0)
+    view_low, view_high = lowest - 0.08 * span, highest + 0.08 * span
+    first = True
+    for edge in (band["low"], band["high"]):
+        if not math.isfinite(edge):
+            continue
+        at = edge / factor
+        if lowest - span <= at <= highest + span:
+            line = ax.axvline if vertical else ax.axhline
+            line(at, color="#b2182b", linewidth=1.2, linestyle="--", zorder=4,
+                 label="band edge" if first else None)
+            first = False
+            view_low, view_high = min(view_low, at - 0.05 * span), max(view_high, at + 0.05 * span)
+            continue
+        above = at > highest
+        text = f"band edge {format_number(at)}{' ' + unit if unit else ''} " + (
+            ("→" if above else "←") if vertical else ("↑" if above else "↓"))
+        if vertical:
+            ax.text(0.99 if above else 0.01, 0.5, text, transform=ax.transAxes, rotation=90,
+                    ha="right" if above else "left", va="center", fontsize=7, color="#b2182b")
+        else:
+            ax.text(0.5, 0.98 if above else 0.02, text, transform=ax.transAxes, ha="center",
+                    va="top" if above else "bottom", fontsize=7, color="#b2182b")
+    (ax.set_xlim if vertical else ax.set_ylim)(view_low, view_high)
 
 
 def _draw_run(row: Mapping[str, Any], title: str) -> Any:
@@ -293,13 +346,9 @@ def _draw_run(row: Mapping[str, Any], title: str) -> Any:
         for bound in (low, high):
             if bound is not None:
                 ax.axhline(bound / factor, color="#2166ac", linewidth=0.9, linestyle=":", zorder=4)
-        band = decision["band"]
-        first = True
-        for edge in (band["low"], band["high"]):
-            if math.isfinite(edge):
-                ax.axhline(edge / factor, color="#b2182b", linewidth=1.2, linestyle="--", zorder=4,
-                           label="band edge" if first else None)
-                first = False
+        shown = [v for v in (low, high) if v is not None]
+        _band_edges(ax, decision["band"], factor, unit, np.concatenate(
+            [values, warmup, np.asarray(shown, dtype=float)]) / factor, vertical=False)
         title += f" — {decision['verdict']}"
     ax.set_xlabel("trial")
     ax.set_ylabel(_axis_label(unit))
@@ -353,10 +402,7 @@ def _draw_histogram(row: Mapping[str, Any], title: str) -> Any:
     ax.axvline(mean, color="black", linewidth=1.2, linestyle="-", label="mean")
     decision = row.get("decision")
     if decision:
-        edges = [e for e in (decision["band"]["low"], decision["band"]["high"]) if math.isfinite(e)]
-        for i, edge in enumerate(edges):
-            ax.axvline(edge / factor, color="#b2182b", linewidth=1.2, linestyle="--",
-                       label=None if i else "band edge")
+        _band_edges(ax, decision["band"], factor, unit, shown, vertical=True)
     ax.set_xlabel(_axis_label(unit))
     ax.set_ylabel("trials")
     ax.set_title(f"{title} — histogram", fontsize=9)
