@@ -27,13 +27,21 @@ def test_one_table_row_per_result_under_a_headline():
     lines = table_lines(text)
     assert len(lines) == 2 + len(rows)
     assert all(len(cells(line)) == 8 for line in lines)
-    body = [cells(line) for line in lines[2:]]
-    assert [c[2] for c in body] == ["PASS", "**UNDECIDED**", "PASS", "**FAIL**", "PASS", "no check"]
-    assert body[2][:2] == ["`tests/test_chamber.py::test_probe_mean`", "probe-a"]
-    assert body[2][3] == "25"
-    assert body[2][6] == "[84.6 degC, 85.4 degC]"
-    assert body[0][6] == "<= 2 ms"
-    assert body[0][5].endswith("(95% upper bound)") and body[0][5].startswith("≤ ")
+    body = {(c[0], c[1]): c for c in (cells(line) for line in lines[2:])}
+    # The terminal summary's order: node id, then series.
+    assert [key[0].strip("`") for key in body] == sorted(r["nodeid"] for r in rows)
+    verdicts = {key[0].strip("`").split("::")[1] + key[1]: c[2] for key, c in body.items()}
+    assert verdicts == {
+        "test_quote_latency": "PASS", "test_batch_latency": "**UNDECIDED**",
+        "test_probe_meanprobe-a": "PASS", "test_probe_meanprobe-b": "**FAIL**",
+        "test_supply_rail": "PASS", "test_fan_speed": "no check",
+    }
+    probe = body[("`tests/test_chamber.py::test_probe_mean`", "probe-a")]
+    assert probe[3] == "25"
+    assert probe[6] == "[84.6 degC, 85.4 degC]"
+    budget = body[("`tests/test_quote.py::test_quote_latency`", "")]
+    assert budget[6] == "<= 2 ms"
+    assert budget[5].endswith("(95% upper bound)") and budget[5].startswith("≤ ")
 
 
 def test_numbers_match_the_rows():
@@ -53,12 +61,19 @@ def test_notes_are_numbered_and_referenced():
     undecided = sample_rows()[1]
     text = format_markdown([few, undecided])
     body = [cells(line) for line in table_lines(text)[2:]]
-    assert body[0][7] == "1"
-    assert body[1][7] == "2"
+    assert [(c[0], c[7]) for c in body] == [("`t.py::test_few`", "1"),
+                                            ("`tests/test_quote.py::test_batch_latency`", "2")]
     assert "1. `t.py::test_few`: only 6 trials" in text
     suggested = undecided["decision"]["suggested_n"]
     assert f"2. `tests/test_quote.py::test_batch_latency`: about {suggested} trials would " \
         "likely decide it" in text
+
+
+def test_a_suggestion_of_the_planning_feature_is_shown():
+    row = dict(sample_rows()[1], suggestion={"text": "run 48 trials", "n": 48})
+    text = format_markdown([row])
+    assert "1. `tests/test_quote.py::test_batch_latency`: run 48 trials" in text
+    assert "would likely decide it" not in text
 
 
 def test_pipes_in_ids_do_not_break_the_table():

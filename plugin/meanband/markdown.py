@@ -56,7 +56,10 @@ def _interval_text(
 def _row_notes(row: Mapping[str, Any]) -> list[str]:
     texts = [note["text"] for note in row.get("notes") or []]
     decision = row.get("decision")
-    if decision and decision["verdict"] == "UNDECIDED":
+    suggestion = row.get("suggestion")
+    if isinstance(suggestion, dict) and suggestion.get("text"):
+        texts.append(str(suggestion["text"]))
+    elif decision and decision["verdict"] == "UNDECIDED":
         if decision.get("suggested_n") is None:
             texts.append("the mean sits on a band edge: no number of trials is likely to decide")
         else:
@@ -103,6 +106,7 @@ def _headline(rows: Sequence[Mapping[str, Any]]) -> str:
 def format_markdown(rows: Sequence[Mapping[str, Any]], *, title: str = "meanband") -> str:
     """A Markdown section: a headline with the counts, one table row per check, then the notes.
 
+    Rows come in the terminal summary's order (node id, then series).
     Verdicts read without colour (FAIL and UNDECIDED in bold); note numbers in the table point
     into the numbered list below it.
     """
@@ -115,7 +119,7 @@ def format_markdown(rows: Sequence[Mapping[str, Any]], *, title: str = "meanband
         "| --- | --- | --- | ---: | ---: | --- | --- | --- |",
     ]
     notes: list[str] = []
-    for row in rows:
+    for row in sorted(rows, key=lambda r: (r["nodeid"], r["series"])):  # the summary's order
         refs = []
         for text in _row_notes(row):
             notes.append(f"{len(notes) + 1}. {_code(row['nodeid'])}"
