@@ -258,9 +258,10 @@ def _draw_intervals(rows: Sequence[Mapping[str, Any]], title: str) -> Any:
     from matplotlib.lines import Line2D
     from matplotlib.patches import Patch
 
-    handles = [Patch(color="#d9d9d9", label="band")]
+    handles: list[Any] = [Patch(color="#d9d9d9", label="band")]
     handles += [Line2D([], [], linestyle="none", markeredgecolor="black", markersize=7,
-                       label=verdict, **style) for verdict, style in _STYLE.items()]
+                       label=verdict, marker=style["marker"], color=style["color"])
+                for verdict, style in _STYLE.items()]
     figure.legend(handles=handles, loc="outside lower center", ncol=4, fontsize=8, frameon=False)
     return figure
 
