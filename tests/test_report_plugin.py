@@ -51,11 +51,12 @@ def kiln_suite() -> str:
 
 
 def summary_block(lines: list[str]) -> list[str]:
-    """The lines under the live summary's ``= meanband =`` separator, up to the next one."""
+    """The lines under the live summary's ``= meanband =`` separator, up to the next separator
+    (the lines about written files come after it, each set off by a ``---`` separator)."""
     start = next(i for i, line in enumerate(lines) if line.strip("= ") == "meanband")
     block = []
     for line in lines[start + 1:]:
-        if line.startswith("==="):
+        if line.startswith(("===", "---")):
             break
         block.append(line)
     while block and not block[-1].strip():

@@ -164,11 +164,17 @@ class ReportWriter:
         self.config = config
         self.settings = settings
         self.finished = False
+        self.messages: list[tuple[str, dict[str, bool]]] = []
 
     def _say(self, text: str, **markup: bool) -> None:
-        reporter = self.config.pluginmanager.get_plugin("terminalreporter")
-        if reporter is not None and (markup or self.config.get_verbosity() >= 0):
-            reporter.write_line(text, **markup)
+        """Keep a line for the end of the terminal summary; problems show even under -q."""
+        if markup or self.config.get_verbosity() >= 0:
+            self.messages.append((text, markup))
+
+    @pytest.hookimpl(trylast=True)
+    def pytest_terminal_summary(self, terminalreporter: pytest.TerminalReporter) -> None:
+        for text, markup in self.messages:  # set off from the summary, as pytest's own files are
+            terminalreporter.write_sep("-", text, **markup)
 
     def pytest_meanband_session_finish(self, config: pytest.Config, rows: list[dict]) -> None:
         if hasattr(config, "workerinput"):
