@@ -7,6 +7,8 @@ import math
 
 import jsonschema
 import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 from meanband import report_json
 from meanband.report_json import ReportError
 from report_rows import make_row, same, sample_rows
@@ -174,3 +176,27 @@ def test_a_row_naming_a_missing_run_is_refused():
 def test_missing_file_is_named(tmp_path):
     with pytest.raises(ReportError, match=r"no-such\.json: no such report file"):
         report_json.load_report(tmp_path / "no-such.json")
+
+
+finite = st.floats(min_value=-1e6, max_value=1e6, allow_nan=False, allow_infinity=False)
+
+
+@settings(max_examples=40, deadline=None,
+          suppress_health_check=[HealthCheck.too_slow])
+@given(
+    values=st.lists(finite, min_size=2, max_size=40),
+    warmup=st.lists(finite, max_size=5),
+    band=st.sampled_from(["upper", "lower", "two-sided", "none"]),
+    series=st.text(max_size=12),
+)
+def test_any_row_survives_the_round_trip(values, warmup, band, series):
+    middle = sum(values) / len(values)
+    edges = {"upper": {"high": middle + 1.0}, "lower": {"low": middle - 1.0},
+             "two-sided": {"low": middle - 1.0, "high": middle + 1.0}, "none": None}[band]
+    row = make_row("t.py::test_any", values, band=edges, series=series, warmup=warmup,
+                   unit="V")
+    text = report_json.dumps(build([row]))
+    strict_parse(text)
+    (back,) = report_json.loads(text)["rows"]
+    back.pop("run")
+    assert same(row, back)

@@ -192,11 +192,14 @@ def write_report(report: Mapping[str, Any], path: str | os.PathLike[str]) -> Pat
     """Write ``report`` to ``path`` atomically (a reader never sees half a file)."""
     target = Path(path)
     text = dumps(report)
-    if target.parent and not target.parent.exists():
-        target.parent.mkdir(parents=True, exist_ok=True)
+    target.parent.mkdir(parents=True, exist_ok=True)
     partial = target.with_name(f".{target.name}.partial")
-    partial.write_text(text, encoding="utf-8")
-    os.replace(partial, target)
+    try:
+        partial.write_text(text, encoding="utf-8")
+        os.replace(partial, target)
+    except OSError:
+        partial.unlink(missing_ok=True)
+        raise
     return target
 
 
