@@ -61,8 +61,29 @@ def test_rows_without_trials_are_skipped_with_the_reason(tmp_path):
     row = dict(sample_rows()[0], values=None, warmup=None)
     result = plots.write_plots([row], tmp_path)
     assert [p.name for p in result.written] == ["intervals-01.png"]
-    assert result.skipped == ["test_quote.py::test_quote_latency: the report was written "
-                              "without trials"]
+    assert result.skipped_lines() == ["no per-check plots for test_quote.py::test_quote_latency: "
+                                      "the report was written without trials"]
+
+
+def test_many_skipped_rows_make_one_line(tmp_path):
+    rows = [dict(row, values=None, warmup=None) for row in sample_rows()]
+    (line,) = plots.write_plots(rows, tmp_path, checks="all").skipped_lines()
+    assert line.startswith("no per-check plots for test_quote.py::test_quote_latency, ")
+    assert line.endswith(" and 3 more: the report was written without trials")
+
+
+@pytest.mark.parametrize(("checks", "drawn"), [("failed", 2), ("none", 0)])
+def test_per_check_plots_can_be_limited(tmp_path, checks, drawn):
+    rows = sample_rows()  # one FAIL and one UNDECIDED among them
+    result = plots.write_plots(rows, tmp_path, checks=checks)
+    runs = sorted(p.name for p in result.written if p.name.endswith(".run.png"))
+    assert len(runs) == drawn
+    assert len(result.written) == 1 + 3 * drawn
+    if drawn:
+        assert runs == ["tests-test_chamber--test_probe_mean--probe-b.run.png",
+                        "tests-test_quote--test_batch_latency.run.png"]
+    with pytest.raises(ReportError, match="choose one of all, failed, none"):
+        plots.write_plots(rows, tmp_path, checks="some")
 
 
 @pytest.mark.parametrize(

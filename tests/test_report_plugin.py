@@ -42,12 +42,17 @@ def test_plain():
 """
 
 
+# Drawn once, so every test (and every xdist worker) runs the same suite: zone-a PASS,
+# zone-b FAIL, the settle-time budget UNDECIDED.
+KILN_SUITE = SUITE.format(
+    zone_a=RNG.normal(640.2, 0.8, 30).round(3).tolist(),
+    zone_b=RNG.normal(643.5, 0.8, 30).round(3).tolist(),
+    loop=RNG.normal(0.79, 0.05, 12).round(4).tolist(),
+)
+
+
 def kiln_suite() -> str:
-    return SUITE.format(
-        zone_a=RNG.normal(640.2, 0.8, 30).round(3).tolist(),
-        zone_b=RNG.normal(643.5, 0.8, 30).round(3).tolist(),
-        loop=RNG.normal(0.79, 0.05, 12).round(4).tolist(),
-    )
+    return KILN_SUITE
 
 
 def summary_block(lines: list[str]) -> list[str]:
@@ -79,6 +84,7 @@ def test_report_from_file_prints_the_live_summary(run_suite, pytester, capsys, w
     result.assert_outcomes(passed=2, failed=2)
     live = summary_block(result.outlines)
     assert any("zone-b" in line and "FAIL" in line for line in live)
+    assert any("test_loop_settle" in line and "UNDECIDED" in line for line in live)
     capsys.readouterr()
     status = console(["report", str(pytester.path / "out" / "kiln.json"), *verbosity])
     assert capsys.readouterr().out.splitlines() == live
@@ -131,7 +137,8 @@ def test_markdown_and_job_summary(run_suite, pytester, monkeypatch):
     run_suite("--meanband-markdown", "kiln.md", "--meanband-job-summary",
               "--meanband-job-summary-var", "KILN_CI_SUMMARY")
     text = (pytester.path / "kiln.md").read_text()
-    assert text.startswith("## meanband: 3 checks: 2 PASS, 1 FAIL; 1 series without a check")
+    assert text.startswith("## meanband: 3 checks: 1 PASS, 1 FAIL, 1 UNDECIDED; "
+                           "1 series without a check")
     assert "| `test_kiln.py::test_zone_temperature` | zone-b | **FAIL** | 30 |" in text
     assert summary.read_text() == "previous step\n" + text
 
@@ -240,3 +247,25 @@ def test_console_entry_runs_as_a_module(pytester, tmp_path):
                           "-q")
     assert result.ret == 0
     assert result.outlines == ["meanband: 1 check: 1 PASS"]
+
+
+def test_per_check_plots_only_for_failed_checks(run_suite, pytester):
+    pytester.makepyfile(test_kiln=kiln_suite())
+    run_suite("--meanband-plots", "pictures", "--meanband-plot-checks", "failed")
+    names = sorted(p.name for p in (pytester.path / "pictures").iterdir())
+    assert names == ["intervals-01.png",
+                     "test_kiln--test_loop_settle.hist.png",
+                     "test_kiln--test_loop_settle.qq.png",
+                     "test_kiln--test_loop_settle.run.png",
+                     "test_kiln--test_zone_temperature--zone-b.hist.png",
+                     "test_kiln--test_zone_temperature--zone-b.qq.png",
+                     "test_kiln--test_zone_temperature--zone-b.run.png"]
+
+
+def test_bad_plot_checks_in_the_ini_file_is_a_usage_error(run_suite, pytester):
+    pytester.makeini("[pytest]\nmeanband_plot_checks = some\n")
+    pytester.makepyfile(test_kiln=kiln_suite())
+    result = run_suite()
+    assert result.ret == pytest.ExitCode.USAGE_ERROR
+    result.stderr.fnmatch_lines(["*ini key meanband_plot_checks: 'some'; choose all, failed or "
+                                 "none*"])

@@ -16,8 +16,10 @@ from meanband.report_json import ReportError
 from meanband.units import SECONDS, format_number, time_scale
 
 __all__ = [
+    "CHECK_CHOICES",
     "FORMATS",
     "PER_PAGE",
+    "PlotResult",
     "PlotsUnavailable",
     "band_position",
     "check_formats",
@@ -414,12 +416,30 @@ def _draw_histogram(row: Mapping[str, Any], title: str) -> Any:
 _PER_CHECK = (("run", _draw_run), ("qq", _draw_qq), ("hist", _draw_histogram))
 
 
+#: Which checks get a run chart, Q-Q plot and histogram: every one, only those that did not
+#: pass (a large suite's failures without thousands of files), or none (the interval chart only).
+CHECK_CHOICES = ("all", "failed", "none")
+_LISTED_SKIPS = 3
+
+
 @dataclass(frozen=True)
 class PlotResult:
     """What :func:`write_plots` wrote, and the rows it could not draw with the reason."""
 
     written: list[Path]
-    skipped: list[str]
+    skipped: list[tuple[str, str]]  # (row label, reason)
+
+    def skipped_lines(self) -> list[str]:
+        """One line per reason, naming a few of the rows it applies to."""
+        by_reason: dict[str, list[str]] = {}
+        for label, reason in self.skipped:
+            by_reason.setdefault(reason, []).append(label)
+        lines = []
+        for reason, labels in by_reason.items():
+            named = ", ".join(labels[:_LISTED_SKIPS])
+            more = f" and {len(labels) - _LISTED_SKIPS} more" if len(labels) > _LISTED_SKIPS else ""
+            lines.append(f"no per-check plots for {named}{more}: {reason}")
+        return lines
 
 
 def write_plots(
@@ -427,22 +447,34 @@ def write_plots(
     directory: str | os.PathLike[str],
     *,
     formats: Sequence[str] = ("png",),
+    checks: str = "all",
     per_page: int = PER_PAGE,
     dpi: int = 100,
 ) -> PlotResult:
-    """Write the interval chart pages and, per row with trials, ``<slug>.run/.qq/.hist``."""
+    """Write the interval chart pages and, per row with trials, ``<slug>.run/.qq/.hist``.
+
+    ``checks`` says which rows get the per-check plots: ``all``, ``failed`` (FAIL or UNDECIDED)
+    or ``none``.
+    """
     require_matplotlib()
     formats = check_formats(formats)
+    if checks not in CHECK_CHOICES:
+        raise ReportError(f"checks={checks!r}: choose one of {', '.join(CHECK_CHOICES)}")
     target = Path(directory)
     target.mkdir(parents=True, exist_ok=True)
     written = interval_chart_pages(rows, target, formats, per_page=per_page, dpi=dpi)
-    skipped = []
+    skipped: list[tuple[str, str]] = []
     for row, stem in zip(rows, slugs(rows), strict=True):
+        if checks == "none":
+            break
+        decision = row.get("decision")
+        if checks == "failed" and (decision is None or decision["verdict"] == "PASS"):
+            continue
         values = row.get("values")
         if not values or len(values) < 2:
             why = ("the report was written without trials" if values is None
                    else "fewer than 2 trials")
-            skipped.append(f"{_label(row, 200)}: {why}")
+            skipped.append((_label(row, 200), why))
             continue
         title = _label(row)
         for series, draw in _PER_CHECK:

@@ -50,6 +50,9 @@ def register(subparsers: Any) -> None:
     report.add_argument("--plots", metavar="DIR", help="draw the plots into DIR")
     report.add_argument("--plot-format", metavar="FORMATS", default=("png",), type=_formats,
                         help="png (default), svg, or png,svg")
+    report.add_argument("--plot-checks", choices=("all", "failed", "none"), default="all",
+                        help="which checks get a run chart, Q-Q plot and histogram: all "
+                        "(default), failed (FAIL or UNDECIDED) or none")
     report.set_defaults(handler=run_report)
 
 
@@ -117,10 +120,11 @@ def run_report(args: argparse.Namespace, out: TextIO | None = None,
         if args.plots:
             from meanband import plots
 
-            result = plots.write_plots(rows, args.plots, formats=args.plot_format)
+            result = plots.write_plots(rows, args.plots, formats=args.plot_format,
+                                       checks=args.plot_checks)
             print(f"wrote {len(result.written)} plot files to {args.plots}", file=out)
-            for reason in result.skipped:
-                print(f"no per-check plots for {reason}", file=err)
+            for line in result.skipped_lines():
+                print(line, file=err)
     except (ReportError, OSError) as exc:
         return _fail("report", exc, err)
     totals = report["totals"]

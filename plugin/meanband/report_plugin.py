@@ -47,6 +47,11 @@ def pytest_addoption(parser: pytest.Parser) -> None:
         "--meanband-plot-format", metavar="FORMATS", default=None,
         help="Image format of the plots: png (default), svg, or png,svg",
     )
+    group.addoption(
+        "--meanband-plot-checks", choices=("all", "failed", "none"), default=None,
+        help="Which checks get a run chart, Q-Q plot and histogram: all (default), failed "
+        "(FAIL or UNDECIDED) or none (the interval chart only)",
+    )
     parser.addini("meanband_report", "Path of the JSON report (relative to the ini file)",
                   type="string", default="")
     parser.addini("meanband_report_trials", "Whether the JSON report holds the raw trials",
@@ -62,6 +67,8 @@ def pytest_addoption(parser: pytest.Parser) -> None:
                   type="string", default="")
     parser.addini("meanband_plot_format", "Image format of the plots: png, svg or png,svg",
                   type="string", default="png")
+    parser.addini("meanband_plot_checks", "Which checks get per-check plots: all, failed, none",
+                  type="string", default="all")
 
 
 @dataclass(frozen=True)
@@ -75,6 +82,7 @@ class ReportSettings:
     job_summary_var: str
     plots: Path | None
     plot_formats: tuple[str, ...]
+    plot_checks: str
 
     @property
     def wanted(self) -> bool:
@@ -117,6 +125,12 @@ def resolve(config: pytest.Config) -> ReportSettings:
         formats = check_formats(fmt_option or config.getini("meanband_plot_format"))
     except ReportError as exc:
         raise pytest.UsageError(f"{where}: {exc}") from exc
+    plot_checks = config.getoption("meanband_plot_checks") or config.getini(
+        "meanband_plot_checks")
+    if plot_checks not in ("all", "failed", "none"):
+        raise pytest.UsageError(
+            f"ini key meanband_plot_checks: {plot_checks!r}; choose all, failed or none"
+        )
     return ReportSettings(
         report=_path(config, "meanband_report", "meanband_report"),
         trials=trials,
@@ -125,6 +139,7 @@ def resolve(config: pytest.Config) -> ReportSettings:
         job_summary_var=variable,
         plots=_path(config, "meanband_plots", "meanband_plots"),
         plot_formats=formats,
+        plot_checks=plot_checks,
     )
 
 
@@ -234,11 +249,12 @@ class ReportWriter:
         from meanband import plots
 
         result = plots.write_plots(rows, self.settings.plots,  # type: ignore[arg-type]
-                                   formats=self.settings.plot_formats)
+                                   formats=self.settings.plot_formats,
+                                   checks=self.settings.plot_checks)
         self._say(f"meanband: wrote {len(result.written)} plot files to "
                   f"{_shown(self.settings.plots)}")  # type: ignore[arg-type]
-        for reason in result.skipped:
-            self._say(f"meanband: no per-check plots for {reason}", yellow=True)
+        for line in result.skipped_lines():
+            self._say(f"meanband: {line}", yellow=True)
 
 
 def _shown(path: Path) -> str:
