@@ -14,7 +14,8 @@ _TRIAL_CHOICES = ("yes", "no")
 
 
 def pytest_addoption(parser: pytest.Parser) -> None:
-    group = parser.getgroup("meanband", "meanband: mean-in-band checks")
+    group = parser.getgroup(
+        "meanband", "meanband: confidence intervals of the mean as test gates")
     group.addoption(
         "--meanband-report", metavar="PATH", default=None,
         help="Write every check (interval, band, verdict, diagnostics, notes, settings, "
