@@ -148,3 +148,20 @@ def test_missing_matplotlib_says_how_to_install(monkeypatch):
     monkeypatch.setitem(sys.modules, "matplotlib", None)
     with pytest.raises(plots.PlotsUnavailable, match=r"pip install 'pytest-meanband\[plots\]'"):
         plots.require_matplotlib()
+
+
+def test_a_pooled_run_chart_marks_where_each_run_ends(tmp_path):
+    from meanband import report_json
+    from meanband.merge import merge_reports
+
+    rng = np.random.default_rng(13)
+    shards = []
+    for level in (5.0, 5.6):  # two machines at different levels: the chart should show it
+        rows = [make_row("t.py::test_pump", rng.normal(level, 0.1, 15), band={"high": 7.0})]
+        shards.append(report_json.build_report(rows, environment={}, configuration={}))
+    merged = merge_reports([("a.json", shards[0]), ("b.json", shards[1])], pool=True)
+    figure = plots._draw_run(merged["rows"][0], "pooled")
+    (ax,) = figure.axes
+    boundaries = [line.get_xdata()[0] for line in ax.get_lines()
+                  if line.get_label() == "next pooled run"]
+    assert boundaries == [15.5]

@@ -335,6 +335,11 @@ def _draw_run(row: Mapping[str, Any], title: str) -> Any:
     index = np.arange(w + 1, w + values.size + 1)
     ax.plot(index, values / factor, marker=".", linestyle="-", linewidth=0.6, color="#2166ac",
             zorder=3, label=f"trials ({values.size})")
+    pooled = row.get("pooled")
+    if pooled and len(pooled.get("counts", ())) > 1:  # where one run's trials end
+        for i, boundary in enumerate(np.cumsum(pooled["counts"])[:-1]):
+            ax.axvline(w + boundary + 0.5, color="#666666", linewidth=0.8, linestyle="-.",
+                       zorder=1, label="next pooled run" if i == 0 else None)
     decision = row.get("decision")
     mean = float(np.mean(values))
     ax.axhline(mean / factor, color="black", linewidth=1.2, zorder=4, label="mean")
