@@ -269,3 +269,11 @@ def test_bad_plot_checks_in_the_ini_file_is_a_usage_error(run_suite, pytester):
     assert result.ret == pytest.ExitCode.USAGE_ERROR
     result.stderr.fnmatch_lines(["*ini key meanband_plot_checks: 'some'; choose all, failed or "
                                  "none*"])
+
+
+def test_bad_boolean_in_the_ini_file_names_the_key(run_suite, pytester):
+    pytester.makeini("[pytest]\nmeanband_report_trials = maybe\n")
+    pytester.makepyfile(test_kiln=kiln_suite())
+    result = run_suite("--meanband-report", "r.json")
+    assert result.ret == pytest.ExitCode.USAGE_ERROR
+    result.stderr.fnmatch_lines(["*ini key meanband_report_trials: invalid truth value 'maybe'*"])

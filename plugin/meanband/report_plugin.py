@@ -102,17 +102,24 @@ def _path(config: pytest.Config, option: str, ini: str) -> Path | None:
     return None
 
 
+def _ini_bool(config: pytest.Config, name: str) -> bool:
+    try:
+        return bool(config.getini(name))
+    except (ValueError, pytest.UsageError) as exc:  # pytest names the value, not the key
+        raise pytest.UsageError(f"ini key {name}: {exc}; write true or false") from exc
+
+
 def resolve(config: pytest.Config) -> ReportSettings:
     """Read the report options; a bad value is a usage error naming the option or ini key."""
     from meanband.plots import check_formats
     from meanband.report_json import ReportError
 
     trials_option = config.getoption("meanband_report_trials")
-    trials = (trials_option == "yes") if trials_option else bool(
-        config.getini("meanband_report_trials"))
+    trials = (trials_option == "yes") if trials_option else _ini_bool(
+        config, "meanband_report_trials")
     job_summary = config.getoption("meanband_job_summary")
     if job_summary is None:
-        job_summary = bool(config.getini("meanband_job_summary"))
+        job_summary = _ini_bool(config, "meanband_job_summary")
     variable = config.getoption("meanband_job_summary_var") or config.getini(
         "meanband_job_summary_var")
     if not variable or not variable.replace("_", "").isalnum():
