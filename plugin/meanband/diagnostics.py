@@ -9,7 +9,8 @@ from typing import Any
 
 import numpy as np
 
-from meanband.sample import as_sample, location_scale
+from meanband.errors import TrialError
+from meanband.sample import as_sample, deviations, sum_of_products
 
 __all__ = [
     "BIMODAL_THRESHOLD",
@@ -18,6 +19,7 @@ __all__ = [
     "DriftTest",
     "NormalityTest",
     "bimodality_coefficient",
+    "dagostino_pearson",
     "diagnose",
     "drift_test",
     "lag1_autocorrelation",
@@ -26,8 +28,6 @@ __all__ = [
 
 #: Largest n for which scipy's Shapiro-Wilk (Royston 1995, AS R94) gives an accurate p-value.
 SHAPIRO_MAX_N = 5000
-#: Smallest n for D'Agostino-Pearson's K^2, used above SHAPIRO_MAX_N (D'Agostino & Pearson 1973).
-_DAGOSTINO_MIN_N = 20
 #: Sarle's bimodality coefficient of a uniform distribution; larger values suggest two modes
 #: (SAS Institute 1990; Pfister et al. 2013).
 BIMODAL_THRESHOLD = 5.0 / 9.0
@@ -75,6 +75,11 @@ class DriftTest:
         return self.testable and self.pvalue < alpha
 
 
+#: The drift field of diagnostics made without a drift test.
+NO_DRIFT = DriftTest("Mann-Kendall", math.nan, math.nan, math.nan, math.nan, False, 0,
+                     "not computed")
+
+
 @dataclass(frozen=True, slots=True)
 class Diagnostics:
     """What the data say about the assumptions behind the t interval."""
@@ -91,28 +96,34 @@ class Diagnostics:
     effective_n: float
     excess_kurtosis: float = math.nan
     outliers: int = 0
-    outlier_fences: tuple[float, float] = (math.nan, math.nan)
-    drift: DriftTest | None = None
+    outlier_low: float = math.nan
+    outlier_high: float = math.nan
+    drift: DriftTest = NO_DRIFT
     bimodality: float = math.nan
     log_skewness: float = math.nan
     log_normality_pvalue: float = math.nan
     log_bimodality: float = math.nan
     log_sd: float = math.nan
 
+    def __post_init__(self) -> None:
+        # Rebuilt from ``to_dict()`` output (JSON, a report row): nested tests come back as dicts.
+        if isinstance(self.normality, dict):
+            object.__setattr__(self, "normality", NormalityTest(**self.normality))
+        if isinstance(self.drift, dict):
+            object.__setattr__(self, "drift", DriftTest(**self.drift))
+
     def to_dict(self) -> dict[str, Any]:
         """Builtin types only, safe for JSON and for pytest-xdist's report transport."""
-        out = asdict(self)
-        out["outlier_fences"] = [float(v) for v in self.outlier_fences]
-        return out
+        return asdict(self)
 
 
 def lag1_autocorrelation(x: np.ndarray, mean: float) -> float:
     """r(1) exactly as NIST StRD defines it: sum of lagged products over the sum of squares."""
     d = x - mean
-    denominator = float(np.dot(d, d))
+    denominator = sum_of_products(d, d)
     if denominator == 0.0:
         return math.nan
-    return float(np.dot(d[:-1], d[1:])) / denominator
+    return sum_of_products(d[:-1], d[1:]) / denominator
 
 
 def diagnose(values: Iterable[float] | np.ndarray, *, alpha: float = 0.05) -> Diagnostics:
@@ -132,34 +143,45 @@ def diagnose(values: Iterable[float] | np.ndarray, *, alpha: float = 0.05) -> Di
     - bimodality: Sarle's coefficient (G1^2 + 1) / (G2 + 3(n-1)^2/((n-2)(n-3))), above 5/9
       suggesting two modes (SAS Institute 1990; Pfister et al. 2013).
     """
+    if not 0.0 < alpha < 1.0:
+        raise TrialError(f"alpha must lie strictly between 0 and 1, got {alpha!r}")
     x = as_sample(values, minimum=1)
     n = x.size
-    mean, sd = location_scale(x) if n > 1 else (float(x[0]), math.nan)
+    if n > 1:
+        mean, sd, dev = deviations(x)
+    else:
+        mean, sd, dev = float(x[0]), math.nan, x
     zero_spread = n > 1 and sd == 0.0
-    normality = _normality(x, zero_spread)
-    skewness = _skewness(x, mean, sd) if n > 2 and not zero_spread else math.nan
     if n > 2 and not zero_spread:
         from scipy.stats import norm
 
-        lag1 = lag1_autocorrelation(x, mean)
+        # One set of sums over the deviations serves r(1), skewness and K^2: a million trials
+        # cost a few passes and no new array, not a pass and a temporary per statistic.
+        sum2 = sd * sd * (n - 1)
+        lag1 = sum_of_products(dev[:-1], dev[1:]) / sum2 if sum2 > 0 else math.nan
+        # Standardise (in place: dev is our own copy) so cubes and fourth powers stay in range.
+        z = np.divide(dev, sd, out=dev)
+        sum3 = float(np.einsum("i,i,i->", z, z, z))
+        squares = np.multiply(z, z, out=z)
+        sum4 = sum_of_products(squares, squares)
+        # G1 = n / ((n-1)(n-2)) * sum(z^3), z standardised by the n-1 sd (Joanes & Gill 1998).
+        skewness = n / ((n - 1) * (n - 2)) * sum3
+        kurtosis = _excess_kurtosis(n, sum4)
+        # Central moments (divisor n) of z: sum(z^2) is n - 1 by construction.
+        normality = _normality(x, sd, ((n - 1) / n, sum3 / n, sum4 / n))
         limit = float(norm.ppf(1.0 - alpha / 2.0)) / math.sqrt(n)
         significant = abs(lag1 + 1.0 / n) > limit
         effective_n = n * (1.0 - lag1) / (1.0 + lag1) if lag1 > -1.0 else float(n)
         effective_n = float(min(max(effective_n, 1.0), n))
     else:
-        lag1, limit, significant, effective_n = math.nan, math.nan, False, float(n)
-    kurtosis = _excess_kurtosis(x, mean) if n > 3 and not zero_spread else math.nan
-    log_skewness, log_pvalue, log_bimodality, log_spread = math.nan, math.nan, math.nan, math.nan
+        normality = _normality(x, sd, None)
+        skewness, lag1, limit, significant, effective_n = (
+            math.nan, math.nan, math.nan, False, float(n)
+        )
+        kurtosis = math.nan
+    log_sd, log_skewness, log_kurtosis, log_pvalue = math.nan, math.nan, math.nan, math.nan
     if n > 3 and not zero_spread and bool(np.all(x > 0.0)):
-        y = np.log(x)
-        log_mean, log_sd = location_scale(y)
-        log_spread = log_sd
-        if log_sd > 0.0:
-            log_skewness = _skewness(y, log_mean, log_sd)
-            log_pvalue = _normality(y, False).pvalue
-            log_bimodality = bimodality_coefficient(
-                log_skewness, _excess_kurtosis(y, log_mean), n
-            )
+        log_sd, log_skewness, log_kurtosis, log_pvalue = _log_shape(np.log(x))
     fences = tukey_fences(x)
     outliers = int(np.count_nonzero((x < fences[0]) | (x > fences[1])))
     return Diagnostics(
@@ -175,14 +197,99 @@ def diagnose(values: Iterable[float] | np.ndarray, *, alpha: float = 0.05) -> Di
         effective_n=effective_n,
         excess_kurtosis=kurtosis,
         outliers=outliers,
-        outlier_fences=fences,
+        outlier_low=fences[0],
+        outlier_high=fences[1],
         drift=drift_test(x),
         bimodality=bimodality_coefficient(skewness, kurtosis, n),
         log_skewness=log_skewness,
         log_normality_pvalue=log_pvalue,
-        log_bimodality=log_bimodality,
-        log_sd=log_spread,
+        log_bimodality=bimodality_coefficient(log_skewness, log_kurtosis, n),
+        log_sd=log_sd,
     )
+
+
+def _excess_kurtosis(n: int, sum4: float) -> float:
+    """G2 from sum(z^4), z standardised by the n-1 sd (Joanes & Gill 1998)."""
+    if n < 4:
+        return math.nan
+    m2 = (n - 1) / n
+    g2 = (sum4 / n) / (m2 * m2) - 3.0
+    return ((n + 1) * g2 + 6.0) * (n - 1) / ((n - 2) * (n - 3))
+
+
+def _log_shape(y: np.ndarray) -> tuple[float, float, float, float]:
+    """sd, G1, G2 and normality p-value of the log trials ``y`` (an array of our own)."""
+    n = y.size
+    _, sd, dev = deviations(y)
+    if sd == 0.0:
+        return sd, math.nan, math.nan, math.nan
+    z = np.divide(dev, sd, out=dev)
+    sum3 = float(np.einsum("i,i,i->", z, z, z))
+    squares = np.multiply(z, z, out=z)
+    sum4 = sum_of_products(squares, squares)
+    skewness = n / ((n - 1) * (n - 2)) * sum3
+    normality = _normality(y, sd, ((n - 1) / n, sum3 / n, sum4 / n))
+    return sd, skewness, _excess_kurtosis(n, sum4), normality.pvalue
+
+
+def _normality(
+    x: np.ndarray, sd: float, moments: tuple[float, float, float] | None
+) -> NormalityTest:
+    n = x.size
+    if n < 3:
+        return NormalityTest("Shapiro-Wilk", math.nan, math.nan, False, f"needs 3 trials, got {n}")
+    if moments is None:
+        return NormalityTest("Shapiro-Wilk", math.nan, math.nan, False, "all trials are equal")
+    if n <= SHAPIRO_MAX_N:
+        from scipy.stats import shapiro
+
+        # W does not depend on the scale; dividing by sd keeps AS R94 away from its absolute
+        # "range zero" limit when trials are tiny numbers (e.g. 1e-20 s).
+        result = shapiro(x / sd)
+        return NormalityTest("Shapiro-Wilk", float(result.statistic), float(result.pvalue), True)
+    statistic, pvalue = dagostino_pearson(n, *moments)
+    return NormalityTest("D'Agostino-Pearson K2", statistic, pvalue, True)
+
+
+def dagostino_pearson(n: int, m2: float, m3: float, m4: float) -> tuple[float, float]:
+    """K^2 and its p-value from the central moments m2, m3, m4 (divisor n) of n >= 8 values.
+
+    K^2 = Z(b1)^2 + Z(b2)^2 (D'Agostino & Pearson 1973), with the skewness transform of
+    D'Agostino (1970) and the kurtosis transform of Anscombe & Glynn (1983), as set out by
+    D'Agostino, Belanger & D'Agostino (1990); K^2 is chi-squared with 2 df, so p = exp(-K^2/2).
+    Computed from moments the caller already has, it matches scipy.stats.normaltest without
+    scipy's extra passes over the data.
+    """
+    if n < 8:
+        raise TrialError(f"D'Agostino-Pearson K^2 needs at least 8 values, got {n}")
+    b1 = m3 / m2**1.5
+    b2 = m4 / m2**2
+    # Skewness: D'Agostino (1970).
+    y = b1 * math.sqrt((n + 1) * (n + 3) / (6.0 * (n - 2)))
+    beta2 = (
+        3.0 * (n * n + 27 * n - 70) * (n + 1) * (n + 3)
+        / ((n - 2.0) * (n + 5) * (n + 7) * (n + 9))
+    )
+    w2 = -1.0 + math.sqrt(2.0 * (beta2 - 1.0))
+    delta = 1.0 / math.sqrt(0.5 * math.log(w2))
+    a = math.sqrt(2.0 / (w2 - 1.0))
+    z_skew = delta * math.asinh(y / a)  # = delta * log(y/a + sqrt((y/a)^2 + 1))
+    # Kurtosis: Anscombe & Glynn (1983), equations 1-5.
+    expected = 3.0 * (n - 1) / (n + 1)
+    variance = 24.0 * n * (n - 2) * (n - 3) / ((n + 1) * (n + 1.0) * (n + 3) * (n + 5))
+    standard = (b2 - expected) / math.sqrt(variance)
+    root_beta1 = (
+        6.0 * (n * n - 5 * n + 2) / ((n + 7) * (n + 9))
+        * math.sqrt(6.0 * (n + 3) * (n + 5) / (n * (n - 2) * (n - 3)))
+    )
+    big_a = 6.0 + 8.0 / root_beta1 * (2.0 / root_beta1 + math.sqrt(1.0 + 4.0 / root_beta1**2))
+    denominator = 1.0 + standard * math.sqrt(2.0 / (big_a - 4.0))
+    if denominator == 0.0:
+        return math.nan, math.nan
+    term = math.copysign(abs((1.0 - 2.0 / big_a) / denominator) ** (1.0 / 3.0), denominator)
+    z_kurt = (1.0 - 2.0 / (9.0 * big_a) - term) / math.sqrt(2.0 / (9.0 * big_a))
+    statistic = z_skew * z_skew + z_kurt * z_kurt
+    return statistic, math.exp(-statistic / 2.0)
 
 
 def tukey_fences(x: np.ndarray, k: float = 1.5) -> tuple[float, float]:
@@ -235,38 +342,3 @@ def _evenly_spaced(n: int, limit: int) -> np.ndarray:
     if n <= limit:
         return np.arange(n)
     return np.unique(np.linspace(0, n - 1, limit).round().astype(np.intp))
-
-
-def _skewness(x: np.ndarray, mean: float, sd: float) -> float:
-    n = x.size
-    z = (x - mean) / sd
-    # G1 = n / ((n-1)(n-2)) * sum(z^3) with z standardised by the n-1 sd (Joanes & Gill 1998).
-    return float(n / ((n - 1) * (n - 2)) * float(np.sum(z * z * z)))
-
-
-def _excess_kurtosis(x: np.ndarray, mean: float) -> float:
-    n = x.size
-    d = x - mean
-    m2 = float(np.mean(d * d))
-    g2 = float(np.mean(d**4)) / (m2 * m2) - 3.0
-    # G2 = ((n+1) g2 + 6)(n-1) / ((n-2)(n-3)) (Joanes & Gill 1998).
-    return ((n + 1) * g2 + 6.0) * (n - 1) / ((n - 2) * (n - 3))
-
-
-def _normality(x: np.ndarray, zero_spread: bool) -> NormalityTest:
-    n = x.size
-    if n < 3:
-        return NormalityTest("Shapiro-Wilk", math.nan, math.nan, False, f"needs 3 trials, got {n}")
-    if zero_spread:
-        return NormalityTest("Shapiro-Wilk", math.nan, math.nan, False, "all trials are equal")
-    if n <= SHAPIRO_MAX_N:
-        from scipy.stats import shapiro
-
-        result = shapiro(x)
-        return NormalityTest("Shapiro-Wilk", float(result.statistic), float(result.pvalue), True)
-    from scipy.stats import normaltest
-
-    result = normaltest(x)
-    return NormalityTest(
-        "D'Agostino-Pearson K2", float(result.statistic), float(result.pvalue), True
-    )

@@ -100,7 +100,7 @@ def assumption_notes(
             "interval at risk",
         })
     drift = d.drift
-    drifting = drift is not None and drift.rejects(drift_alpha)
+    drifting = drift.rejects(drift_alpha)
     # A steady drift spreads the trials evenly, which the bimodality coefficient reads as two
     # groups: the drift note says what is going on.
     if not drifting and _bimodal(d, normality_alpha):
@@ -115,7 +115,6 @@ def assumption_notes(
     independence = _independence_notes(d, alpha, method)
     notes.extend(independence)
     if drifting:
-        assert drift is not None
         text = (f"trials drift: the level moved by about {drift.change:.4g} from first to last "
                 f"trial (Mann-Kendall p = {drift.pvalue:.3g}); the mean is not steady, so the "
                 "interval describes this run only: warm up longer or find the cause")
