@@ -31,11 +31,11 @@ SHAPIRO_MAX_N = 5000
 #: Sarle's bimodality coefficient of a uniform distribution; larger values suggest two modes
 #: (SAS Institute 1990; Pfister et al. 2013).
 BIMODAL_THRESHOLD = 5.0 / 9.0
-#: Above this many trials the Mann-Kendall test runs on evenly spaced trials (O(n log n) anyway,
-#: but 10^6 trials would take a noticeable fraction of a second).
-DRIFT_MAX_N = 100_000
+#: Above this many trials the Mann-Kendall test runs on evenly spaced trials: O(n log n) anyway,
+#: and 20,000 trials detect any drift worth a note, at a small share of diagnose's time.
+DRIFT_MAX_N = 20_000
 #: Above this many trials Sen's slope (O(n^2) pairs) is taken from evenly spaced trials.
-SLOPE_MAX_N = 1_000
+SLOPE_MAX_N = 400
 
 
 @dataclass(frozen=True, slots=True)
@@ -199,7 +199,7 @@ def diagnose(values: Iterable[float] | np.ndarray, *, alpha: float = 0.05) -> Di
         outliers=outliers,
         outlier_low=fences[0],
         outlier_high=fences[1],
-        drift=drift_test(x),
+        drift=_drift(x),
         bimodality=bimodality_coefficient(skewness, kurtosis, n),
         log_skewness=log_skewness,
         log_normality_pvalue=log_pvalue,
@@ -293,10 +293,39 @@ def dagostino_pearson(n: int, m2: float, m3: float, m4: float) -> tuple[float, f
 
 
 def tukey_fences(x: np.ndarray, k: float = 1.5) -> tuple[float, float]:
-    """Tukey's fences Q1 - k IQR and Q3 + k IQR (Tukey 1977); quartiles by linear interpolation."""
-    q1, q3 = np.percentile(x, [25.0, 75.0])
-    iqr = float(q3 - q1)
+    """Tukey's fences Q1 - k IQR and Q3 + k IQR (Tukey 1977); quartiles by linear interpolation.
+
+    The quartiles are numpy's default (linear) percentiles, from four order statistics.
+    """
+    n = x.size
+    stats = _order_statistics(x, [(n - 1) * 0.25, (n - 1) * 0.75])
+    q1, q3 = stats
+    iqr = q3 - q1
     return float(q1 - k * iqr), float(q3 + k * iqr)
+
+
+def _order_statistics(x: np.ndarray, positions: list[float]) -> list[float]:
+    """Linearly interpolated order statistics at fractional 0-based ``positions``.
+
+    One selection per needed rank, each on the tail left by the one before: a few O(n) passes,
+    several times faster on 10^6 trials than a sort or a multi-rank ``np.partition``.
+    """
+    n = x.size
+    ranks = sorted({min(math.floor(p) + step, n - 1) for p in positions for step in (0, 1)})
+    work = np.array(x, dtype=np.float64, copy=True)
+    value: dict[int, float] = {}
+    start = 0
+    for rank in ranks:
+        tail = work[start:]
+        tail.partition(rank - start)
+        value[rank] = float(work[rank])
+        start = rank + 1
+    out = []
+    for p in positions:
+        low = math.floor(p)
+        high = min(low + 1, n - 1)
+        out.append(value[low] + (p - low) * (value[high] - value[low]))
+    return out
 
 
 def bimodality_coefficient(skewness: float, excess_kurtosis: float, n: int) -> float:
@@ -319,7 +348,10 @@ def drift_test(values: Iterable[float] | np.ndarray) -> DriftTest:
     (Sen 1968, median of pairwise slopes, ``scipy.stats.theilslopes``) uses at most
     ``SLOPE_MAX_N``. Independent trials are assumed: autocorrelation inflates the false alarms.
     """
-    x = as_sample(values, minimum=1)
+    return _drift(as_sample(values, minimum=1))
+
+
+def _drift(x: np.ndarray) -> DriftTest:
     n = x.size
     if n < 4:
         return DriftTest("Mann-Kendall", math.nan, math.nan, math.nan, math.nan, False, n,
@@ -341,4 +373,5 @@ def drift_test(values: Iterable[float] | np.ndarray) -> DriftTest:
 def _evenly_spaced(n: int, limit: int) -> np.ndarray:
     if n <= limit:
         return np.arange(n)
-    return np.unique(np.linspace(0, n - 1, limit).round().astype(np.intp))
+    # Spacing above 1, so the rounded positions are distinct.
+    return np.linspace(0, n - 1, limit).round().astype(np.intp)
