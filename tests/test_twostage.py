@@ -6,8 +6,6 @@ import math
 
 import numpy as np
 import pytest
-from scipy import stats
-
 from meanband.bands import Verdict, make_band
 from meanband.errors import TrialError
 from meanband.twostage import (
@@ -19,6 +17,7 @@ from meanband.twostage import (
     stein_interval,
     verdicts,
 )
+from scipy import stats
 
 PILOT = np.array([10.2, 9.8, 10.5, 9.9, 10.1, 10.4, 9.7, 10.0, 10.3, 10.1])
 
