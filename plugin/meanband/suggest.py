@@ -122,11 +122,11 @@ def suggest_trials(
     )
     if needed is None:
         if margin == 0:
-            reason = "the mean sits on the band edge: no trial count decides it"
+            reason = f"{verdict} at n={n}; the mean sits on the band edge: no count decides it"
         else:
             reason = (
-                f"more than {_N_CEILING:,} trials would be needed: the mean lies "
-                f"{format_value(margin, unit)} from the edge, small beside its sd "
+                f"{verdict} at n={n}; more than {_N_CEILING:,} trials would be needed: the mean "
+                f"lies {format_value(margin, unit)} from the edge, small beside its sd "
                 f"{format_value(sd, unit)}"
             )
         return Suggestion(None, reason, "none", n, power, power_now)
@@ -135,24 +135,30 @@ def suggest_trials(
     if verdict == "UNDECIDED":
         count = max(needed, n + 1)
         reason = (
-            f"undecided at {n} trials; {count} decide it with {power:.0%} power "
+            f"UNDECIDED at n={n}; about {count} trials would decide it with {power:.0%} power "
             f"(mean {format_value(mean, unit)}, sd {format_value(sd, unit)}, "
             f"{format_value(margin, unit)} from the edge)"
         )
         return Suggestion(count, reason, "more", n, power, power_now)
     if needed > n:
         reason = (
-            f"passed, but {n} trials pass again with only {power_now:.0%} power; "
-            f"{needed} reach {power:.0%}"
+            f"PASS at n={n}, but a rerun passes with only {power_now:.0%} power; "
+            f"about {needed} trials reach {power:.0%}"
         )
         return Suggestion(needed, reason, "more", n, power, power_now)
     if n - needed >= max(1.0, MIN_SAVING * n):
         saves = None if trial_seconds is None else (n - needed) * float(trial_seconds)
-        reason = f"passes with a wide margin: {needed} trials still pass with {power:.0%} power"
+        reason = (
+            f"PASS at n={n} with a wide margin; about {needed} trials would still pass with "
+            f"{power:.0%} power"
+        )
         if saves is not None:
             reason += f", saving about {format_value(saves, SECONDS, 2)} per run"
         return Suggestion(needed, reason, "fewer", n, power, power_now, saves)
-    reason = f"{n} trials are about right ({power_now:.0%} power; {needed} would give {power:.0%})"
+    reason = (
+        f"PASS at n={n}; the count is about right ({power_now:.0%} power, {needed} would give "
+        f"{power:.0%})"
+    )
     return Suggestion(n, reason, "keep", n, power, power_now)
 
 

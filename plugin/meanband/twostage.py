@@ -32,7 +32,7 @@ pull the verdict its way, which raises the false-PASS rate above 1 - C.
 from __future__ import annotations
 
 import math
-from collections.abc import Iterable
+from collections.abc import Callable, Iterable
 from dataclasses import dataclass
 from typing import Any
 
@@ -49,9 +49,11 @@ __all__ = [
     "DEFAULT_PILOT",
     "MIN_SECOND",
     "StagePlan",
+    "TwoStageRun",
     "check_max_n",
     "decide_two_stage",
     "plan_second_stage",
+    "run_two_stage",
     "second_stage_counts",
     "stein_interval",
     "verdicts",
@@ -303,3 +305,36 @@ def decide_two_stage(
     )
     diagnostics = diagnose(np.concatenate([first, rest]), alpha=alpha)
     return Decision(Verdict(str(verdict)), band, interval, counter, diagnostics, None, band.unit)
+
+
+@dataclass(frozen=True)
+class TwoStageRun:
+    """Trials of both stages and the plan the pilot made."""
+
+    pilot: np.ndarray
+    second: np.ndarray
+    plan: StagePlan
+
+    @property
+    def values(self) -> np.ndarray:
+        """All trials, pilot first."""
+        return np.concatenate([self.pilot, self.second])
+
+
+def run_two_stage(
+    collect: Callable[[int], np.ndarray],
+    band: Band,
+    *,
+    pilot_n: int = DEFAULT_PILOT,
+    confidence: float = 0.95,
+    power: float = 0.9,
+    max_n: int = DEFAULT_MAX_N,
+) -> TwoStageRun:
+    """Collect a pilot with ``collect(pilot_n)``, plan, then collect the second stage."""
+    if isinstance(pilot_n, bool) or not isinstance(pilot_n, (int, np.integer)) or pilot_n < 2:
+        raise TrialError(f"pilot must be a whole number of trials >= 2, got {pilot_n!r}")
+    check_max_n(max_n, int(pilot_n))
+    pilot = as_sample(collect(int(pilot_n)), minimum=int(pilot_n))
+    plan = plan_second_stage(pilot, band, confidence=confidence, power=power, max_n=max_n)
+    second = as_sample(collect(plan.second_n), minimum=plan.second_n)
+    return TwoStageRun(pilot, second, plan)
