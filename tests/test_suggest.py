@@ -32,7 +32,7 @@ def test_undecided_budget_asks_for_the_count_statsmodels_gives():
     assert s is not None and s.direction == "more"
     assert s.n == _statsmodels_n(0.2 / 0.5, 0.05, 0.9)
     assert s.n > 8
-    assert "undecided at 8 trials" in s.reason and "90% power" in s.reason
+    assert "UNDECIDED at n=8; about" in s.reason and "90% power" in s.reason
     assert s.power_now is not None and s.power_now < 0.5
 
 
@@ -83,7 +83,7 @@ def test_lucky_pass_with_low_power_asks_for_more():
                        confidence=0.95, power=0.9)
     assert s is not None and s.direction == "more"
     assert s.n == _statsmodels_n(0.6, 0.05, 0.9) and s.n > 10
-    assert "passed, but" in s.reason
+    assert "PASS at n=10, but" in s.reason
 
 
 def test_a_count_close_to_the_need_is_kept():
@@ -168,6 +168,6 @@ def test_trial_seconds_of_a_timing_row():
     values = [0.002, 0.003, 0.004]
     assert trial_seconds({"source": "time", "values": values, "timing": {"k": 10}}) == (
         pytest.approx(0.03))
-    assert trial_seconds({"source": "time", "values": values,
-                          "timing": {"trial_seconds": 0.5}}) == 0.5
+    assert trial_seconds({"source": "time", "values": values, "timing": None}) == (
+        pytest.approx(0.003))
     assert trial_seconds({"source": "sample", "values": values}) is None

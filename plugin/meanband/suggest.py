@@ -169,26 +169,20 @@ def _power(margin: float, sd: float, n: int, alpha: float) -> float:
 
 
 def trial_seconds(row: Mapping[str, Any]) -> float | None:
-    """Wall-clock seconds one trial of a timing row costs, or None when unknown.
+    """Wall-clock seconds one more trial of a timing row costs, or None when unknown.
 
-    Prefers the timing engine's own measure of wall time per trial; otherwise the mean
-    seconds per call times the calls per trial. Only timing rows have one: a sample's
-    callable may wait on an instrument whose time the trials do not measure.
+    The mean seconds per call times the calls per trial (the timing engine's ``k``): the
+    marginal cost of a trial, leaving out fixed costs such as calibration and warm-up that a
+    smaller count does not save. Only timing rows have one: a sample's callable may wait on
+    an instrument whose time the trials do not measure.
     """
     if row.get("source") != "time":
         return None
-    timing = row.get("timing") or {}
-    for key in ("trial_seconds", "wall_per_trial"):
-        value = timing.get(key)
-        if isinstance(value, (int, float)) and math.isfinite(value) and value >= 0:
-            return float(value)
-    wall, count = timing.get("wall_seconds"), timing.get("trials")
-    if isinstance(wall, (int, float)) and isinstance(count, int) and count > 0:
-        return float(wall) / count
     values = row.get("values") or []
     if not values:
         return None
-    calls = timing.get("k") or timing.get("calls_per_trial") or 1
+    timing = row.get("timing") or {}
+    calls = timing.get("k") or 1
     return float(sum(values) / len(values)) * float(calls)
 
 

@@ -1,0 +1,181 @@
+"""``meanband plan``: suggestions from stored rows, without running the tests."""
+
+from __future__ import annotations
+
+import json
+import sys
+import types
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+import pytest
+from meanband.cli import main
+from meanband.planfile import read_plan
+
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover
+    import tomli as tomllib
+
+RNG = np.random.default_rng(77)
+
+
+def _straddle() -> list[float]:
+    z = RNG.standard_normal(6)
+    return (299.7 + 0.5 * (z - z.mean()) / z.std(ddof=1)).tolist()  # upper bound 300.11
+
+
+SUITE = f"""
+import json
+
+def test_kiln(trials):
+    trials.extend({_straddle()!r}, unit="degC")
+    trials.check(high=300.0)
+
+def test_wide(trials):
+    trials.extend({(5.0 + 0.05 * RNG.standard_normal(60)).tolist()!r}, unit="V")
+    trials.check(4.0, 6.0)
+
+def test_hot(trials):
+    trials.extend([310.0, 311.0, 309.5, 310.5, 310.2, 309.8], unit="degC")
+    trials.check(high=300.0)
+"""
+
+DUMP_ROWS = """
+import json
+
+def pytest_meanband_session_finish(config, rows):
+    with open("rows.json", "w") as stream:
+        json.dump(rows, stream)
+"""
+
+
+@pytest.fixture
+def rows_file(run_suite, pytester):
+    pytester.makepyfile(test_bench=SUITE)
+    pytester.makeconftest(DUMP_ROWS)
+    run_suite("--meanband-write-plan", "from-run.toml")
+    return pytester.path / "rows.json"
+
+
+def test_plan_from_a_rows_file_matches_the_run(rows_file, capsys):
+    status = main(["plan", "--rows", str(rows_file), "--write", str(rows_file.with_name("cli.toml"))])
+    out = capsys.readouterr().out
+    assert status == 0
+    assert out.splitlines()[0].startswith("suggested trial counts (90% power) from ")
+    assert "test_bench.py::test_kiln" in out and "UNDECIDED at n=6; about" in out
+    assert "test_bench.py::test_wide" in out and "wide margin" in out
+    assert "test_bench.py::test_hot" in out and "FAIL at n=6; more trials would not change" in out
+    # The command and the run agree on every count and reason.
+    assert read_plan(rows_file.with_name("cli.toml")).entries == read_plan(
+        rows_file.with_name("from-run.toml")).entries
+
+
+def test_power_option_changes_the_counts(rows_file, capsys):
+    main(["plan", "--rows", str(rows_file), "--power", "0.8", "--write", "p80.toml"])
+    main(["plan", "--rows", str(rows_file), "--power", "0.95", "--write", "p95.toml"])
+    out = capsys.readouterr().out
+    assert "(80% power)" in out and "(95% power)" in out
+    low = tomllib.loads(open("p80.toml").read())["tests"]["test_bench.py::test_kiln"]["n"]
+    high = tomllib.loads(open("p95.toml").read())["tests"]["test_bench.py::test_kiln"]["n"]
+    assert low < high
+
+
+def test_report_shaped_file_with_runs(tmp_path, rows_file, capsys):
+    rows = json.loads(rows_file.read_text())
+    for row in rows:  # a report writes infinities as strings
+        band = row["decision"]["band"]
+        band["low"] = "-Infinity" if band["low"] == -np.inf else band["low"]
+    report = {"format": "meanband-report", "rows": [dict(r, run=0) for r in rows[:1]]
+              + [dict(r, run=1) for r in rows]}
+    path = tmp_path / "report.json"
+    path.write_text(json.dumps(report))
+    assert main(["plan", "--rows", str(path)]) == 0
+    assert "from run 1 of" in capsys.readouterr().out
+    assert main(["plan", "0", "--rows", str(path)]) == 0
+    out = capsys.readouterr().out
+    assert "from run 0 of" in out and "test_wide" not in out
+    assert main(["plan", "5", "--rows", str(path)]) == 2
+    assert "no run '5'" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("content, message", [
+    ("{not json", "is not JSON"),
+    ('{"rows": 3}', "holds no result rows"),
+])
+def test_bad_rows_file_is_a_clear_error(tmp_path, capsys, content, message):
+    path = tmp_path / "rows.json"
+    path.write_text(content)
+    assert main(["plan", "--rows", str(path)]) == 2
+    assert message in capsys.readouterr().err
+
+
+def test_missing_store_says_what_to_do(tmp_path, capsys, monkeypatch):
+    monkeypatch.setitem(sys.modules, "meanband.history", _fake_history([]))
+    assert main(["plan", "--store", str(tmp_path / "none.sqlite")]) == 2
+    assert "no history store at" in capsys.readouterr().err
+
+
+# -- the history store, through the API the plan command reads --------------------------------
+
+@dataclass
+class _RunInfo:
+    id: int
+    label: str
+    started: str
+
+
+@dataclass
+class _StoredCheck:
+    nodeid: str
+    series: str
+    row: dict[str, Any]
+    values: np.ndarray = field(repr=False)
+
+
+class _StoreError(Exception):
+    pass
+
+
+def _fake_history(rows: list[dict[str, Any]]) -> types.ModuleType:
+    """A stand-in for meanband.history with the calls the plan command makes."""
+    module = types.ModuleType("meanband.history")
+
+    class HistoryStore:
+        def __init__(self, path, *, create=True):
+            assert create is False  # reading must never create a store
+            self.path = path
+
+        def __enter__(self):
+            return self
+
+        def __exit__(self, *exc):
+            return None
+
+        def find_run(self, ref=None):
+            if ref not in (None, "latest", "7", "nightly"):
+                raise _StoreError(f"no run labelled or numbered {ref!r}")
+            return _RunInfo(7, "nightly", "2026-12-01T20:00:00+00:00")
+
+        def checks(self, run_id):
+            return [_StoredCheck(r["nodeid"], r["series"],
+                                 {k: v for k, v in r.items() if k not in ("values", "warmup")},
+                                 np.asarray(r["values"])) for r in rows]
+
+    module.HistoryStore = HistoryStore  # type: ignore[attr-defined]
+    module.StoreError = _StoreError  # type: ignore[attr-defined]
+    return module
+
+
+def test_plan_from_the_history_store(rows_file, tmp_path, capsys, monkeypatch):
+    rows = json.loads(rows_file.read_text())
+    monkeypatch.setitem(sys.modules, "meanband.history", _fake_history(rows))
+    store = tmp_path / "history.sqlite"
+    store.write_bytes(b"")
+    assert main(["plan", "nightly", "--store", str(store)]) == 0
+    out = capsys.readouterr().out
+    assert f"from run #7 'nightly' of 2026-12-01T20:00:00+00:00 in {store}" in out
+    assert "UNDECIDED at n=6; about" in out
+    assert main(["plan", "older", "--store", str(store)]) == 2
+    assert "no run labelled or numbered 'older'" in capsys.readouterr().err
