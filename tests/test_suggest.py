@@ -77,6 +77,12 @@ def test_min_n_is_a_floor_for_a_smaller_count():
     assert s is not None and s.n == 12
 
 
+def test_min_n_raises_a_count_that_power_alone_would_keep():
+    s = suggest_trials(verdict="PASS", mean=1.0, sd=0.1, n=6, low=-math.inf, high=2.0,
+                       confidence=0.95, min_n=10)
+    assert s is not None and s.n == 10 and s.direction == "more" and "min_n" in s.reason
+
+
 def test_lucky_pass_with_low_power_asks_for_more():
     # Passed (upper bound just under the edge), but a repeat passes only about half the time.
     s = suggest_trials(verdict="PASS", mean=2.7, sd=0.5, n=10, low=-math.inf, high=3.0,

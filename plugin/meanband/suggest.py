@@ -130,7 +130,7 @@ def suggest_trials(
                 f"{format_value(sd, unit)}"
             )
         return Suggestion(None, reason, "none", n, power, power_now)
-    needed = max(needed, floor)
+    by_power, needed = needed, max(needed, floor)
 
     if verdict == "UNDECIDED":
         count = max(needed, n + 1)
@@ -140,6 +140,12 @@ def suggest_trials(
             f"{format_value(margin, unit)} from the edge)"
         )
         return Suggestion(count, reason, "more", n, power, power_now)
+    if needed > n and by_power <= n:
+        reason = (
+            f"PASS at n={n}; {by_power} trials would pass with {power:.0%} power, but min_n asks "
+            f"for {needed} so that the assumption checks have trials to work on"
+        )
+        return Suggestion(needed, reason, "more", n, power, power_now)
     if needed > n:
         reason = (
             f"PASS at n={n}, but a rerun passes with only {power_now:.0%} power; "
