@@ -61,9 +61,10 @@ def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) ->
 
 def _guarded(command: Callable[[argparse.Namespace], int]) -> Callable[[argparse.Namespace], int]:
     def run(args: argparse.Namespace) -> int:
+        errors: tuple[type[Exception], ...] = (TrialError, OSError, *_store_errors())
         try:
             return command(args)
-        except (TrialError, OSError, *_store_errors()) as exc:
+        except errors as exc:
             print(f"meanband plan: error: {exc}", file=sys.stderr)
             return USAGE_ERROR
 
