@@ -13,7 +13,7 @@ and prints:
 - the false-PASS rate with the true mean on the budget (at most 1 - C = 5%), for the rule as
   built and for the tempting variant that pools the pilot into the mean.
 
-Run: ``.venv/bin/python studies/two_stage.py [--runs N] [--seed S]``. Nothing here is asserted;
+Run: ``.venv/bin/python studies/two_stage.py [--runs N] [--seed S] [--max-n CAP]``. Nothing here is asserted;
 the tests check the error control (tests/test_twostage.py).
 """
 
@@ -30,7 +30,7 @@ from scipy import stats
 EDGE = 3.0  # ms
 CONFIDENCE = 0.95
 POWER = 0.9
-MAX_N = 1000
+MAX_N = 1000  # the default cap; --max-n changes it
 CELLS = [  # (margin, sd) in ms
     (0.4, 0.4),
     (0.2, 0.4),
@@ -41,13 +41,14 @@ CELLS = [  # (margin, sd) in ms
 ]
 
 
-def simulate(rng: np.random.Generator, mean: float, sd: float, runs: int, *, pooled: bool):
+def simulate(rng: np.random.Generator, mean: float, sd: float, runs: int, *, pooled: bool,
+             max_n: int = MAX_N):
     """Totals and PASS flags of ``runs`` two-stage checks, vectorised across runs."""
     pilot = rng.normal(mean, sd, size=(runs, DEFAULT_PILOT))
     pilot_mean, pilot_sd = pilot.mean(axis=1), pilot.std(axis=1, ddof=1)
     second_n, requested = second_stage_counts(
         pilot_mean, pilot_sd, DEFAULT_PILOT, -math.inf, EDGE,
-        confidence=CONFIDENCE, power=POWER, max_n=MAX_N,
+        confidence=CONFIDENCE, power=POWER, max_n=max_n,
     )
     width = int(second_n.max())
     second = rng.normal(mean, sd, size=(runs, width))
@@ -81,17 +82,19 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--runs", type=int, default=4000, help="simulated checks per row")
     parser.add_argument("--seed", type=int, default=20261201)
+    parser.add_argument("--max-n", type=int, default=MAX_N, help="cap on the two-stage total")
     args = parser.parse_args()
     rng = np.random.default_rng(args.seed)
 
     print(f"Budget {EDGE} ms, confidence {CONFIDENCE:.0%}, target power {POWER:.0%}, "
-          f"pilot {DEFAULT_PILOT}, max_n {MAX_N}, {args.runs} runs per row")
+          f"pilot {DEFAULT_PILOT}, max_n {args.max_n}, {args.runs} runs per row")
     header = (f"{'margin':>7} {'sd':>5} {'d/sd':>5} | {'2-stage n':>9} {'capped':>7} "
               f"{'power':>6} | {'fixed n, same power':>19} {'ratio':>6} | {'fixed n at 90%':>14}")
     print(header)
     print("-" * len(header))
     for margin, sd in CELLS:
-        totals, passed, capped = simulate(rng, EDGE - margin, sd, args.runs, pooled=False)
+        totals, passed, capped = simulate(rng, EDGE - margin, sd, args.runs, pooled=False,
+                                          max_n=args.max_n)
         power = float(passed.mean())
         same = fixed_n_for_power(margin / sd, power)
         nominal = fixed_n_for_power(margin / sd, POWER)
@@ -103,8 +106,8 @@ def main() -> None:
     print()
     print("False PASS with the true mean on the budget (at most 5% allowed):")
     for sd in (0.4, 0.8):
-        _, kept, _ = simulate(rng, EDGE, sd, args.runs, pooled=False)
-        _, pooled, _ = simulate(rng, EDGE, sd, args.runs, pooled=True)
+        _, kept, _ = simulate(rng, EDGE, sd, args.runs, pooled=False, max_n=args.max_n)
+        _, pooled, _ = simulate(rng, EDGE, sd, args.runs, pooled=True, max_n=args.max_n)
         se = math.sqrt(0.05 * 0.95 / args.runs)
         print(f"  sd {sd:.1f}: as built (second-stage mean, Stein's interval) {kept.mean():6.2%}"
               f"   pilot pooled into an ordinary t bound {pooled.mean():6.2%}"
