@@ -294,7 +294,7 @@ def test_auto_with_and_without_a_cap(run_suite, pytester):
     assert cap >= 14
     pytester.makepyfile(test_auto=AUTO_SUITE.replace("EXPECT_FREE", str(free))
                         .replace("EXPECT_CAP", str(cap)))
-    result = run_suite("-n", "2")
+    result = run_suite()
     result.assert_outcomes(passed=5)
     text = "\n".join(result.outlines)
     assert f"test_auto.py::test_auto: two-stage: pilot of 10 trials, then {free - 10} more" in text
