@@ -281,6 +281,11 @@ def test_auto_needs_a_band(trials):
     with pytest.raises(TrialError, match="max_n=5 leaves no room"):
         trials.sample(float, 1, n="auto", band=dict(high=2.0), max_n=5)
 
+@pytest.mark.xfail(raises=AssertionError, strict=True)
+def test_auto_capped_undecided(trials):
+    trials.sample(itertools.cycle(AUTO).__next__, n="auto", band=dict(high=9.55), max_n=14)
+    trials.check()
+
 def test_auto_other_band_is_refused(trials):
     trials.sample(itertools.cycle(AUTO).__next__, n="auto", band=dict(high=10.0))
     with pytest.raises(TrialError, match="differs from the band"):
@@ -294,9 +299,13 @@ def test_auto_with_and_without_a_cap(run_suite, pytester):
     assert cap >= 14
     pytester.makepyfile(test_auto=AUTO_SUITE.replace("EXPECT_FREE", str(free))
                         .replace("EXPECT_CAP", str(cap)))
-    result = run_suite()
-    result.assert_outcomes(passed=5)
+    result = run_suite("--meanband-write-plan", "plan.toml")
+    result.assert_outcomes(passed=5, xfailed=1)
     text = "\n".join(result.outlines)
+    assert ("test_auto.py::test_auto_capped_undecided: UNDECIDED at n=4 after a pilot of 10: the "
+            "two-stage rule was capped at max_n=14; raise max_n") in text
+    assert "count chosen at run time" not in text  # decided n="auto" checks need no advice
+    assert "[tests." not in (pytester.path / "plan.toml").read_text()  # nor a plan entry
     assert f"test_auto.py::test_auto: two-stage: pilot of 10 trials, then {free - 10} more" in text
     assert re.search(rf"test_auto.py::test_auto_capped: two-stage: the pilot of 10 trials asked "
                      rf"for {free - 10} more; capped at max_n={cap} \({cap - 10} more\)", text)

@@ -66,6 +66,7 @@ def test_entries_from_rows_take_the_largest_count_per_series():
         _check_row("t.py::b", "", "FAIL", 15, None),
         {"nodeid": "t.py::c", "series": "", "kind": "unchecked", "decision": None},
         _check_row("t.py::d", "", "UNDECIDED", 15, {"n": None, "reason": "on the edge"}),
+        _check_row("t.py::e", "", "PASS", 15, {"n": None, "reason": "x", "direction": "auto"}),
     ]
     entries = {(e.nodeid, e.series): e for e in entries_from_rows(rows)}
     assert entries[("t.py::a", "")].n == 30 and entries[("t.py::a", "")].reason == "second check"
@@ -74,6 +75,7 @@ def test_entries_from_rows_take_the_largest_count_per_series():
     assert failed.n == 15 and "failed decisively" in failed.reason
     assert ("t.py::c", "") not in entries
     assert entries[("t.py::d", "")].n is None
+    assert ("t.py::e", "") not in entries  # n="auto" picks its count at run time
 
 
 def test_syntax_error_names_the_file_and_line():

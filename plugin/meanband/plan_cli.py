@@ -178,11 +178,12 @@ def _plan(args: argparse.Namespace) -> int:
         row["suggestion"] = None if suggestion is None else suggestion.to_dict()
         if suggestion is None:
             if args.all or verdict == "FAIL":
-                why = ("more trials would not change the verdict" if verdict == "FAIL"
-                       else "count chosen at run time (n='auto')")
+                why = "more trials would not change the verdict"
                 lines.append((row_name(row), str(n), "-", f"{verdict} at n={n}; {why}"))
             continue
-        if suggestion.direction == "keep" and not args.all:
+        quiet = suggestion.direction == "keep" or (
+            suggestion.direction == "auto" and verdict != "UNDECIDED")
+        if quiet and not args.all:
             continue
         shown = "-" if suggestion.n is None else str(suggestion.n)
         lines.append((row_name(row), str(n), shown, suggestion.reason))

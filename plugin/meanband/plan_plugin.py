@@ -200,5 +200,11 @@ class PlanPlugin:
 
 
 def _summary_text(suggestion: dict[str, Any]) -> str:
-    """The summary line: the reason, which leads with the verdict and count; none for "keep"."""
-    return "" if suggestion.get("direction") == "keep" else str(suggestion.get("reason", ""))
+    """The summary line: the reason, which leads with the verdict and count.
+
+    Nothing for a count that is about right, nor for an n="auto" check that decided.
+    """
+    direction, reason = suggestion.get("direction"), str(suggestion.get("reason", ""))
+    if direction == "keep" or (direction == "auto" and not reason.startswith("UNDECIDED")):
+        return ""
+    return reason

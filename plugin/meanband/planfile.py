@@ -75,6 +75,7 @@ def entries_from_rows(rows: Iterable[Mapping[str, Any]]) -> list[PlanEntry]:
 
     A series with several checks gets the largest count any of them asks for. A check that
     failed decisively keeps the count it ran with: more trials would not change its verdict.
+    A check whose count ``n="auto"`` chose has no entry.
     """
     chosen: dict[tuple[str, str], PlanEntry] = {}
     for row in rows:
@@ -83,6 +84,8 @@ def entries_from_rows(rows: Iterable[Mapping[str, Any]]) -> list[PlanEntry]:
         key = (str(row["nodeid"]), str(row.get("series") or ""))
         suggestion = row.get("suggestion")
         decision = row["decision"]
+        if suggestion and suggestion.get("direction") == "auto":
+            continue  # the two-stage rule picks this count at run time
         if suggestion:
             entry = PlanEntry(
                 key[0], key[1], suggestion.get("n"), str(suggestion.get("reason", "")),

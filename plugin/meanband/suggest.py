@@ -36,8 +36,9 @@ _N_CEILING = 100_000
 class Suggestion:
     """A trial count for one check and why.
 
-    ``direction`` is ``"more"``, ``"fewer"`` or ``"keep"`` (a count), or ``"none"`` when no count
-    decides the check (``n`` is None then). ``power_now`` is the power of the current count.
+    ``direction`` is ``"more"``, ``"fewer"`` or ``"keep"`` (a count), ``"none"`` when no count
+    decides the check, or ``"auto"`` when the two-stage rule chose it (``n`` is None then).
+    ``power_now`` is the power of the current count.
     """
 
     n: int | None
@@ -197,15 +198,16 @@ def suggestion_for_row(
 ) -> Suggestion | None:
     """The suggestion for one result row (see the row contract), or None.
 
-    None for a series with no check, for a FAIL, and for a check whose count the two-stage
-    rule chose at run time (``n="auto"``). ``power`` overrides the row's own setting.
+    None for a series with no check and for a FAIL. A check whose count the two-stage rule
+    chose at run time (``n="auto"``) gets direction ``"auto"`` and no count, with a reason that
+    says what to change when it stayed UNDECIDED. ``power`` overrides the row's own setting.
     """
     decision = row.get("decision")
     if row.get("kind") != "check" or not decision:
         return None
     interval = decision["interval"]
     if interval.get("method") == "two-stage":
-        return None
+        return _two_stage_suggestion(row, decision)
     settings = row.get("settings") or {}
     if power is None:
         power = settings.get("power", DEFAULT_POWER)
@@ -223,3 +225,25 @@ def suggestion_for_row(
         trial_seconds=trial_seconds(row),
         unit=decision.get("unit") or row.get("unit"),
     )
+
+
+def _two_stage_suggestion(row: Mapping[str, Any], decision: Mapping[str, Any]) -> Suggestion | None:
+    verdict = decision["verdict"]
+    if verdict == "FAIL":
+        return None
+    stages = row.get("two_stage") or {}
+    n = int(decision["interval"]["n"])
+    pilot, power = stages.get("pilot_n", "?"), float(stages.get("power", DEFAULT_POWER))
+    if verdict == "PASS":
+        reason = f"count chosen at run time by the two-stage rule (pilot {pilot} + {n})"
+    elif stages.get("capped"):
+        reason = (
+            f"UNDECIDED at n={n} after a pilot of {pilot}: the two-stage rule was capped at "
+            f"max_n={stages.get('max_n')}; raise max_n to let it decide"
+        )
+    else:
+        reason = (
+            f"UNDECIDED at n={n} after a pilot of {pilot}: the mean is likely nearer the edge "
+            "than the pilot's margin; a larger pilot= gives a better margin"
+        )
+    return Suggestion(None, reason, "auto", n, power, None)
