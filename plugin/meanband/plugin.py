@@ -95,7 +95,7 @@ def trials(request: pytest.FixtureRequest) -> Recorder:
             raise SettingError(f"{where}: {exc}") from None
     plan = dict(config.hook.pytest_meanband_item_settings(item=item) or {})
     series_plans = plan.pop("series", None) or {}
-    tail = config.stash[CONFIG_LAYERS_KEY]
+    tail: list[tuple[str, dict[str, Any]]] = config.stash[CONFIG_LAYERS_KEY]
 
     def with_plan(source: str, values: dict[str, Any]) -> Settings:
         return resolve([*layers, *([(source, values)] if values else []), *tail])
