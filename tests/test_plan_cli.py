@@ -179,3 +179,27 @@ def test_plan_from_the_history_store(rows_file, tmp_path, capsys, monkeypatch):
     assert "UNDECIDED at n=6; about" in out
     assert main(["plan", "older", "--store", str(store)]) == 2
     assert "no run labelled or numbered 'older'" in capsys.readouterr().err
+
+
+def test_bad_power_is_a_usage_error(rows_file, capsys):
+    assert main(["plan", "--rows", str(rows_file), "--power", "90"]) == 2
+    assert "--power must lie strictly between 0 and 1, got 90.0; did you mean 0.9?" in (
+        capsys.readouterr().err)
+
+
+def test_all_lists_counts_that_are_about_right(tmp_path, capsys):
+    from meanband.bands import decide, make_band
+
+    z = np.random.default_rng(4).standard_normal(12)
+    values = (1.0 + 0.1 * (z - z.mean()) / z.std(ddof=1)).tolist()  # mean 1, sd 0.1 exactly
+    decision = decide(values, make_band(high=1.1)).to_dict()  # effect 1: 11 trials would do
+    row = {"nodeid": "t.py::test_fine", "series": "", "kind": "check", "decision": decision,
+           "values": values, "settings": {"power": 0.9, "min_n": 2}}
+    path = tmp_path / "rows.json"
+    path.write_text(json.dumps([row]))
+    main(["plan", "--rows", str(path)])
+    quiet = capsys.readouterr().out
+    main(["plan", "--rows", str(path), "--all"])
+    everything = capsys.readouterr().out
+    assert "t.py::test_fine" not in quiet and "every check's count is about right" in quiet
+    assert "t.py::test_fine" in everything and "the count is about right" in everything
