@@ -7,6 +7,7 @@ from typing import Any
 
 import numpy as np
 
+from meanband import adaptive
 from meanband.bands import Band, Decision, Edge, decide, make_band
 from meanband.errors import BandViolation, TrialError
 from meanband.explain import assumption_notes, describe
@@ -34,7 +35,7 @@ class Series:
         self._warmup = np.empty(0, dtype=np.float64)
         self._timing: dict[str, Any] | None = None
         self._rows: list[Row] = []
-        self._two_stage: tuple[Any, Band] | None = None  # (TwoStageRun, planning band)
+        self._adaptive: adaptive.AdaptiveRun | None = None  # set by n="auto"
 
     # -- collecting -------------------------------------------------------------------------
 
@@ -45,7 +46,7 @@ class Series:
     ) -> np.ndarray:
         """Run ``n`` timed trials of ``fn(*args, **kwargs)``; each value is seconds per call.
 
-        ``n="auto"`` picks the count by Stein's two-stage rule for ``band`` (see ``_auto``).
+        ``n="auto"`` picks the count by Stein's two-stage rule for ``band`` (``adaptive.py``).
         """
         if n == "auto":
             settings = self.settings.merged(warmup=warmup)
@@ -59,7 +60,7 @@ class Series:
                 return run.values
 
             return self._auto(collect, settings, max_n=max_n, band=band, pilot=pilot)
-        _refuse_auto_options(max_n, band, pilot)
+        adaptive.refuse_options(max_n, band, pilot)
         settings = self.settings.merged(n=n, warmup=warmup)
         self._claim(SECONDS, "time")
         run = time_trials(fn, args, kwargs, n=settings.n, warmup=settings.warmup)
@@ -75,7 +76,7 @@ class Series:
     ) -> np.ndarray:
         """Record ``n`` values returned by ``fn(*args, **kwargs)``, in ``unit``.
 
-        ``n="auto"`` picks the count by Stein's two-stage rule for ``band`` (see ``_auto``).
+        ``n="auto"`` picks the count by Stein's two-stage rule for ``band`` (``adaptive.py``).
         """
 
         def collect(count: int) -> np.ndarray:
@@ -88,7 +89,7 @@ class Series:
         if n == "auto":
             self._claim(unit, "sample")
             return self._auto(collect, self.settings, max_n=max_n, band=band, pilot=pilot)
-        _refuse_auto_options(max_n, band, pilot)
+        adaptive.refuse_options(max_n, band, pilot)
         settings = self.settings.merged(n=n)
         self._claim(unit, "sample")
         values = collect(settings.n)
@@ -96,31 +97,15 @@ class Series:
         return values
 
     def _auto(
-        self, collect: Callable[[int], np.ndarray], settings: Settings, *, max_n: int | None,
+        self, take: Callable[[int], np.ndarray], settings: Settings, *, max_n: int | None,
         band: dict[str, Edge] | Band | None, pilot: int | None,
     ) -> np.ndarray:
-        """Stein's two-stage collection: a pilot, then the count its sd and margin call for.
-
-        The band must be known before collecting, so it is given here (``band=dict(high=...)``);
-        a later ``check()`` without edges uses it. ``max_n`` caps the total (pilot included).
-        """
-        from meanband import twostage
-
-        if self._values.size:
-            raise TrialError(
-                f"n='auto' needs a fresh series, but {self._label() or '(default)'} already holds "
-                f"{self._values.size} trials; use trials.series('name') for the adaptive one"
-            )
-        planned = _planning_band(band, self.unit)
-        run = twostage.run_two_stage(
-            collect, planned,
-            pilot_n=twostage.DEFAULT_PILOT if pilot is None else pilot,
-            confidence=settings.confidence, power=settings.power,
-            max_n=twostage.DEFAULT_MAX_N if max_n is None else max_n,
+        self._adaptive = adaptive.collect(
+            take, held=self._values.size, label=self._label(), unit=self.unit, band=band,
+            settings=settings, max_n=max_n, pilot=pilot,
         )
-        self._append(run.values)
-        self._two_stage = (run, planned)
-        return run.values
+        self._append(self._adaptive.values)
+        return self._adaptive.values
 
     def add(self, value: float, *, unit: str | None = None) -> None:
         """Record one value measured elsewhere."""
@@ -171,8 +156,13 @@ class Series:
         bound must lie on the right side of it.
         """
         settings = self.settings.merged(confidence=confidence, method=method)
-        if self._two_stage is not None:
-            decision, notes, row = self._check_two_stage(low, high, center, tolerance, settings)
+        if self._adaptive is not None:
+            decision, notes, extra = self._adaptive.check(
+                low, high, center, tolerance, held=self._values.size, unit=self.unit,
+                settings=settings,
+            )
+            row = self._row("check", settings, decision.to_dict(), notes) | extra
+            row["settings"]["n"] = "auto"
         else:
             band = make_band(low, high, center=center, tolerance=tolerance, unit=self.unit)
             decision = decide(
@@ -188,47 +178,6 @@ class Series:
         if not decision.passed:
             raise BandViolation(describe(decision, label=self._label(), notes=notes), decision)
         return decision
-
-    def _check_two_stage(
-        self, low: Edge, high: Edge, center: Edge, tolerance: Edge, settings: Settings
-    ) -> tuple[Decision, list[dict[str, str]], Row]:
-        from meanband.twostage import decide_two_stage
-
-        run, planned = self._two_stage  # type: ignore[misc]
-        if any(edge is not None for edge in (low, high, center, tolerance)):
-            band = make_band(low, high, center=center, tolerance=tolerance, unit=self.unit)
-            if (band.low, band.high) != (planned.low, planned.high):
-                raise TrialError(
-                    "this check's band differs from the band the n='auto' count was planned "
-                    "for; call check() without edges, or give the same band to both"
-                )
-        if self._values.size != run.plan.total_n:
-            raise TrialError(
-                f"{self._values.size - run.plan.total_n} trials were added after the n='auto' "
-                "collection; the two-stage verdict holds only for the trials it planned"
-            )
-        if settings.confidence != run.plan.confidence:
-            raise TrialError(
-                f"confidence {settings.confidence:g} differs from {run.plan.confidence:g}, at "
-                "which the n='auto' count was planned; set it on the marker or before collecting"
-            )
-        if settings.method != "t":
-            raise TrialError(
-                f"method {settings.method!r} cannot be used with n='auto': the two-stage "
-                "verdict uses Stein's interval"
-            )
-        decision = decide_two_stage(
-            run.pilot, run.second, planned, run.plan, alpha=settings.normality_alpha
-        )
-        notes = assumption_notes(
-            decision.diagnostics, min_n=settings.min_n, normality_alpha=settings.normality_alpha
-        )
-        code = "two-stage-capped" if run.plan.capped else "two-stage"
-        notes.append({"code": code, "text": run.plan.note()})
-        row = self._row("check", settings, decision.to_dict(), notes)
-        row["settings"]["n"] = "auto"
-        row["two_stage"] = run.plan.to_dict()
-        return decision, notes, row
 
     # -- reporting --------------------------------------------------------------------------
 
@@ -303,30 +252,6 @@ class Recorder(Series):
         for named in self._series.values():
             rows.extend(named.rows())
         return rows
-
-
-def _refuse_auto_options(max_n: Any, band: Any, pilot: Any) -> None:
-    given = [name for name, value in (("max_n", max_n), ("band", band), ("pilot", pilot))
-             if value is not None]
-    if given:
-        raise TrialError(f"{', '.join(given)}= go with n='auto' only; drop them or pass n='auto'")
-
-
-def _planning_band(band: dict[str, Edge] | Band | None, unit: str | None) -> Band:
-    """The band an n='auto' count is planned for, from ``band=dict(high=...)`` or a Band."""
-    if band is None:
-        raise TrialError(
-            "n='auto' plans its count for a band, so it needs the band before collecting: "
-            "pass band=dict(high=...) (or low=, or center= and tolerance=)"
-        )
-    if isinstance(band, Band):
-        return band
-    if not isinstance(band, dict):
-        raise TrialError(f"band= must be a dict such as dict(high='3ms') or a Band, got {band!r}")
-    unknown = sorted(set(band) - {"low", "high", "center", "tolerance"})
-    if unknown:
-        raise TrialError(f"band= has unknown key {unknown[0]!r}; use low, high, center, tolerance")
-    return make_band(unit=unit, **band)
 
 
 def _callable_name(fn: Callable[..., Any]) -> str:
