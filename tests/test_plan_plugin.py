@@ -157,6 +157,8 @@ n = 20
 n = 20
 [tests."test_elsewhere.py::test_other"]
 n = 20
+[tests."test_order.py::test_series".series.gone]
+n = 5
 """)
     for workers in ([], ["-n", "2"]):
         result = run_suite("--meanband-plan", "plan.toml", "test_order.py", *workers)
@@ -167,6 +169,8 @@ n = 20
         assert "  test_gone.py::test_whatever" in result.outlines
         # A file this run did not collect is not judged.
         assert "  test_elsewhere.py::test_other" not in result.outlines
+        assert ("plan plan.toml: planned series no longer recorded: test_order.py::test_series "
+                "[gone]") in text
 
 
 def test_stale_ids_survive_deselection(run_suite, pytester):

@@ -169,8 +169,9 @@ class PlanPlugin:
         if self.plan is not None:
             planned = self.plan.nodeids()
             reached = {r.get("nodeid") for r in rows} & set(planned)
-            out.append(f"plan {self.plan.source}: {len(reached)} of {len(planned)} planned "
-                       "tests recorded trials in this run")
+            if self.config.get_verbosity() >= 0:
+                out.append(f"plan {self.plan.source}: {len(reached)} of {len(planned)} planned "
+                           "tests recorded trials in this run")
             stale = self.stale()
             if stale:
                 out.append(f"plan {self.plan.source}: {len(stale)} planned test id(s) no longer "
@@ -187,7 +188,9 @@ class PlanPlugin:
             out.append(f"plan: {self.write_error}")
         if self.written is not None:
             out.append(f"plan written to {self.written}")
-        return ["", *out] if out else []
+        if not out:
+            return []
+        return ["", *out] if self.config.get_verbosity() >= 0 else out
 
     def pytest_terminal_summary(self, terminalreporter: pytest.TerminalReporter) -> None:
         # With no rows meanband's summary (and its hook) stays silent; plan news still shows.
