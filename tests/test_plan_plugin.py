@@ -316,3 +316,17 @@ def test_auto_with_and_without_a_cap(run_suite, pytester):
     # The table's n is the second stage's count: the mean the verdict rests on.
     assert re.search(rf"test_auto.py::test_auto\s+{free - 10}\s.*95% two-stage\s+<= 10 V\s+PASS",
                      text)
+
+
+def test_plan_write_problems_are_reported_not_lost(run_suite, pytester):
+    pytester.makepyfile(test_kiln=SUITE)
+    (pytester.path / "plan.toml").write_text("this is not [toml\n")
+    result = run_suite("--meanband-n", "6", "--meanband-write-plan", "plan.toml")
+    text = "\n".join(result.outlines)
+    assert "plan: plan file plan.toml is not valid TOML" in text and "it was replaced" in text
+    assert "test_kiln.py::test_kiln_zone" in (pytester.path / "plan.toml").read_text()
+    (pytester.path / "a-directory").mkdir()
+    result = run_suite("--meanband-n", "6", "--meanband-write-plan", "a-directory")
+    assert any(line.startswith("plan: could not write the plan file a-directory")
+               for line in result.outlines)
+    result.assert_outcomes(passed=1, failed=2)  # the run's own outcome is untouched
