@@ -18,7 +18,7 @@ test: $(STAMP)
 	$(HERMETIC) $(PY) -m pytest -p meanband -p xdist -n 2 -q tests
 
 lint: $(STAMP)
-	$(VENV)/bin/ruff check plugin tests benchmarks sample_suites
+	$(VENV)/bin/ruff check plugin tests benchmarks sample_suites studies
 	$(VENV)/bin/mypy
 
 demo: $(STAMP)
