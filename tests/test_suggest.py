@@ -6,6 +6,8 @@ import math
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from meanband.bands import decide, make_band
 from meanband.errors import TrialError
 from meanband.suggest import (
@@ -177,3 +179,36 @@ def test_trial_seconds_of_a_timing_row():
     assert trial_seconds({"source": "time", "values": values, "timing": None}) == (
         pytest.approx(0.003))
     assert trial_seconds({"source": "sample", "values": values}) is None
+
+
+@settings(max_examples=60, deadline=None)
+@given(seed=st.integers(0, 2**32 - 1), n=st.integers(3, 60), shift=st.floats(-3.0, 3.0),
+       two_sided=st.booleans())
+def test_suggestions_go_the_right_way_and_are_minimal(seed, n, shift, two_sided):
+    # Properties, with the power recomputed by planning.power_against_edge (noncentral t):
+    # UNDECIDED asks for more; a smaller PASS count still reaches the power and one trial
+    # fewer would not (unless min_n set it); FAIL asks for nothing.
+    from meanband.planning import power_against_edge
+
+    values = np.random.default_rng(seed).normal(shift, 1.0, n)
+    band = make_band(-4.0, 0.0) if two_sided else make_band(high=0.0)
+    row = _row(values, band) | {"settings": {"power": 0.9, "min_n": 2}}
+    verdict = row["decision"]["verdict"]
+    s = suggestion_for_row(row)
+    if verdict == "FAIL":
+        assert s is None
+        return
+    assert s is not None and s.current_n == n
+    if s.n is None:
+        return
+    interval = row["decision"]["interval"]
+    margin = min(abs(interval["mean"] - e) for e in (band.low, band.high) if math.isfinite(e))
+    alpha = 0.025 if two_sided else 0.05
+    effect = margin / interval["sd"]
+    if verdict == "UNDECIDED":
+        assert s.direction == "more" and s.n > n
+    elif s.direction == "fewer":
+        assert s.n < n
+    if s.direction in ("more", "fewer") and s.n > max(2, n + 1 if verdict == "UNDECIDED" else 2):
+        assert power_against_edge(effect, s.n, alpha) >= 0.9
+        assert power_against_edge(effect, s.n - 1, alpha) < 0.9
