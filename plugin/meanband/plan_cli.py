@@ -192,7 +192,8 @@ def _plan(args: argparse.Namespace) -> int:
         (r.get("settings") or {}).get("power", 0.9) for r in checks}
     single = next(iter(powers)) if len(powers) == 1 else None
     stated = f"{single * 100:g}% power" if single is not None else "each check's power"
-    print(f"suggested trial counts ({stated}) from {where}: {len(checks)} checks")
+    count = f"{len(checks)} check{'' if len(checks) == 1 else 's'}"
+    print(f"suggested trial counts ({stated}) from {where}: {count}")
     if lines:
         widths = [max(len(h), *(len(line[i]) for line in lines))
                   for i, h in enumerate(("test", "n", "suggest"))]
@@ -205,7 +206,7 @@ def _plan(args: argparse.Namespace) -> int:
     if args.write is not None:
         entries = entries_from_rows(rows)
         written = write_plan(args.write, entries, power=single)
-        print(f"plan written to {written} ({len(entries)} entries)")
+        print(f"plan written to {written} ({len(entries)} entr{'y' if len(entries) == 1 else 'ies'})")
     return 0
 
 
