@@ -18,9 +18,12 @@ What this guarantees, for normally distributed trials and whatever the true sd:
   degrees of freedom whatever N2 the pilot chose (Stein 1945). So a true mean on or beyond an
   edge is passed with probability at most 1 - C for a budget and (1 - C) / 2 per edge of a
   two-sided band. This holds with or without the cap.
-- power: given the pilot, if the true mean lies at least ``d0`` from the edge, the check
-  decides (PASS inside, FAIL outside) with probability at least ``power`` (Stein's argument:
-  sqrt(N2) * d0 / s0 >= t(1 - a) + t(power)). Not when the cap cut N2 short: the run says so.
+- power: given the pilot mean, if the true mean lies at least ``d0`` from the nearest edge, the
+  test at that edge decides (PASS inside, FAIL outside) with probability at least ``power``,
+  over the pilot's sd and the second stage (Stein's argument: sqrt(N2) * d0 / s0 >= t(1 - a) +
+  t(power), and the pilot's mean and sd are independent for normal trials). Runs that the cap
+  cut short are not covered: the probability can fall by up to the chance of a capped run,
+  and a capped run says so.
 - width: the interval's reach t[n0-1] * s0 / sqrt(N2) is at most d0 * t(1 - a) / (t(1 - a) +
   t(power)), fixed by the pilot rather than left to chance.
 
