@@ -13,6 +13,7 @@ from meanband.twostage import (
     check_max_n,
     decide_two_stage,
     plan_second_stage,
+    run_two_stage,
     second_stage_counts,
     stein_interval,
     verdicts,
@@ -171,3 +172,27 @@ def test_power_given_the_pilot_mean_is_at_least_the_stated_power():
     v = verdicts(second_mean, pilot_sd, second_n, pilot_n, -math.inf, edge, confidence=0.95)
     rate = float(np.mean(v == "PASS"))
     assert rate >= 0.9 - 3.5 * math.sqrt(0.9 * 0.1 / runs)
+
+
+def test_run_two_stage_asks_for_the_pilot_then_the_planned_count():
+    rng = np.random.default_rng(9)
+    asked = []
+
+    def collect(count):
+        asked.append(count)
+        return rng.normal(9.6, 0.5, count)
+
+    run = run_two_stage(collect, make_band(high=10.0), pilot_n=12, max_n=500)
+    assert asked == [12, run.plan.second_n]
+    assert run.values.size == run.plan.total_n and run.pilot.size == 12
+
+
+@pytest.mark.parametrize("pilot", [1, 2.5, True, "10"])
+def test_run_two_stage_refuses_a_bad_pilot(pilot):
+    with pytest.raises(TrialError, match="pilot must be a whole number"):
+        run_two_stage(lambda k: np.ones(k), make_band(high=2.0), pilot_n=pilot)
+
+
+def test_run_two_stage_refuses_bad_trials_from_the_collector():
+    with pytest.raises(TrialError, match="NaN or infinite"):
+        run_two_stage(lambda k: np.full(k, np.nan), make_band(high=2.0))
