@@ -84,7 +84,8 @@ class PlanPlugin:
     @pytest.hookimpl(tryfirst=True)
     def pytest_collection_modifyitems(self, items: list[pytest.Item]) -> None:
         # Before -k/-m deselect anything: a deselected test still exists.
-        self.collected.update(item.nodeid for item in items)
+        if self.plan is not None:
+            self.collected.update(item.nodeid for item in items)
 
     @pytest.hookimpl(trylast=True)
     def pytest_sessionfinish(self, session: pytest.Session) -> None:

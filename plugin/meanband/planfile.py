@@ -9,6 +9,7 @@ import sys
 import tempfile
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
+from functools import cached_property
 from pathlib import Path
 from typing import Any
 
@@ -63,11 +64,19 @@ class Plan:
 
     def nodeids(self) -> list[str]:
         """Test ids with at least one entry, in file order."""
-        return list(dict.fromkeys(nodeid for nodeid, _ in self.entries))
+        return list(self._by_test)
 
     def for_test(self, nodeid: str) -> dict[str, PlanEntry]:
         """Entries of one test by series name (empty when the plan does not mention it)."""
-        return {s: e for (i, s), e in self.entries.items() if i == nodeid}
+        return dict(self._by_test.get(nodeid, {}))
+
+    @cached_property
+    def _by_test(self) -> dict[str, dict[str, PlanEntry]]:
+        # Looked up once per test at set-up: index by test id rather than scan every entry.
+        index: dict[str, dict[str, PlanEntry]] = {}
+        for (nodeid, series), entry in self.entries.items():
+            index.setdefault(nodeid, {})[series] = entry
+        return index
 
 
 def entries_from_rows(rows: Iterable[Mapping[str, Any]]) -> list[PlanEntry]:
