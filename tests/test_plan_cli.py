@@ -3,10 +3,8 @@
 from __future__ import annotations
 
 import json
+import re
 import sys
-import types
-from dataclasses import dataclass, field
-from typing import Any
 
 import numpy as np
 import pytest
@@ -111,72 +109,22 @@ def test_bad_rows_file_is_a_clear_error(tmp_path, capsys, content, message):
     assert message in capsys.readouterr().err
 
 
-def test_missing_store_says_what_to_do(tmp_path, capsys, monkeypatch):
-    monkeypatch.setitem(sys.modules, "meanband.history", _fake_history([]))
+def test_missing_store_says_what_to_do(tmp_path, capsys):
     assert main(["plan", "--store", str(tmp_path / "none.sqlite")]) == 2
     assert "no history store at" in capsys.readouterr().err
 
 
-# -- the history store, through the API the plan command reads --------------------------------
-
-@dataclass
-class _RunInfo:
-    id: int
-    label: str
-    started: str
-
-
-@dataclass
-class _StoredCheck:
-    nodeid: str
-    series: str
-    row: dict[str, Any]
-    values: np.ndarray = field(repr=False)
-
-
-class _StoreError(Exception):
-    pass
-
-
-def _fake_history(rows: list[dict[str, Any]]) -> types.ModuleType:
-    """A stand-in for meanband.history with the calls the plan command makes."""
-    module = types.ModuleType("meanband.history")
-
-    class HistoryStore:
-        def __init__(self, path, *, create=True):
-            assert create is False  # reading must never create a store
-            self.path = path
-
-        def __enter__(self):
-            return self
-
-        def __exit__(self, *exc):
-            return None
-
-        def find_run(self, ref=None):
-            if ref not in (None, "latest", "7", "nightly"):
-                raise _StoreError(f"no run labelled or numbered {ref!r}")
-            return _RunInfo(7, "nightly", "2026-12-01T20:00:00+00:00")
-
-        def checks(self, run_id):
-            return [_StoredCheck(r["nodeid"], r["series"],
-                                 {k: v for k, v in r.items() if k not in ("values", "warmup")},
-                                 np.asarray(r["values"])) for r in rows]
-
-    module.HistoryStore = HistoryStore  # type: ignore[attr-defined]
-    module.StoreError = _StoreError  # type: ignore[attr-defined]
-    return module
-
-
-def test_plan_from_the_history_store(rows_file, tmp_path, capsys, monkeypatch):
-    rows = json.loads(rows_file.read_text())
-    monkeypatch.setitem(sys.modules, "meanband.history", _fake_history(rows))
-    store = tmp_path / "history.sqlite"
-    store.write_bytes(b"")
-    assert main(["plan", "nightly", "--store", str(store)]) == 0
+def test_plan_from_the_history_store(run_suite, pytester, capsys):
+    pytester.makepyfile(test_bench=SUITE)
+    run_suite("--meanband-record=nightly", "--meanband-write-plan", "from-run.toml")
+    run_suite("--meanband-record=other", "--meanband-n", "40")
+    store = pytester.path / ".meanband" / "history.sqlite"
+    assert main(["plan", "nightly", "--store", str(store), "--write", "cli.toml"]) == 0
     out = capsys.readouterr().out
-    assert f"from run #7 'nightly' of 2026-12-01T20:00:00+00:00 in {store}" in out
+    assert re.search(r"from run #1 'nightly' of \S+ in ", out)
     assert "UNDECIDED at n=6; about" in out
+    # The stored run gives the same plan as the run itself wrote.
+    assert read_plan("cli.toml").entries == read_plan("from-run.toml").entries
     assert main(["plan", "older", "--store", str(store)]) == 2
     assert "no run labelled or numbered 'older'" in capsys.readouterr().err
 

@@ -15,8 +15,6 @@ __all__ = ["load_rows", "register", "rows_from_file", "rows_from_store"]
 
 #: Exit status for a bad command line, or a store or file that cannot be used.
 USAGE_ERROR = 2
-#: Where the history store lives when ``--store`` is not given (as the history command has it).
-DEFAULT_STORE = Path(".meanband") / "history.sqlite"
 
 Row = dict[str, Any]
 
@@ -41,7 +39,7 @@ def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) ->
     source = plan.add_mutually_exclusive_group()
     source.add_argument(
         "--store", metavar="PATH", type=Path, default=None,
-        help=f"The history store (default {DEFAULT_STORE} in the current directory)",
+        help="The history store (default .meanband/history.sqlite in the current directory)",
     )
     source.add_argument(
         "--rows", metavar="FILE", type=Path, default=None,
@@ -61,23 +59,15 @@ def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) ->
 
 def _guarded(command: Callable[[argparse.Namespace], int]) -> Callable[[argparse.Namespace], int]:
     def run(args: argparse.Namespace) -> int:
-        errors: tuple[type[Exception], ...] = (TrialError, OSError, *_store_errors())
+        from meanband.history import StoreError
+
         try:
             return command(args)
-        except errors as exc:
+        except (TrialError, OSError, StoreError) as exc:
             print(f"meanband plan: error: {exc}", file=sys.stderr)
             return USAGE_ERROR
 
     return run
-
-
-def _store_errors() -> tuple[type[Exception], ...]:
-    """The history store's own error type, when this meanband has the store."""
-    try:
-        from meanband.history import StoreError
-    except ModuleNotFoundError:
-        return ()
-    return (StoreError,)
 
 
 # -- reading rows --------------------------------------------------------------------------------
@@ -86,19 +76,11 @@ def _store_errors() -> tuple[type[Exception], ...]:
 def rows_from_store(path: str | Path, run: str | None = None) -> tuple[list[Row], str]:
     """Rows of one stored run (newest when ``run`` is None) and a line naming that run.
 
-    Reads through the history store's API: ``HistoryStore(path, create=False)``,
-    ``find_run(ref) -> RunInfo`` and ``checks(run_id) -> [StoredCheck]``, each check's ``row``
-    holding the row without its trials, which come back as ``values``.
+    Each stored check's ``row`` holds the row without its trials, which come back from the
+    store's float64 column as ``values``.
     """
-    try:
-        from meanband.history import HistoryStore
-    except ModuleNotFoundError as exc:
-        if exc.name != "meanband.history":
-            raise
-        raise SourceError(
-            "this meanband has no history store; read rows from a file with --rows FILE "
-            "(a JSON report from --meanband-report, or a JSON list of rows)"
-        ) from None
+    from meanband.history import HistoryStore
+
     if not Path(path).exists():
         raise SourceError(
             f"no history store at {path}; record runs with --meanband-record, point --store at "
@@ -113,8 +95,8 @@ def rows_from_store(path: str | Path, run: str | None = None) -> tuple[list[Row]
             row.setdefault("series", check.series)
             row["values"] = [float(v) for v in check.values]
             rows.append(row)
-    label = f" '{info.label}'" if getattr(info, "label", "") else ""
-    return rows, f"run #{info.id}{label} of {getattr(info, 'started', '?')} in {path}"
+    label = f" '{info.label}'" if info.label else ""
+    return rows, f"run #{info.id}{label} of {info.started} in {path}"
 
 
 def rows_from_file(path: str | Path, run: str | None = None) -> tuple[list[Row], str]:
@@ -157,6 +139,8 @@ def load_rows(args: argparse.Namespace) -> tuple[list[Row], str]:
     """Rows chosen by the command line: ``--rows FILE`` or the history store."""
     if args.rows is not None:
         return rows_from_file(args.rows, args.run)
+    from meanband.history import DEFAULT_STORE
+
     return rows_from_store(args.store or DEFAULT_STORE, args.run)
 
 
