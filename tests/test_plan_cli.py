@@ -80,15 +80,24 @@ def test_power_option_changes_the_counts(rows_file, capsys):
     assert low < high
 
 
-def test_report_shaped_file_with_runs(tmp_path, rows_file, capsys):
+def test_plan_from_a_json_report(run_suite, pytester, capsys):
+    pytester.makepyfile(test_bench=SUITE)
+    run_suite("--meanband-report", "report.json", "--meanband-write-plan", "from-run.toml")
+    assert main(["plan", "--rows", "report.json", "--write", "cli.toml"]) == 0
+    assert "UNDECIDED at n=6; about" in capsys.readouterr().out
+    assert read_plan("cli.toml").entries == read_plan("from-run.toml").entries
+    broken = json.loads(open("report.json").read())
+    broken["rows"][0]["decision"]["verdict"] = "MAYBE"
+    open("broken.json", "w").write(json.dumps(broken))
+    assert main(["plan", "--rows", "broken.json"]) == 2
+    assert "broken.json" in capsys.readouterr().err
+
+
+def test_rows_of_several_runs(tmp_path, rows_file, capsys):
     rows = json.loads(rows_file.read_text())
-    for row in rows:  # a report writes infinities as strings
-        band = row["decision"]["band"]
-        band["low"] = "-Infinity" if band["low"] == -np.inf else band["low"]
-    report = {"format": "meanband-report", "rows": [dict(r, run=0) for r in rows[:1]]
-              + [dict(r, run=1) for r in rows]}
-    path = tmp_path / "report.json"
-    path.write_text(json.dumps(report))
+    tagged = [dict(r, run=0) for r in rows[:1]] + [dict(r, run=1) for r in rows]
+    path = tmp_path / "rows.json"
+    path.write_text(json.dumps(tagged))
     assert main(["plan", "--rows", str(path)]) == 0
     assert "from run 1 of" in capsys.readouterr().out
     assert main(["plan", "0", "--rows", str(path)]) == 0

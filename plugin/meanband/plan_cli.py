@@ -60,10 +60,11 @@ def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) ->
 def _guarded(command: Callable[[argparse.Namespace], int]) -> Callable[[argparse.Namespace], int]:
     def run(args: argparse.Namespace) -> int:
         from meanband.history import StoreError
+        from meanband.report_json import ReportError
 
         try:
             return command(args)
-        except (TrialError, OSError, StoreError) as exc:
+        except (TrialError, OSError, StoreError, ReportError) as exc:
             print(f"meanband plan: error: {exc}", file=sys.stderr)
             return USAGE_ERROR
 
@@ -100,11 +101,14 @@ def rows_from_store(path: str | Path, run: str | None = None) -> tuple[list[Row]
 
 
 def rows_from_file(path: str | Path, run: str | None = None) -> tuple[list[Row], str]:
-    """Rows from a JSON file: a report (an object with ``"rows"``) or a plain list of rows.
+    """Rows from a JSON file: a meanband JSON report, or a plain list of rows.
 
-    A report that merges several runs tags each row with ``"run"``; the last run is taken
-    unless ``run`` names another (its index).
+    A report is checked against its schema (when jsonschema is installed) and decoded by
+    ``report_json``. Rows of several runs (a merged report) carry ``"run"``; the last run is
+    taken unless ``run`` names another (its index).
     """
+    from meanband import report_json
+
     try:
         document = json.loads(Path(path).read_text(encoding="utf-8"))
     except FileNotFoundError:
@@ -114,6 +118,13 @@ def rows_from_file(path: str | Path, run: str | None = None) -> tuple[list[Row],
     except json.JSONDecodeError as exc:
         raise SourceError(f"{path} is not JSON: {exc.msg} (line {exc.lineno}, column "
                           f"{exc.colno})") from None
+    if isinstance(document, dict) and document.get("format") == report_json.FORMAT:
+        try:
+            report_json.validate_report(document, source=str(path))
+        except ModuleNotFoundError as exc:  # the schema check needs jsonschema; reading does not
+            if exc.name != "jsonschema":
+                raise
+        document = report_json.decode_rows(document["rows"])
     rows = document.get("rows") if isinstance(document, dict) else document
     if not isinstance(rows, list) or not all(isinstance(r, dict) for r in rows):
         raise SourceError(f"{path} holds no result rows: expected a meanband JSON report or "
