@@ -103,7 +103,7 @@ def rows_from_store(path: str | Path, run: str | None = None) -> tuple[list[Row]
 def rows_from_file(path: str | Path, run: str | None = None) -> tuple[list[Row], str]:
     """Rows from a JSON file: a meanband JSON report, or a plain list of rows.
 
-    A report is checked against its schema (when jsonschema is installed) and decoded by
+    A report is checked against its schema and decoded by
     ``report_json``. Rows of several runs (a merged report) carry ``"run"``; the last run is
     taken unless ``run`` names another (its index).
     """
@@ -119,11 +119,7 @@ def rows_from_file(path: str | Path, run: str | None = None) -> tuple[list[Row],
         raise SourceError(f"{path} is not JSON: {exc.msg} (line {exc.lineno}, column "
                           f"{exc.colno})") from None
     if isinstance(document, dict) and document.get("format") == report_json.FORMAT:
-        try:
-            report_json.validate_report(document, source=str(path))
-        except ModuleNotFoundError as exc:  # the schema check needs jsonschema; reading does not
-            if exc.name != "jsonschema":
-                raise
+        report_json.validate_report(document, source=str(path))
         document = report_json.decode_rows(document["rows"])
     rows = document.get("rows") if isinstance(document, dict) else document
     if not isinstance(rows, list) or not all(isinstance(r, dict) for r in rows):
