@@ -7,6 +7,8 @@ import math
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from meanband import diagnose
 from meanband.diagnostics import (
     DRIFT_MAX_N,
@@ -17,6 +19,7 @@ from meanband.diagnostics import (
     tukey_fences,
 )
 from meanband.explain import assumption_notes, lognormal_skewness, trials_for_skewness
+from meanband.interval import METHODS
 from scipy import stats
 
 SEEDS = range(40)
@@ -246,3 +249,18 @@ def test_diagnose_stays_vectorised_on_a_million_trials() -> None:
     d = diagnose(x)
     assert d.drift.used == DRIFT_MAX_N
     assert d.outliers > 0
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    st.lists(st.floats(0.001, 1e4), min_size=4, max_size=80),
+    st.sampled_from(["t", "log-t", "cox", "bootstrap", "batch-means"]),
+)
+def test_notes_are_well_formed_and_never_recommend_the_method_in_use(
+    values: list[float], method: str
+) -> None:
+    for note in assumption_notes(diagnose(values), method=method):
+        assert set(note) <= {"code", "text", "recommend"} and note["text"]
+        assert note.get("recommend") != method
+        if "recommend" in note:
+            assert note["recommend"] in METHODS
