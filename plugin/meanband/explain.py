@@ -74,6 +74,12 @@ def describe(decision: Decision, *, label: str = "", notes: list[dict[str, str]]
         Verdict.FAIL: "the mean is confidently outside the band",
         Verdict.UNDECIDED: "the interval straddles a band edge: not enough evidence either way",
     }[decision.verdict]
+    simple = decision.rule is not None and decision.rule.rule == "simple"
+    if simple:
+        head = {
+            Verdict.PASS: "the mean lies inside the band (simple acceptance, no guard band)",
+            Verdict.FAIL: "the mean lies outside the band (simple acceptance, no guard band)",
+        }.get(decision.verdict, head)
     lines = [
         f"meanband {decision.verdict.value}{' [' + label + ']' if label else ''}: {head}",
         f"  n          {iv.n}",
@@ -82,8 +88,9 @@ def describe(decision: Decision, *, label: str = "", notes: list[dict[str, str]]
         f"({iv.confidence:.4g} {which}, {iv.method})",
         f"  band       {format_band(decision.band, scale)}",
         f"  verdict    {decision.verdict.value}",
-        f"  sd         {_fmt(iv.sd, unit, scale)} (df {iv.df:g})",
+        f"  sd         {_fmt(iv.sd, unit, scale)} (df {_sd_df(decision):g})",
     ]
+    lines.extend(_metrology_lines(decision, scale))
     normality = d.normality
     if normality.testable:
         lines.append(f"  normality  {normality.method} W/stat = {normality.statistic:.4g}, "
@@ -92,8 +99,12 @@ def describe(decision: Decision, *, label: str = "", notes: list[dict[str, str]]
         lines.append(f"  normality  not testable ({normality.reason})")
     if not math.isnan(d.lag1):
         lines.append(f"  lag-1 r    {d.lag1:.3f} (effective n about {d.effective_n:.0f})")
+    budget = decision.uncertainty
     if decision.verdict is Verdict.UNDECIDED:
-        if decision.suggested_n is None:
+        if decision.suggested_n is None and budget is not None and budget.has_instrument:
+            lines.append("  to decide  more trials will not decide it: the instrument's own "
+                         "uncertainty leaves too little room; a better calibrated instrument may")
+        elif decision.suggested_n is None:
             lines.append("  to decide  the mean sits on the edge: no number of trials is likely to decide")
         else:
             lines.append(f"  to decide  about {decision.suggested_n} trials would likely decide it "
@@ -101,3 +112,53 @@ def describe(decision: Decision, *, label: str = "", notes: list[dict[str, str]]
     for note in notes or []:
         lines.append(f"  note       {note['text']}")
     return "\n".join(lines)
+
+
+def _metrology_lines(decision: Decision, scale: float | None) -> list[str]:
+    """The uncertainty budget (when an instrument enters it) and the decision rule."""
+    lines: list[str] = []
+    budget, outcome, unit = decision.uncertainty, decision.rule, decision.unit
+    if budget is not None and budget.has_instrument:
+        lines.append(
+            f"  u(mean)    u_A {_fmt(budget.type_a, unit, scale)} (df {budget.type_a_df:g}), "
+            f"u_B {_fmt(budget.type_b, unit, scale)} (df {_df_text(budget.type_b_df)}), "
+            f"u_c {_fmt(budget.combined, unit, scale)} (nu_eff {_df_text(budget.effective_df)})"
+        )
+        lines.append(
+            f"  U          {_fmt(budget.expanded, unit, scale)} "
+            f"(k = {budget.coverage_factor:.3f}, {budget.confidence:.4g} {budget.side})"
+        )
+    if outcome is None:
+        return lines
+    if outcome.rule == "simple":
+        text = "simple acceptance (w = 0): the mean alone is compared with the band"
+    else:
+        text = f"guarded acceptance (guard band w = U = {_fmt(outcome.guard_band, unit, scale)})"
+    if outcome.conformance_probability is not None:
+        text += f"; conformance probability {_probability(outcome.conformance_probability)}"
+    if outcome.false_accept_probability is not None:
+        risk = _probability(outcome.false_accept_probability)
+        text += f"; probability of false acceptance {risk}"
+    if outcome.false_reject_probability is not None:
+        text += f"; probability of false rejection {_probability(outcome.false_reject_probability)}"
+    lines.append(f"  rule       {text}")
+    return lines
+
+
+def _sd_df(decision: Decision) -> float:
+    """Degrees of freedom of the trials' sd (the interval's df is nu_eff once u_B enters)."""
+    budget = decision.uncertainty
+    return budget.type_a_df if budget is not None else decision.interval.df
+
+
+def _df_text(df: float) -> str:
+    return "inf" if math.isinf(df) else f"{df:.0f}" if df >= 100 else f"{df:.3g}"
+
+
+def _probability(p: float) -> str:
+    """A probability with enough digits to tell 0.9999 from 1."""
+    if p == 0.0 or p == 1.0:
+        return f"{p:g}"
+    if p > 0.99:
+        return f"1 - {1.0 - p:.2g}"
+    return f"{p:.3g}"
