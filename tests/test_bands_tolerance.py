@@ -6,7 +6,6 @@ import math
 
 import numpy as np
 import pytest
-
 from meanband import BandViolation, TrialError, Verdict, assert_mean_within, decide, make_band
 
 

@@ -6,7 +6,6 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-
 from meanband import TrialError
 from meanband.benchlog import read_column
 
@@ -99,7 +98,7 @@ def test_an_empty_field_is_refused(tmp_path) -> None:
 @pytest.mark.parametrize("word", ["nan", "inf", "-Infinity"])
 def test_non_finite_values_are_refused(tmp_path, word) -> None:
     path = write(tmp_path, f"v\n1.0\n{word}\n2.0\n")
-    with pytest.raises(TrialError, match="line 3: .*not a finite number"):
+    with pytest.raises(TrialError, match=r"line 3: .*not a finite number"):
         read_column(path, "v")
 
 
@@ -110,7 +109,7 @@ def test_a_short_row_is_refused(tmp_path) -> None:
 
 
 def test_missing_file(tmp_path) -> None:
-    with pytest.raises(TrialError, match="cannot read the bench log .*absent.csv"):
+    with pytest.raises(TrialError, match=r"cannot read the bench log .*absent\.csv"):
         read_column(tmp_path / "absent.csv", 0)
 
 

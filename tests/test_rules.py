@@ -8,7 +8,6 @@ import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
-
 from meanband import BandViolation, TrialError, Verdict, assert_mean_within, decide, make_band
 from meanband.interval import METHODS
 from meanband.rules import apply_rule, check_rule, conformance_probability

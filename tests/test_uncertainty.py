@@ -9,7 +9,6 @@ import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
-
 from meanband import BandViolation, TrialError, assert_mean_within, mean_interval
 from meanband.uncertainty import (
     COMBINED_METHOD,

@@ -6,6 +6,7 @@ import math
 
 from meanband.bands import Band, Decision, Verdict
 from meanband.diagnostics import Diagnostics
+from meanband.rules import format_probability
 from meanband.units import SECONDS, format_value, significant_digits, time_scale
 
 __all__ = ["assumption_notes", "describe", "format_band", "format_interval"]
@@ -127,7 +128,7 @@ def _metrology_lines(decision: Decision, scale: float | None) -> list[str]:
         )
         lines.append(
             f"  U          {_fmt(budget.expanded, unit, scale)} "
-            f"(k = {budget.coverage_factor:.3f}, {budget.confidence:.4g} {budget.side})"
+            f"(k = {budget.coverage_factor:.3f}, {budget.confidence * 100:g}% {budget.side})"
         )
     if outcome is None:
         return lines
@@ -136,12 +137,12 @@ def _metrology_lines(decision: Decision, scale: float | None) -> list[str]:
     else:
         text = f"guarded acceptance (guard band w = U = {_fmt(outcome.guard_band, unit, scale)})"
     if outcome.conformance_probability is not None:
-        text += f"; conformance probability {_probability(outcome.conformance_probability)}"
+        text += f"; conformance probability {format_probability(outcome.conformance_probability)}"
     if outcome.false_accept_probability is not None:
-        risk = _probability(outcome.false_accept_probability)
+        risk = format_probability(outcome.false_accept_probability)
         text += f"; probability of false acceptance {risk}"
     if outcome.false_reject_probability is not None:
-        text += f"; probability of false rejection {_probability(outcome.false_reject_probability)}"
+        text += f"; probability of false rejection {format_probability(outcome.false_reject_probability)}"
     lines.append(f"  rule       {text}")
     return lines
 
@@ -154,12 +155,3 @@ def _sd_df(decision: Decision) -> float:
 
 def _df_text(df: float) -> str:
     return "inf" if math.isinf(df) else f"{df:.0f}" if df >= 100 else f"{df:.3g}"
-
-
-def _probability(p: float) -> str:
-    """A probability with enough digits to tell 0.9999 from 1."""
-    if p == 0.0 or p == 1.0:
-        return f"{p:g}"
-    if p > 0.99:
-        return f"1 - {1.0 - p:.2g}"
-    return f"{p:.3g}"

@@ -2,18 +2,21 @@
 
 from __future__ import annotations
 
+import os
 from collections.abc import Callable, Iterable
 from typing import Any
 
 import numpy as np
 
-from meanband.bands import Decision, Edge, decide, make_band
+from meanband.bands import Decision, Edge, Tolerance, decide, make_band
 from meanband.errors import BandViolation, TrialError
 from meanband.explain import assumption_notes, describe
 from meanband.interval import Interval, mean_interval
+from meanband.rules import GUARDED
 from meanband.sample import as_sample
 from meanband.settings import Settings
 from meanband.timing import time_trials
+from meanband.uncertainty import InstrumentSpec
 from meanband.units import SECONDS
 
 __all__ = ["Recorder", "Series"]
@@ -75,6 +78,21 @@ class Series:
         self._claim(unit, "values")
         self._append(clean)
 
+    def extend_from(
+        self, path: str | os.PathLike[str], column: str | int | None = None, *,
+        unit: str | None = None, delimiter: str | None = None, header: bool | None = None,
+    ) -> np.ndarray:
+        """Record one column of a bench log (CSV or whitespace-separated; ``#`` comments).
+
+        ``column`` is a header name or a 0-based index. A bad row raises TrialError with its
+        line number, and the series keeps exactly what it held before.
+        """
+        from meanband.benchlog import read_column
+
+        values = read_column(path, column, delimiter=delimiter, header=header)
+        self.extend(values, unit=unit)
+        return values
+
     @property
     def values(self) -> np.ndarray:
         """The trials recorded so far (warm-up excluded), read-only."""
@@ -104,25 +122,34 @@ class Series:
         high: Edge = None,
         *,
         center: Edge = None,
-        tolerance: Edge = None,
+        tolerance: Tolerance = None,
         confidence: float | None = None,
         method: str | None = None,
+        instrument_uncertainty: InstrumentSpec = None,
+        rule: str = GUARDED,
     ) -> Decision:
         """Pass only if the interval of the mean lies inside the band; raise BandViolation if not.
 
         Two edges: the two-sided interval must lie inside. One edge (a budget): the one-sided
-        bound must lie on the right side of it.
+        bound must lie on the right side of it. ``tolerance=(below, above)`` is asymmetric.
+        ``instrument_uncertainty`` (standard uncertainty in the trials' unit, or ``(u, df)``)
+        widens the interval to mean +/- U (JCGM 100); ``rule="simple"`` compares the mean alone.
         """
         settings = self.settings.merged(confidence=confidence, method=method)
         band = make_band(low, high, center=center, tolerance=tolerance, unit=self.unit)
         decision = decide(
             self._values, band, confidence=settings.confidence, method=settings.method,
-            power=settings.power,
+            power=settings.power, instrument_uncertainty=instrument_uncertainty, rule=rule,
         )
         notes = assumption_notes(
             decision.diagnostics, min_n=settings.min_n, normality_alpha=settings.normality_alpha
         )
-        self._rows.append(self._row("check", settings, decision.to_dict(), notes))
+        row = self._row("check", settings, decision.to_dict(), notes)
+        if decision.uncertainty is not None:
+            row["uncertainty"] = decision.uncertainty.to_dict()
+        if decision.rule is not None:
+            row["rule"] = decision.rule.to_dict()
+        self._rows.append(row)
         if not decision.passed:
             raise BandViolation(describe(decision, label=self._label(), notes=notes), decision)
         return decision

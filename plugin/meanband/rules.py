@@ -16,6 +16,7 @@ __all__ = [
     "apply_rule",
     "check_rule",
     "conformance_probability",
+    "format_probability",
 ]
 
 #: Guarded acceptance, guard band w = U: PASS only when the interval lies inside the band.
@@ -168,6 +169,15 @@ def apply_rule(
         false_accept_probability=false_accept,
         false_reject_probability=false_reject,
     )
+
+
+def format_probability(p: float) -> str:
+    """A probability with enough digits to tell 0.9999 from 1 (``1 - 2e-06``)."""
+    if p == 0.0 or p == 1.0:
+        return f"{p:g}"
+    if p > 0.99:
+        return f"1 - {1.0 - p:.2g}"
+    return f"{p:.3g}"
 
 
 def _outside(
