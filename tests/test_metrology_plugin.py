@@ -115,6 +115,8 @@ def test_summary_and_failure_message_speak_metrology(run_suite, pytester) -> Non
     assert set(lines) == {"test_loop_instrument", "test_loop_instrument_too_coarse",
                           "test_rail_simple"}
     assert "u_B 0.00400 mA (df 12)" in lines["test_loop_instrument"]
+    assert "more trials will not decide it" in lines["test_loop_instrument_too_coarse"]
+    assert "more trials will not decide it" not in lines["test_loop_instrument"]
     assert "probability of false acceptance" in lines["test_rail_simple"]
     assert "simple acceptance (w = 0)" in lines["test_rail_simple"]
     # The failure message of the coarse instrument says that more trials will not help.

@@ -67,6 +67,11 @@ def _describe(row: Row, budget: dict[str, Any] | None, rule: dict[str, Any] | No
             risk = format_probability(rule["false_reject_probability"])
             text += f", probability of false rejection {risk}"
         parts.append(text)
+    decision = row["decision"]
+    if (decision.get("verdict") == "UNDECIDED" and decision.get("suggested_n") is None
+            and budget is not None and budget.get("type_b")):
+        parts.append("more trials will not decide it: the instrument's own uncertainty leaves "
+                     "too little room")
     return "; ".join(parts)
 
 
