@@ -27,7 +27,8 @@ def make_suite(root: Path) -> None:
 
 
 def wall_time(root: Path, enabled: bool) -> float:
-    args = [sys.executable, "-m", "pytest", "--collect-only", "-q", "-p", "no:cacheprovider", "-p", "meanband"]
+    args = [sys.executable, "-m", "pytest", "--collect-only", "-q"]
+    args += ["-p", "no:cacheprovider", "-p", "meanband"]
     if not enabled:
         args += ["-p", "no:meanband"]
     env = dict(os.environ, PYTEST_DISABLE_PLUGIN_AUTOLOAD="1")

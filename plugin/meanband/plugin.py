@@ -95,7 +95,8 @@ def trials(request: pytest.FixtureRequest) -> Recorder:
     plan = config.hook.pytest_meanband_item_settings(item=item)
     if plan:
         layers.append((f"plan entry for {item.nodeid}", dict(plan)))
-    layers.extend(config.stash[CONFIG_LAYERS_KEY])
+    config_layers: list[tuple[str, dict[str, Any]]] = config.stash[CONFIG_LAYERS_KEY]
+    layers.extend(config_layers)
     recorder = Recorder(resolve(layers), item.nodeid)
     item.stash[RECORDER_KEY] = recorder
     return recorder

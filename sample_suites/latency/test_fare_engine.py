@@ -7,7 +7,6 @@ checks are marked xfail so that the demo exits 0 while their rows still show in 
 import numpy as np
 import pytest
 from fares import quote_fare, timetable_search
-
 from meanband import assert_mean_within
 
 DEPARTURES = list(range(300, 1380, 5))
