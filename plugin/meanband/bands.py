@@ -208,14 +208,14 @@ def decide(
             f"instrument_uncertainty combines with the t interval only (JCGM 100); this check "
             f"uses method={method!r}: use method='t' or leave instrument_uncertainty out"
         )
-    combined = budget is not None and budget.has_instrument
-    interval = budget.interval() if combined else mean_interval(x, level, side, method)
+    combined = budget if budget is not None and budget.has_instrument else None
+    interval = combined.interval() if combined is not None else mean_interval(x, level, side, method)
     counter: Interval | None = None
     low, high = interval.low, interval.high
     if side != "two-sided":
         opposite = "lower" if side == "upper" else "upper"
-        if combined:
-            counter = budget.interval(opposite)
+        if combined is not None:
+            counter = combined.interval(opposite)
         else:
             counter = mean_interval(x, level, opposite, method)
         # The bounds that decide a budget: the one-sided bound and its opposite counterpart.
@@ -233,7 +233,7 @@ def decide(
     suggested = None
     if verdict is not Verdict.FAIL:
         margin = edge_margin(interval.mean, band)
-        if combined:
+        if combined is not None:
             suggested = trials_to_decide(
                 interval.sd, margin, instrument, confidence=level, side=side, power=power
             )

@@ -89,9 +89,9 @@ def _content_lines(where: str) -> list[tuple[int, str]]:
     try:
         text = raw.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
-        line = raw.count(b"\n", 0, exc.start) + 1
+        bad_line = raw.count(b"\n", 0, exc.start) + 1
         raise TrialError(
-            f"{where}, line {line}: bytes that are not UTF-8 text; is this a text log? "
+            f"{where}, line {bad_line}: bytes that are not UTF-8 text; is this a text log? "
             "Save it as UTF-8 (or plain ASCII)"
         ) from exc
     lines = []
