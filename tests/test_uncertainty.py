@@ -289,3 +289,44 @@ def test_instrument_uncertainty_can_turn_a_pass_into_undecided() -> None:
         assert_mean_within(x, center=85.0, tolerance=0.1, instrument_uncertainty=0.06)
     assert info.value.decision.verdict.value == "UNDECIDED"
     assert "more trials will not decide it" in str(info.value)
+
+
+def _simulated_coverage(
+    n: int, sd: float, u_b: float, nu_b: float, reps: int, seed: int, *, budgeted: bool = True
+) -> float:
+    """Share of replicates whose mean +/- U (95 %) covers the true mean when the instrument's
+    calibration error is drawn from N(0, u_B) and its stated u_B carries nu_B df.
+    ``budgeted=False`` leaves the instrument out of U (the plain t interval)."""
+    from scipy.stats import t as student_t
+
+    rng = np.random.default_rng(seed)
+    bias = rng.normal(0.0, u_b, reps)
+    x = rng.normal(0.0, sd, size=(reps, n)) + bias[:, None]
+    if math.isinf(nu_b):
+        stated = np.full(reps, u_b)
+    else:  # the stated u_B is itself an estimate: u^2 ~ u_B^2 chi2(nu_B) / nu_B
+        stated = u_b * np.sqrt(rng.chisquare(nu_b, reps) / nu_b)
+    if not budgeted:
+        stated, nu_b = np.zeros(reps), math.inf
+    u_a = x.std(axis=1, ddof=1) / math.sqrt(n)
+    u_c = np.hypot(u_a, stated)
+    nu = u_c**4 / (u_a**4 / (n - 1) + (0.0 if math.isinf(nu_b) else stated**4 / nu_b))
+    expanded = student_t.ppf(0.975, nu) * u_c
+    return float(np.mean(np.abs(x.mean(axis=1)) <= expanded))
+
+
+@pytest.mark.parametrize(
+    ("n", "sd", "u_b", "nu_b"), [(10, 1.0, 0.5, math.inf), (6, 1.0, 0.8, 10.0), (30, 0.2, 0.01, 5.0)]
+)
+def test_combined_interval_covers_the_true_mean_about_as_stated(n, sd, u_b, nu_b) -> None:
+    # The frequentist reading of JCGM 100:2008, G.4 and G.6: mean +/- t_p(nu_eff) u_c covers
+    # the true mean about p of the time when the calibration error is random with sd u_B.
+    # Welch-Satterthwaite is an approximation, so the check allows about +/-1.5 points; the
+    # simulation's own standard error is about 0.15 points.
+    coverage = _simulated_coverage(n, sd, u_b, nu_b, reps=20_000, seed=n)
+    assert 0.935 <= coverage <= 0.965, coverage
+    # Negative control: the same readings with the instrument left out of U cover far too
+    # rarely when u_B is not small against s / sqrt(n), so the check above can fail.
+    if u_b > sd / math.sqrt(n):
+        plain = _simulated_coverage(n, sd, u_b, nu_b, reps=20_000, seed=n, budgeted=False)
+        assert plain < 0.9, plain
