@@ -330,3 +330,16 @@ def test_combined_interval_covers_the_true_mean_about_as_stated(n, sd, u_b, nu_b
     if u_b > sd / math.sqrt(n):
         plain = _simulated_coverage(n, sd, u_b, nu_b, reps=20_000, seed=n, budgeted=False)
         assert plain < 0.9, plain
+
+
+@settings(max_examples=150, deadline=None)
+@given(
+    values=st.lists(st.floats(-1e6, 1e6, allow_nan=False), min_size=2, max_size=40),
+    confidence=st.floats(0.5, 0.999),
+    side=st.sampled_from(["two-sided", "upper", "lower"]),
+)
+def test_zero_instrument_equals_the_t_interval_for_any_data(values, confidence, side) -> None:
+    # The zero-instrument budget is the plain t interval, bit for bit, whatever the data.
+    assert uncertainty_budget(values, confidence, side, 0.0).interval() == mean_interval(
+        values, confidence, side
+    )
