@@ -1,4 +1,7 @@
-"""Measurement uncertainty of a mean: Type A from the trials, Type B from the instrument (GUM)."""
+"""Measurement uncertainty of a mean: Type A from the trials, Type B from the instrument (GUM).
+
+Clause numbers of JCGM 100:2008 cited in this module were recalled from memory.
+"""
 
 from __future__ import annotations
 
