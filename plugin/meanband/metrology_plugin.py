@@ -3,13 +3,14 @@
 from __future__ import annotations
 
 from collections.abc import Sequence
-from typing import Any
-
-import pytest
+from typing import TYPE_CHECKING, Any
 
 from meanband.rules import format_probability
 from meanband.summary import row_name
 from meanband.units import SECONDS, format_value, significant_digits, time_scale
+
+if TYPE_CHECKING:
+    import pytest
 
 __all__ = ["metrology_lines"]
 
