@@ -1,4 +1,4 @@
-"""Pooling shard reports keeps a check's instrument uncertainty and decision rule."""
+"""Metrology options alongside other features: pooled shard reports and n="auto" counts."""
 
 from __future__ import annotations
 
@@ -83,3 +83,16 @@ def test_pooling_refuses_shards_that_checked_differently(check_a, check_b, what)
              ("b.json", _report([_row(values, **check_b)]))],
             pool=True,
         )
+
+
+@pytest.mark.parametrize("check", [{"instrument_uncertainty": 0.003}, {"rule": "simple"}])
+def test_adaptive_count_refuses_instrument_and_simple_rule_clearly(check) -> None:
+    from meanband.errors import TrialError
+
+    recorder = Recorder(resolve([]), "t.py::test_loop")
+    rng = np.random.default_rng(1)
+    recorder.sample(lambda: float(rng.normal(12.0, 0.005)), n="auto", unit="mA",
+                    band={"center": 12.0, "tolerance": 0.04})
+    with pytest.raises(TrialError, match="cannot be used with n='auto'"):
+        recorder.check(**check)
+    assert recorder.all_rows()[0]["kind"] == "unchecked"  # nothing recorded as a check

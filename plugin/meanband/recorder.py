@@ -8,7 +8,8 @@ from typing import Any
 
 import numpy as np
 
-from meanband.bands import Decision, Edge, Tolerance, decide, make_band
+from meanband import adaptive
+from meanband.bands import Band, Decision, Edge, Tolerance, decide, make_band
 from meanband.errors import BandViolation, TrialError
 from meanband.explain import assumption_notes, describe
 from meanband.interval import Interval, mean_interval
@@ -37,14 +38,32 @@ class Series:
         self._warmup = np.empty(0, dtype=np.float64)
         self._timing: dict[str, Any] | None = None
         self._rows: list[Row] = []
+        self._adaptive: adaptive.AdaptiveRun | None = None  # set by n="auto"
 
     # -- collecting -------------------------------------------------------------------------
 
     def time(
-        self, fn: Callable[..., Any], *args: Any, n: int | None = None,
-        warmup: int | str | None = None, **kwargs: Any,
+        self, fn: Callable[..., Any], *args: Any, n: int | str | None = None,
+        warmup: int | str | None = None, max_n: int | None = None,
+        band: dict[str, Edge] | Band | None = None, pilot: int | None = None, **kwargs: Any,
     ) -> np.ndarray:
-        """Run ``n`` timed trials of ``fn(*args, **kwargs)``; each value is seconds per call."""
+        """Run ``n`` timed trials of ``fn(*args, **kwargs)``; each value is seconds per call.
+
+        ``n="auto"`` picks the count by Stein's two-stage rule for ``band`` (``adaptive.py``).
+        """
+        if n == "auto":
+            settings = self.settings.merged(warmup=warmup)
+            self._claim(SECONDS, "time")
+            warm = [settings.warmup]
+
+            def collect(count: int) -> np.ndarray:
+                run = time_trials(fn, args, kwargs, n=count, warmup=warm.pop() if warm else 0)
+                self._warmup = np.concatenate([self._warmup, run.warmup])
+                self._timing = dict(run.details)
+                return run.values
+
+            return self._auto(collect, settings, max_n=max_n, band=band, pilot=pilot)
+        adaptive.refuse_options(max_n, band, pilot)
         settings = self.settings.merged(n=n, warmup=warmup)
         self._claim(SECONDS, "time")
         run = time_trials(fn, args, kwargs, n=settings.n, warmup=settings.warmup)
@@ -54,19 +73,42 @@ class Series:
         return run.values
 
     def sample(
-        self, fn: Callable[..., Any], *args: Any, n: int | None = None,
-        unit: str | None = None, **kwargs: Any,
+        self, fn: Callable[..., Any], *args: Any, n: int | str | None = None,
+        unit: str | None = None, max_n: int | None = None,
+        band: dict[str, Edge] | Band | None = None, pilot: int | None = None, **kwargs: Any,
     ) -> np.ndarray:
-        """Record ``n`` values returned by ``fn(*args, **kwargs)``, in ``unit``."""
+        """Record ``n`` values returned by ``fn(*args, **kwargs)``, in ``unit``.
+
+        ``n="auto"`` picks the count by Stein's two-stage rule for ``band`` (``adaptive.py``).
+        """
+
+        def collect(count: int) -> np.ndarray:
+            collected = [fn(*args, **kwargs) for _ in range(count)]
+            try:
+                return as_sample(collected, minimum=1)
+            except TrialError as exc:
+                raise TrialError(f"{_callable_name(fn)} returned bad values: {exc}") from None
+
+        if n == "auto":
+            self._claim(unit, "sample")
+            return self._auto(collect, self.settings, max_n=max_n, band=band, pilot=pilot)
+        adaptive.refuse_options(max_n, band, pilot)
         settings = self.settings.merged(n=n)
         self._claim(unit, "sample")
-        collected = [fn(*args, **kwargs) for _ in range(settings.n)]
-        try:
-            values = as_sample(collected, minimum=1)
-        except TrialError as exc:
-            raise TrialError(f"{_callable_name(fn)} returned bad values: {exc}") from None
+        values = collect(settings.n)
         self._append(values)
         return values
+
+    def _auto(
+        self, take: Callable[[int], np.ndarray], settings: Settings, *, max_n: int | None,
+        band: dict[str, Edge] | Band | None, pilot: int | None,
+    ) -> np.ndarray:
+        self._adaptive = adaptive.collect(
+            take, held=self._values.size, label=self._label(), unit=self.unit, band=band,
+            settings=settings, max_n=max_n, pilot=pilot,
+        )
+        self._append(self._adaptive.values)
+        return self._adaptive.values
 
     def add(self, value: float, *, unit: str | None = None) -> None:
         """Record one value measured elsewhere."""
@@ -136,19 +178,33 @@ class Series:
         widens the interval to mean +/- U (JCGM 100); ``rule="simple"`` compares the mean alone.
         """
         settings = self.settings.merged(confidence=confidence, method=method)
-        band = make_band(low, high, center=center, tolerance=tolerance, unit=self.unit)
-        decision = decide(
-            self._values, band, confidence=settings.confidence, method=settings.method,
-            power=settings.power, instrument_uncertainty=instrument_uncertainty, rule=rule,
-        )
-        notes = assumption_notes(
-            decision.diagnostics, min_n=settings.min_n, normality_alpha=settings.normality_alpha
-        )
-        row = self._row("check", settings, decision.to_dict(), notes)
-        if decision.uncertainty is not None:
-            row["uncertainty"] = decision.uncertainty.to_dict()
-        if decision.rule is not None:
-            row["rule"] = decision.rule.to_dict()
+        if self._adaptive is not None:
+            if instrument_uncertainty is not None or rule != GUARDED:
+                raise TrialError(
+                    "instrument_uncertainty= and rule= cannot be used with n='auto': the "
+                    "two-stage verdict uses Stein's interval; collect a fixed n for this check"
+                )
+            decision, notes, extra = self._adaptive.check(
+                low, high, center, tolerance, held=self._values.size, unit=self.unit,
+                settings=settings,
+            )
+            row = self._row("check", settings, decision.to_dict(), notes) | extra
+            row["settings"]["n"] = "auto"
+        else:
+            band = make_band(low, high, center=center, tolerance=tolerance, unit=self.unit)
+            decision = decide(
+                self._values, band, confidence=settings.confidence, method=settings.method,
+                power=settings.power, instrument_uncertainty=instrument_uncertainty, rule=rule,
+            )
+            notes = assumption_notes(
+                decision.diagnostics, min_n=settings.min_n,
+                normality_alpha=settings.normality_alpha,
+            )
+            row = self._row("check", settings, decision.to_dict(), notes)
+            if decision.uncertainty is not None:
+                row["uncertainty"] = decision.uncertainty.to_dict()
+            if decision.rule is not None:
+                row["rule"] = decision.rule.to_dict()
         self._rows.append(row)
         if not decision.passed:
             raise BandViolation(describe(decision, label=self._label(), notes=notes), decision)
@@ -202,17 +258,24 @@ class Series:
 class Recorder(Series):
     """The ``trials`` fixture: the default series, plus named ones from :meth:`series`."""
 
-    def __init__(self, settings: Settings, nodeid: str = "") -> None:
+    def __init__(
+        self, settings: Settings, nodeid: str = "", *,
+        series_settings: dict[str, Settings] | None = None, other_series: Settings | None = None,
+    ) -> None:
         super().__init__("", settings, nodeid)
         self._series: dict[str, Series] = {}
         self._comparisons: list[Row] = []
+        # A plan may give named series counts of their own; unplanned series use other_series.
+        self._series_settings = dict(series_settings or {})
+        self._other_series = settings if other_series is None else other_series
 
     def series(self, name: str) -> Series:
         """The series called ``name`` (created on first use), e.g. ``trials.series("cold")``."""
         if not isinstance(name, str) or not name:
             raise TrialError(f"a series needs a non-empty name, got {name!r}")
         if name not in self._series:
-            self._series[name] = Series(name, self.settings, self.nodeid)
+            settings = self._series_settings.get(name, self._other_series)
+            self._series[name] = Series(name, settings, self.nodeid)
         return self._series[name]
 
     def compare(
