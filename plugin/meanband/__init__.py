@@ -1,13 +1,21 @@
-"""meanband: pass a test only when the Student-t interval of the mean lies inside its band."""
+"""meanband: pass a test only when the Student-t interval of the mean lies inside its band.
+
+The public names load on first use (PEP 562), so importing the package (and the pytest plugin
+that lives in it) costs neither numpy nor scipy until a test actually records trials.
+"""
 
 from __future__ import annotations
 
-from meanband.assertion import assert_mean_within
-from meanband.bands import Band, Decision, Verdict, decide, make_band
-from meanband.diagnostics import Diagnostics, NormalityTest, diagnose
-from meanband.errors import BandViolation, TrialError
-from meanband.interval import Interval, critical_t, mean_interval
-from meanband.planning import trials_needed
+import importlib
+from typing import TYPE_CHECKING, Any
+
+if TYPE_CHECKING:
+    from meanband.assertion import assert_mean_within
+    from meanband.bands import Band, Decision, Verdict, decide, make_band
+    from meanband.diagnostics import Diagnostics, NormalityTest, diagnose
+    from meanband.errors import BandViolation, TrialError
+    from meanband.interval import Interval, critical_t, mean_interval
+    from meanband.planning import trials_needed
 
 __all__ = [
     "Band",
@@ -28,3 +36,35 @@ __all__ = [
 ]
 
 __version__ = "0.1.0"
+
+_HOME = {
+    "assert_mean_within": "assertion",
+    "Band": "bands",
+    "Decision": "bands",
+    "Verdict": "bands",
+    "decide": "bands",
+    "make_band": "bands",
+    "Diagnostics": "diagnostics",
+    "NormalityTest": "diagnostics",
+    "diagnose": "diagnostics",
+    "BandViolation": "errors",
+    "TrialError": "errors",
+    "Interval": "interval",
+    "critical_t": "interval",
+    "mean_interval": "interval",
+    "trials_needed": "planning",
+}
+
+
+def __getattr__(name: str) -> Any:
+    try:
+        module = _HOME[name]
+    except KeyError:
+        raise AttributeError(f"module 'meanband' has no attribute {name!r}") from None
+    value = getattr(importlib.import_module(f"meanband.{module}"), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted(set(globals()) | set(__all__))

@@ -6,29 +6,29 @@ import math
 
 from meanband.bands import Band, Decision, Verdict
 from meanband.diagnostics import Diagnostics
-from meanband.units import SECONDS, format_value, time_scale
+from meanband.units import SECONDS, format_value, significant_digits, time_scale
 
 __all__ = ["assumption_notes", "describe", "format_band", "format_interval"]
 
 
-def format_interval(low: float, high: float, unit: str | None, scale: float | None = None) -> str:
+def format_interval(
+    low: float, high: float, unit: str | None, scale: float | None = None, digits: int = 4
+) -> str:
     """``[low, high]`` with units; open ends show as -inf/inf."""
-    return f"[{_fmt(low, unit, scale)}, {_fmt(high, unit, scale)}]"
+    return f"[{_fmt(low, unit, scale, digits)}, {_fmt(high, unit, scale, digits)}]"
 
 
-def format_band(band: Band, scale: float | None = None) -> str:
+def format_band(band: Band, digits: int = 4) -> str:
     """A band the way a user wrote it: ``<= 3 ms``, ``>= 10 V`` or ``[84.6, 85.4] degC``."""
-    if band.side == "upper":
-        return f"<= {_fmt(band.high, band.unit, scale)}"
-    if band.side == "lower":
-        return f">= {_fmt(band.low, band.unit, scale)}"
-    return format_interval(band.low, band.high, band.unit, scale)
+    from meanband.summary import format_band as format_edges
+
+    return format_edges(band.low, band.high, band.unit, digits)
 
 
-def _fmt(value: float, unit: str | None, scale: float | None) -> str:
+def _fmt(value: float, unit: str | None, scale: float | None, digits: int = 4) -> str:
     if not math.isfinite(value):
         return "-inf" if value < 0 else "inf"
-    return format_value(value, unit, scale=scale)
+    return format_value(value, unit, digits, scale=scale)
 
 
 def assumption_notes(
@@ -68,6 +68,7 @@ def describe(decision: Decision, *, label: str = "", notes: list[dict[str, str]]
     """The failure message: n, mean, interval, band, verdict and diagnostics in one block."""
     iv, d, unit = decision.interval, decision.diagnostics, decision.unit
     scale = time_scale(iv.mean) if unit == SECONDS else None
+    digits = significant_digits(iv.mean, iv.sem)
     which = {"two-sided": "two-sided", "upper": "upper bound", "lower": "lower bound"}[iv.side]
     head = {
         Verdict.PASS: "the interval of the mean lies inside the band",
@@ -77,10 +78,10 @@ def describe(decision: Decision, *, label: str = "", notes: list[dict[str, str]]
     lines = [
         f"meanband {decision.verdict.value}{' [' + label + ']' if label else ''}: {head}",
         f"  n          {iv.n}",
-        f"  mean       {_fmt(iv.mean, unit, scale)}",
-        f"  interval   {format_interval(iv.low, iv.high, unit, scale)} "
-        f"({iv.confidence:.4g} {which}, {iv.method})",
-        f"  band       {format_band(decision.band, scale)}",
+        f"  mean       {_fmt(iv.mean, unit, scale, digits)}",
+        f"  interval   {format_interval(iv.low, iv.high, unit, scale, digits)} "
+        f"({iv.confidence * 100:g}% {which}, {iv.method}; about the {iv.estimand})",
+        f"  band       {format_band(decision.band, digits)}",
         f"  verdict    {decision.verdict.value}",
         f"  sd         {_fmt(iv.sd, unit, scale)} (df {iv.df:g})",
     ]

@@ -7,7 +7,14 @@ import re
 
 from meanband.errors import TrialError
 
-__all__ = ["SECONDS", "format_number", "format_value", "parse_duration"]
+__all__ = [
+    "SECONDS",
+    "format_number",
+    "format_value",
+    "parse_duration",
+    "significant_digits",
+    "time_scale",
+]
 
 #: The unit label of timing trials; values are seconds per call.
 SECONDS = "s"
@@ -49,18 +56,34 @@ def format_number(value: float, digits: int = 4) -> str:
     return f"{value:.{digits - 1}e}"
 
 
-def format_value(value: float, unit: str | None, digits: int = 4, *, scale: float | None = None) -> str:
+def format_value(
+    value: float, unit: str | None, digits: int = 4, *, scale: float | None = None,
+    trim: bool = False,
+) -> str:
     """``value`` with its unit; seconds are shown in ns, µs, ms or s as fits.
 
     Pass ``scale`` (seconds per shown unit, from :func:`time_scale`) so that the numbers of one
-    row share a unit.
+    row share a unit; ``trim`` drops trailing zeros (for limits a user typed, like ``3 ms``).
     """
     if unit == SECONDS:
         factor = scale if scale is not None else time_scale(value)
         label = _SCALE_LABEL[factor]
-        return f"{format_number(value / factor, digits)} {label}"
-    text = format_number(value, digits)
+        return f"{_trimmed(format_number(value / factor, digits), trim)} {label}"
+    text = _trimmed(format_number(value, digits), trim)
     return f"{text} {unit}" if unit else text
+
+
+def _trimmed(text: str, trim: bool) -> str:
+    if trim and "." in text and "e" not in text:
+        return text.rstrip("0").rstrip(".")
+    return text
+
+
+def significant_digits(center: float, resolution: float) -> int:
+    """Digits that show ``center`` to about two digits of ``resolution`` (e.g. its sem)."""
+    if not (math.isfinite(center) and math.isfinite(resolution)) or resolution <= 0 or center == 0:
+        return 4
+    return int(min(max(math.floor(math.log10(abs(center) / resolution)) + 2, 3), 12))
 
 
 _SCALE_LABEL = {1e-9: "ns", 1e-6: "µs", 1e-3: "ms", 1.0: "s"}

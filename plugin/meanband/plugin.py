@@ -1,0 +1,174 @@
+"""The pytest plugin: options, the ``meanband`` marker, the ``trials`` fixture and the summary."""
+
+from __future__ import annotations
+
+from collections import Counter
+from collections.abc import Generator
+from typing import TYPE_CHECKING, Any
+
+import pytest
+
+from meanband.settings import SettingError, marker_settings, resolve, validate
+
+if TYPE_CHECKING:
+    from meanband.recorder import Recorder
+
+#: Feature plugins, each with its own options in the ``meanband`` group.
+pytest_plugins: list[str] = []
+
+RECORDER_KEY = pytest.StashKey["Recorder"]()
+CONFIG_LAYERS_KEY = pytest.StashKey[list[tuple[str, dict[str, Any]]]]()
+SUMMARY_PLUGIN_NAME = "meanband-summary"
+
+#: (setting, option word, help text, ini type); option --meanband-<word>, ini meanband_<name>.
+_SETTING_OPTIONS = (
+    ("n", "n", "Default number of trials per collection call (default 30).", "string"),
+    ("confidence", "confidence", "Confidence level of the intervals (default 0.95).", "string"),
+    ("min_n", "min-n", "Warn when a check has fewer trials than this (default 10).", "string"),
+    ("normality_alpha", "normality-alpha",
+     "Level of the normality test behind the 'normality doubtful' note (default 0.05).", "string"),
+    ("warmup", "warmup", "Default warm-up before timed trials: a count or a duration such as "
+     "'200ms' (default 0).", "string"),
+    ("method", "method", "Default interval method (default 't').", "string"),
+    ("power", "power", "Power at which trial counts are suggested (default 0.9).", "string"),
+)
+
+
+def pytest_addhooks(pluginmanager: pytest.PytestPluginManager) -> None:
+    from meanband import hookspecs
+
+    pluginmanager.add_hookspecs(hookspecs)
+
+
+def pytest_addoption(parser: pytest.Parser) -> None:
+    group = parser.getgroup("meanband", "meanband: confidence intervals of the mean as test gates")
+    for name, word, help_text, ini_type in _SETTING_OPTIONS:
+        group.addoption(f"--meanband-{word}", dest=f"meanband_{name}", default=None,
+                        metavar="VALUE", help=help_text)
+        parser.addini(f"meanband_{name}", help_text, type=ini_type, default=None)  # type: ignore[arg-type]
+
+
+def pytest_configure(config: pytest.Config) -> None:
+    config.addinivalue_line(
+        "markers",
+        "meanband(n=None, confidence=None, warmup=None, min_n=None, normality_alpha=None, "
+        "method=None, power=None): settings for the test's `trials` fixture.",
+    )
+    config.stash[CONFIG_LAYERS_KEY] = _config_layers(config)
+    if not hasattr(config, "workerinput"):
+        config.pluginmanager.register(SummaryPlugin(config), SUMMARY_PLUGIN_NAME)
+
+
+def _config_layers(config: pytest.Config) -> list[tuple[str, dict[str, Any]]]:
+    """Command-line and ini layers, validated now so a bad value is a usage error."""
+    option_layer: dict[str, Any] = {}
+    ini_layer: dict[str, Any] = {}
+    for name, word, _help, _type in _SETTING_OPTIONS:
+        given = config.getoption(f"meanband_{name}")
+        try:
+            if given is not None:
+                option_layer[name] = validate(name, given, f"option --meanband-{word}")
+            ini_value = config.getini(f"meanband_{name}")
+            if ini_value not in (None, ""):
+                ini_layer[name] = validate(name, ini_value, f"ini key meanband_{name}")
+        except SettingError as exc:
+            raise pytest.UsageError(str(exc)) from None
+    return [("command line", option_layer), ("ini file", ini_layer)]
+
+
+@pytest.fixture
+def trials(request: pytest.FixtureRequest) -> Recorder:
+    """Collect repeated trials and check that the interval of their mean lies in a band."""
+    from meanband.recorder import Recorder
+
+    item = request.node
+    config = request.config
+    layers: list[tuple[str, dict[str, Any]]] = []
+    for marker in reversed(list(item.iter_markers("meanband"))):
+        where = f"marker @pytest.mark.meanband on {item.nodeid}"
+        if marker.args:
+            raise SettingError(f"{where}: give settings as keywords, e.g. meanband(n=40)")
+        try:
+            layers.insert(0, (where, marker_settings(**marker.kwargs)))
+        except TypeError as exc:
+            raise SettingError(f"{where}: {exc}") from None
+    plan = config.hook.pytest_meanband_item_settings(item=item)
+    if plan:
+        layers.append((f"plan entry for {item.nodeid}", dict(plan)))
+    config_layers: list[tuple[str, dict[str, Any]]] = config.stash[CONFIG_LAYERS_KEY]
+    layers.extend(config_layers)
+    recorder = Recorder(resolve(layers), item.nodeid)
+    item.stash[RECORDER_KEY] = recorder
+    return recorder
+
+
+@pytest.hookimpl(wrapper=True)
+def pytest_runtest_makereport(
+    item: pytest.Item, call: pytest.CallInfo[None]
+) -> Generator[None, pytest.TestReport, pytest.TestReport]:
+    recorder = item.stash.get(RECORDER_KEY, None) if call.when == "call" else None
+    rows = recorder.all_rows() if recorder is not None else []
+    checks_per_series = Counter(r["series"] for r in rows if r.get("decision"))
+    seen: Counter[str] = Counter()
+    for row in rows:
+        if row.get("decision"):
+            index = seen[row["series"]]
+            seen[row["series"]] += 1
+            numbered = checks_per_series[row["series"]] > 1
+            item.user_properties.extend(_junit_properties(row, index if numbered else None))
+    report = yield
+    if rows:
+        report.meanband_rows = rows  # type: ignore[attr-defined]
+    return report
+
+
+def _junit_properties(row: dict[str, Any], index: int | None) -> list[tuple[str, object]]:
+    """``meanband[series].index.field`` properties; series and index only where needed."""
+    decision = row["decision"]
+    prefix = "meanband"
+    if row.get("series"):
+        prefix += f"[{row['series']}]"
+    if index is not None:
+        prefix += f".{index}"
+    interval = decision["interval"]
+    return [
+        (f"{prefix}.n", interval["n"]),
+        (f"{prefix}.mean", interval["mean"]),
+        (f"{prefix}.low", interval["low"]),
+        (f"{prefix}.high", interval["high"]),
+        (f"{prefix}.verdict", decision["verdict"]),
+    ]
+
+
+class SummaryPlugin:
+    """Collects result rows on the controller and prints the summary at the end."""
+
+    def __init__(self, config: pytest.Config) -> None:
+        self.config = config
+        self.rows: list[dict[str, Any]] = []
+
+    def pytest_runtest_logreport(self, report: pytest.TestReport) -> None:
+        for row in getattr(report, "meanband_rows", None) or ():
+            self.config.hook.pytest_meanband_result(config=self.config, row=row)
+            self.rows.append(row)
+
+    def pytest_sessionfinish(self, session: pytest.Session) -> None:
+        if self.rows:
+            self.config.hook.pytest_meanband_session_finish(config=self.config, rows=self.rows)
+
+    def pytest_terminal_summary(self, terminalreporter: pytest.TerminalReporter) -> None:
+        if not self.rows:
+            return
+        from meanband.summary import format_summary
+
+        verbosity = self.config.get_verbosity()
+        lines = format_summary(self.rows, verbosity)
+        for extra in self.config.hook.pytest_meanband_summary_lines(config=self.config, rows=self.rows):
+            lines.extend(extra or ())
+        if verbosity < 0:
+            for line in lines:
+                terminalreporter.write_line(line)
+            return
+        terminalreporter.write_sep("=", "meanband")
+        for line in lines:
+            terminalreporter.write_line(line)

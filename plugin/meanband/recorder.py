@@ -1,0 +1,199 @@
+"""The object the ``trials`` fixture hands a test: collect trials, then check their mean."""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Iterable
+from typing import Any
+
+import numpy as np
+
+from meanband.bands import Decision, Edge, decide, make_band
+from meanband.errors import BandViolation, TrialError
+from meanband.explain import assumption_notes, describe
+from meanband.interval import Interval, mean_interval
+from meanband.sample import as_sample
+from meanband.settings import Settings
+from meanband.timing import time_calls
+from meanband.units import SECONDS
+
+__all__ = ["Recorder", "Series"]
+
+Row = dict[str, Any]
+
+
+class Series:
+    """One named stream of trials in a test, with the checks made on it."""
+
+    def __init__(self, name: str, settings: Settings, nodeid: str = "") -> None:
+        self.name = name
+        self.settings = settings
+        self.nodeid = nodeid
+        self.unit: str | None = None
+        self.source: str | None = None
+        self._values = np.empty(0, dtype=np.float64)
+        self._warmup = np.empty(0, dtype=np.float64)
+        self._timing: dict[str, Any] | None = None
+        self._rows: list[Row] = []
+
+    # -- collecting -------------------------------------------------------------------------
+
+    def time(
+        self, fn: Callable[..., Any], *args: Any, n: int | None = None,
+        warmup: int | str | None = None, **kwargs: Any,
+    ) -> np.ndarray:
+        """Run ``n`` timed trials of ``fn(*args, **kwargs)``; each value is seconds per call."""
+        settings = self.settings.merged(n=n, warmup=warmup)
+        self._claim(SECONDS, "time")
+        run = time_calls(fn, args, kwargs, n=settings.n, warmup=settings.warmup)
+        self._append(run.values)
+        self._warmup = np.concatenate([self._warmup, run.warmup])
+        self._timing = run.to_dict()
+        return run.values
+
+    def sample(
+        self, fn: Callable[..., Any], *args: Any, n: int | None = None,
+        unit: str | None = None, **kwargs: Any,
+    ) -> np.ndarray:
+        """Record ``n`` values returned by ``fn(*args, **kwargs)``, in ``unit``."""
+        settings = self.settings.merged(n=n)
+        self._claim(unit, "sample")
+        collected = [fn(*args, **kwargs) for _ in range(settings.n)]
+        try:
+            values = as_sample(collected, minimum=1)
+        except TrialError as exc:
+            raise TrialError(f"{_callable_name(fn)} returned bad values: {exc}") from None
+        self._append(values)
+        return values
+
+    def add(self, value: float, *, unit: str | None = None) -> None:
+        """Record one value measured elsewhere."""
+        self.extend([value], unit=unit)
+
+    def extend(self, values: Iterable[float] | np.ndarray, *, unit: str | None = None) -> None:
+        """Record values measured elsewhere; nothing is recorded if any value is bad."""
+        clean = as_sample(values, minimum=0)
+        self._claim(unit, "values")
+        self._append(clean)
+
+    @property
+    def values(self) -> np.ndarray:
+        """The trials recorded so far (warm-up excluded), read-only."""
+        view = self._values.view()
+        view.flags.writeable = False
+        return view
+
+    @property
+    def warmup_values(self) -> np.ndarray:
+        """Warm-up trials: timed, kept for charts, left out of the statistics."""
+        view = self._warmup.view()
+        view.flags.writeable = False
+        return view
+
+    # -- analysing and checking -------------------------------------------------------------
+
+    def interval(
+        self, confidence: float | None = None, side: str = "two-sided", method: str | None = None
+    ) -> Interval:
+        """The confidence interval of the mean of the trials so far."""
+        settings = self.settings.merged(confidence=confidence, method=method)
+        return mean_interval(self._values, settings.confidence, side, settings.method)
+
+    def check(
+        self,
+        low: Edge = None,
+        high: Edge = None,
+        *,
+        center: Edge = None,
+        tolerance: Edge = None,
+        confidence: float | None = None,
+        method: str | None = None,
+    ) -> Decision:
+        """Pass only if the interval of the mean lies inside the band; raise BandViolation if not.
+
+        Two edges: the two-sided interval must lie inside. One edge (a budget): the one-sided
+        bound must lie on the right side of it.
+        """
+        settings = self.settings.merged(confidence=confidence, method=method)
+        band = make_band(low, high, center=center, tolerance=tolerance, unit=self.unit)
+        decision = decide(
+            self._values, band, confidence=settings.confidence, method=settings.method,
+            power=settings.power,
+        )
+        notes = assumption_notes(
+            decision.diagnostics, min_n=settings.min_n, normality_alpha=settings.normality_alpha
+        )
+        self._rows.append(self._row("check", settings, decision.to_dict(), notes))
+        if not decision.passed:
+            raise BandViolation(describe(decision, label=self._label(), notes=notes), decision)
+        return decision
+
+    # -- reporting --------------------------------------------------------------------------
+
+    def rows(self) -> list[Row]:
+        """The rows for the summary: one per check, or one "unchecked" row for lone trials."""
+        if self._rows:
+            return list(self._rows)
+        if self._values.size:
+            return [self._row("unchecked", self.settings, None, [])]
+        return []
+
+    def _row(
+        self, kind: str, settings: Settings, decision: dict[str, Any] | None,
+        notes: list[dict[str, str]],
+    ) -> Row:
+        return {
+            "nodeid": self.nodeid,
+            "series": self.name,
+            "kind": kind,
+            "unit": self.unit,
+            "source": self.source,
+            "values": self._values.tolist(),
+            "warmup": self._warmup.tolist(),
+            "decision": decision,
+            "notes": notes,
+            "settings": settings.to_dict(),
+            "timing": None if self._timing is None else dict(self._timing),
+        }
+
+    def _label(self) -> str:
+        return self.name
+
+    def _claim(self, unit: str | None, source: str) -> None:
+        """Keep one unit per series: mixing seconds with volts would make a meaningless mean."""
+        if not self._values.size:
+            self.unit, self.source = unit, source
+        elif unit is not None and unit != self.unit:
+            raise TrialError(
+                f"series {self.name or '(default)'} holds trials in {self.unit or 'no unit'}; "
+                f"cannot add trials in {unit}. Use trials.series('other') for another quantity"
+            )
+
+    def _append(self, values: np.ndarray) -> None:
+        self._values = np.concatenate([self._values, values])
+
+
+class Recorder(Series):
+    """The ``trials`` fixture: the default series, plus named ones from :meth:`series`."""
+
+    def __init__(self, settings: Settings, nodeid: str = "") -> None:
+        super().__init__("", settings, nodeid)
+        self._series: dict[str, Series] = {}
+
+    def series(self, name: str) -> Series:
+        """The series called ``name`` (created on first use), e.g. ``trials.series("cold")``."""
+        if not isinstance(name, str) or not name:
+            raise TrialError(f"a series needs a non-empty name, got {name!r}")
+        if name not in self._series:
+            self._series[name] = Series(name, self.settings, self.nodeid)
+        return self._series[name]
+
+    def all_rows(self) -> list[Row]:
+        """Rows of the default series and every named series, in creation order."""
+        rows = self.rows()
+        for named in self._series.values():
+            rows.extend(named.rows())
+        return rows
+
+
+def _callable_name(fn: Callable[..., Any]) -> str:
+    return getattr(fn, "__qualname__", None) or repr(fn)

@@ -1,0 +1,129 @@
+"""Per-test settings and where they come from: call > marker > plan > option > ini > default."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Iterable, Mapping
+from dataclasses import dataclass, fields, replace
+from typing import Any
+
+from meanband.errors import TrialError
+
+__all__ = ["DEFAULTS", "SettingError", "Settings", "marker_settings", "resolve", "validate"]
+
+
+class SettingError(TrialError):
+    """A setting has a bad value; the message names where the value came from."""
+
+
+@dataclass(frozen=True)
+class Settings:
+    """Everything a check needs to know beyond its trials and band."""
+
+    n: int = 30
+    confidence: float = 0.95
+    warmup: int | str = 0
+    min_n: int = 10
+    normality_alpha: float = 0.05
+    method: str = "t"
+    power: float = 0.9
+
+    def merged(self, **overrides: Any) -> Settings:
+        """A copy with the non-None ``overrides`` (call arguments), validated."""
+        given = {k: v for k, v in overrides.items() if v is not None}
+        for name, value in given.items():
+            given[name] = validate(name, value, "the call's argument")
+        return replace(self, **given)
+
+    def to_dict(self) -> dict[str, Any]:
+        """Builtin types only."""
+        return {f.name: getattr(self, f.name) for f in fields(self)}
+
+
+DEFAULTS = Settings()
+
+
+def marker_settings(
+    *,
+    n: int | None = None,
+    confidence: float | None = None,
+    warmup: int | str | None = None,
+    min_n: int | None = None,
+    normality_alpha: float | None = None,
+    method: str | None = None,
+    power: float | None = None,
+) -> dict[str, Any]:
+    """The signature of ``@pytest.mark.meanband(...)``: a wrong keyword is a TypeError."""
+    return {k: v for k, v in locals().items() if v is not None}
+
+
+def _integer(minimum: int) -> Callable[[Any], int]:
+    def check(value: Any) -> int:
+        if isinstance(value, bool):
+            raise ValueError("a whole number is needed, not a boolean")
+        number = int(value) if isinstance(value, str) else value
+        if not isinstance(number, int) or number < minimum:
+            raise ValueError(f"a whole number >= {minimum} is needed")
+        return number
+
+    return check
+
+
+def _probability(value: Any) -> float:
+    level = float(value)
+    if not (0.0 < level < 1.0) or math.isnan(level):
+        hint = f"; did you mean {level / 100:g}?" if 1.0 < level < 100.0 else ""
+        raise ValueError(f"a number strictly between 0 and 1 is needed{hint}")
+    return level
+
+
+def _warmup(value: Any) -> int | str:
+    if isinstance(value, str) and not value.strip().lstrip("+").isdigit():
+        from meanband.units import parse_duration
+
+        parse_duration(value)
+        return value.strip()
+    return _integer(0)(value)
+
+
+def _method(value: Any) -> str:
+    from meanband.interval import METHODS
+
+    if value not in METHODS:
+        raise ValueError(f"choose one of {', '.join(sorted(METHODS))}")
+    return str(value)
+
+
+_VALIDATORS: dict[str, Callable[[Any], Any]] = {
+    "n": _integer(2),
+    "confidence": _probability,
+    "warmup": _warmup,
+    "min_n": _integer(2),
+    "normality_alpha": _probability,
+    "method": _method,
+    "power": _probability,
+}
+
+
+def validate(name: str, value: Any, source: str) -> Any:
+    """Return ``value`` converted for setting ``name``, or raise SettingError naming ``source``."""
+    check = _VALIDATORS.get(name)
+    if check is None:
+        raise SettingError(f"{source}: unknown meanband setting {name!r}")
+    try:
+        return check(value)
+    except (TypeError, ValueError) as exc:
+        raise SettingError(f"{source}: bad value {value!r} for {name}: {exc}") from None
+
+
+def resolve(layers: Iterable[tuple[str, Mapping[str, Any]]]) -> Settings:
+    """Settings from ``(source, values)`` layers listed from the highest precedence down.
+
+    Each value is validated with its source named in any error; the defaults fill the rest.
+    """
+    chosen: dict[str, Any] = {}
+    for source, values in layers:
+        for name, value in values.items():
+            if name not in chosen and value is not None:
+                chosen[name] = validate(name, value, source)
+    return replace(DEFAULTS, **chosen)

@@ -1,0 +1,65 @@
+"""Settings: validation names the source, and layers resolve from the highest precedence down."""
+
+from __future__ import annotations
+
+import pytest
+from meanband.settings import DEFAULTS, SettingError, marker_settings, resolve, validate
+
+
+def test_defaults_are_the_documented_ones():
+    assert (DEFAULTS.n, DEFAULTS.confidence, DEFAULTS.min_n, DEFAULTS.normality_alpha) == (30, 0.95, 10, 0.05)
+    assert (DEFAULTS.method, DEFAULTS.power, DEFAULTS.warmup) == ("t", 0.9, 0)
+
+
+def test_first_layer_that_sets_a_value_wins():
+    settings = resolve([
+        ("marker", {"n": 12}),
+        ("plan", {"n": 48, "confidence": 0.99}),
+        ("command line", {"confidence": 0.9, "min_n": 5}),
+        ("ini file", {"min_n": 8, "power": 0.8}),
+    ])
+    assert (settings.n, settings.confidence, settings.min_n, settings.power) == (12, 0.99, 5, 0.8)
+    assert settings.normality_alpha == DEFAULTS.normality_alpha
+
+
+def test_call_arguments_override_everything_and_none_means_not_given():
+    settings = resolve([("marker", {"n": 12, "confidence": 0.99})])
+    merged = settings.merged(n=5, confidence=None)
+    assert (merged.n, merged.confidence) == (5, 0.99)
+
+
+def test_strings_from_option_and_ini_are_converted():
+    settings = resolve([("command line", {"n": "40", "confidence": "0.975", "warmup": "200ms"})])
+    assert (settings.n, settings.confidence, settings.warmup) == (40, 0.975, "200ms")
+    assert resolve([("ini", {"warmup": "3"})]).warmup == 3
+
+
+@pytest.mark.parametrize(
+    ("name", "value", "fragment"),
+    [
+        ("n", 1, "whole number >= 2"),
+        ("n", 2.5, "whole number >= 2"),
+        ("n", True, "not a boolean"),
+        ("confidence", 0.0, "strictly between 0 and 1"),
+        ("confidence", 95, "did you mean 0.95?"),
+        ("confidence", "abc", "could not convert"),
+        ("power", 1.0, "strictly between 0 and 1"),
+        ("warmup", -1, "whole number >= 0"),
+        ("warmup", "5 fortnights", "cannot read '5 fortnights' as a duration"),
+        ("method", "median", "choose one of"),
+        ("colour", "red", "unknown meanband setting 'colour'"),
+    ],
+)
+def test_bad_values_name_their_source(name, value, fragment):
+    with pytest.raises(SettingError) as info:
+        validate(name, value, "option --meanband-x")
+    assert str(info.value).startswith("option --meanband-x:")
+    assert fragment in str(info.value)
+
+
+def test_marker_signature_rejects_unknown_keywords_and_positional_args():
+    assert marker_settings(n=40, confidence=None) == {"n": 40}
+    with pytest.raises(TypeError, match="unexpected keyword argument 'trials'"):
+        marker_settings(trials=5)  # type: ignore[call-arg]
+    with pytest.raises(TypeError):
+        marker_settings(40)  # type: ignore[misc]
