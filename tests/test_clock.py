@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import pytest
-
 from meanband.clock import CLOCKS, Clock, get_clock, measure
 from meanband.errors import TrialError
 
@@ -51,6 +50,30 @@ def test_measure_finds_the_step_and_read_cost_of_a_deterministic_clock() -> None
         "resolution_ns": 37.0,
         "read_cost_ns": info.read_cost_ns,
     }
+
+
+class CoarseClock(SteppingClock):
+    """Time moves ``step`` ns per read, but the clock shows it in ticks of ``tick`` ns."""
+
+    def __init__(self, step: int, tick: int) -> None:
+        super().__init__(step)
+        self.tick = tick
+
+    def read(self) -> int:
+        return super().read() // self.tick * self.tick
+
+
+def test_a_clock_coarser_than_a_read_reports_its_tick() -> None:
+    info = measure(Clock("coarse", CoarseClock(40, 1000).read, "test", stated_resolution_ns=1.0))
+    # Back-to-back reads repeat a value, so the stated 1 ns is not believed: the tick is.
+    assert info.resolution_ns == 1000.0
+    assert info.read_cost_ns == pytest.approx(40.0, rel=0.01)
+
+
+def test_a_clock_finer_than_a_read_reports_its_stated_resolution() -> None:
+    info = measure(Clock("fine", SteppingClock(40).read, "test", stated_resolution_ns=1.0))
+    assert info.resolution_ns == 1.0
+    assert info.read_cost_ns == pytest.approx(40.0)
 
 
 def test_a_clock_that_never_advances_is_an_error() -> None:

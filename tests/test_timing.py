@@ -7,10 +7,9 @@ import itertools
 import json
 import math
 
+import meanband.timing as timing_module
 import numpy as np
 import pytest
-
-import meanband.timing as timing_module
 from meanband.clock import Clock, ClockInfo
 from meanband.errors import TrialError
 from meanband.timing import (

@@ -19,6 +19,8 @@ class Clock:
     name: str
     read: Callable[[], int]
     source: str
+    #: The resolution the platform states for the clock (``time.get_clock_info``), if known.
+    stated_resolution_ns: float | None = None
 
 
 #: Clocks by the name a user writes (``--meanband-clock``, marker ``clock=``). ``wall`` counts
@@ -27,8 +29,14 @@ class Clock:
 #: Tests replace an entry (``monkeypatch.setitem(CLOCKS, "wall", fake)``) to make time
 #: deterministic.
 CLOCKS: dict[str, Clock] = {
-    "wall": Clock("wall", time.perf_counter_ns, "time.perf_counter_ns"),
-    "cpu": Clock("cpu", time.process_time_ns, "time.process_time_ns"),
+    "wall": Clock(
+        "wall", time.perf_counter_ns, "time.perf_counter_ns",
+        time.get_clock_info("perf_counter").resolution * 1e9,
+    ),
+    "cpu": Clock(
+        "cpu", time.process_time_ns, "time.process_time_ns",
+        time.get_clock_info("process_time").resolution * 1e9,
+    ),
 }
 
 
@@ -51,8 +59,10 @@ class ClockInfo:
 
     clock: str
     source: str
-    #: Smallest positive difference seen between consecutive reads: an upper bound on the
-    #: clock's resolution, and the granularity a trial's duration actually has.
+    #: The clock's step. When back-to-back reads sometimes return the same value the clock is
+    #: coarser than a read, and this is the smallest positive difference seen; otherwise the
+    #: clock ticks faster than it can be read, and this is the stated resolution (or, when
+    #: none is stated, the smallest difference seen: an upper bound).
     resolution_ns: float
     #: Time one read takes (the cheapest of several batches of back-to-back reads).
     read_cost_ns: float
@@ -77,7 +87,7 @@ def measure(clock: str | Clock) -> ClockInfo:
     """
     clock = get_clock(clock)
     read = clock.read
-    step = _smallest_step(read)
+    step, repeats = _smallest_step(read)
     if step is None:
         raise TrialError(
             f"clock {clock.name!r} ({clock.source}) did not advance in {_STEP_READS} reads; "
@@ -91,16 +101,22 @@ def measure(clock: str | Clock) -> ClockInfo:
             read(); read(); read(); read(); read()  # noqa: E702
             read(); read(); read(); read(); read()  # noqa: E702
         best = min(best, (read() - start) / (10 * _COST_LOOPS + 1))
-    return ClockInfo(clock.name, clock.source, float(step), float(best))
+    resolution = float(step)
+    if not repeats and clock.stated_resolution_ns is not None:
+        resolution = min(resolution, float(clock.stated_resolution_ns))
+    return ClockInfo(clock.name, clock.source, resolution, float(best))
 
 
-def _smallest_step(read: Callable[[], int]) -> int | None:
+def _smallest_step(read: Callable[[], int]) -> tuple[int | None, int]:
+    """Smallest positive difference of back-to-back reads, and how often two reads were equal."""
     smallest: int | None = None
-    ticks = 0
+    ticks = repeats = 0
     previous = read()
     for _ in range(_STEP_READS):
         now = read()
-        if now != previous:
+        if now == previous:
+            repeats += 1
+        else:
             step = now - previous
             if step > 0 and (smallest is None or step < smallest):
                 smallest = step
@@ -108,4 +124,4 @@ def _smallest_step(read: Callable[[], int]) -> int | None:
             if ticks >= _STEP_TICKS:
                 break
             previous = now
-    return smallest
+    return smallest, repeats

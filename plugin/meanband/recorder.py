@@ -8,6 +8,7 @@ from typing import Any
 import numpy as np
 
 from meanband.bands import Decision, Edge, decide, make_band
+from meanband.clock import get_clock
 from meanband.errors import BandViolation, TrialError
 from meanband.explain import assumption_notes, describe
 from meanband.interval import Interval, mean_interval
@@ -33,21 +34,40 @@ class Series:
         self._values = np.empty(0, dtype=np.float64)
         self._warmup = np.empty(0, dtype=np.float64)
         self._timing: dict[str, Any] | None = None
+        self._timing_notes: list[dict[str, str]] = []
+        self._test_timing = TestTiming()
         self._rows: list[Row] = []
 
     # -- collecting -------------------------------------------------------------------------
 
     def time(
         self, fn: Callable[..., Any], *args: Any, n: int | None = None,
-        warmup: int | str | None = None, **kwargs: Any,
+        warmup: int | str | None = None, setup: Callable[[], Any] | None = None, **kwargs: Any,
     ) -> np.ndarray:
-        """Run ``n`` timed trials of ``fn(*args, **kwargs)``; each value is seconds per call."""
+        """Run ``n`` timed trials of ``fn(*args, **kwargs)``; each value is seconds per call.
+
+        Each trial makes k calls, k calibrated so a trial lasts the minimum trial time.
+        ``setup`` runs before every call, outside the timed region; a value it returns (not
+        None) is passed to ``fn`` as the first argument. See docs/timing.md.
+        """
         settings = self.settings.merged(n=n, warmup=warmup)
         self._claim(SECONDS, "time")
-        run = time_calls(fn, args, kwargs, n=settings.n, warmup=settings.warmup)
+        shared = self._test_timing
+        clock = get_clock(settings.clock)
+        run = time_calls(
+            fn, args, kwargs, n=settings.n, warmup=settings.warmup, setup=setup, clock=clock,
+            clock_info=shared.clock_info(clock), min_trial_time=settings.min_trial_time,
+            time_limit=shared.time_left(settings.time_limit), gc_enabled=settings.gc,
+            environ=shared.environ,
+        )
+        shared.spent += run.elapsed
         self._append(run.values)
         self._warmup = np.concatenate([self._warmup, run.warmup])
-        self._timing = run.to_dict()
+        calls = 1 if self._timing is None else int(self._timing.get("calls", 1)) + 1
+        self._timing = {**run.to_dict(), "calls": calls}
+        for note in run.notes:
+            if note.to_dict() not in self._timing_notes:
+                self._timing_notes.append(note.to_dict())
         return run.values
 
     def sample(
@@ -119,7 +139,7 @@ class Series:
             self._values, band, confidence=settings.confidence, method=settings.method,
             power=settings.power,
         )
-        notes = assumption_notes(
+        notes = self._timing_notes + assumption_notes(
             decision.diagnostics, min_n=settings.min_n, normality_alpha=settings.normality_alpha
         )
         self._rows.append(self._row("check", settings, decision.to_dict(), notes))
@@ -134,7 +154,7 @@ class Series:
         if self._rows:
             return list(self._rows)
         if self._values.size:
-            return [self._row("unchecked", self.settings, None, [])]
+            return [self._row("unchecked", self.settings, None, list(self._timing_notes))]
         return []
 
     def _row(
@@ -175,8 +195,9 @@ class Series:
 class Recorder(Series):
     """The ``trials`` fixture: the default series, plus named ones from :meth:`series`."""
 
-    def __init__(self, settings: Settings, nodeid: str = "") -> None:
+    def __init__(self, settings: Settings, nodeid: str = "", timing: Any = None) -> None:
         super().__init__("", settings, nodeid)
+        self._test_timing = TestTiming(timing)
         self._series: dict[str, Series] = {}
 
     def series(self, name: str) -> Series:
@@ -185,6 +206,7 @@ class Recorder(Series):
             raise TrialError(f"a series needs a non-empty name, got {name!r}")
         if name not in self._series:
             self._series[name] = Series(name, self.settings, self.nodeid)
+            self._series[name]._test_timing = self._test_timing
         return self._series[name]
 
     def all_rows(self) -> list[Row]:
@@ -193,6 +215,29 @@ class Recorder(Series):
         for named in self._series.values():
             rows.extend(named.rows())
         return rows
+
+
+class TestTiming:
+    """What the series of one test share when timing: the session's clock measurements and
+    worker identity (a ``timing_plugin.TimingSession``, or None outside pytest) and the time
+    spent so far against the per-test time limit."""
+
+    __test__ = False  # not a test class, despite the name
+
+    def __init__(self, session: Any = None) -> None:
+        self.session = session
+        self.spent = 0.0
+
+    def clock_info(self, clock: Any) -> Any:
+        return None if self.session is None else self.session.clock_info(clock)
+
+    @property
+    def environ(self) -> dict[str, str] | None:
+        return None if self.session is None else self.session.environ
+
+    def time_left(self, limit: float | None) -> float | None:
+        """Seconds left of ``limit``; once spent, a sliver, so the engine takes its minimum."""
+        return None if limit is None else max(limit - self.spent, 1e-9)
 
 
 def _callable_name(fn: Callable[..., Any]) -> str:
