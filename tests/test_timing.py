@@ -85,6 +85,21 @@ def test_calibration_steps_grow_at_most_tenfold() -> None:
     assert timing.loops == steps[-1]
 
 
+def test_an_interrupted_last_calibration_step_does_not_leave_trials_short() -> None:
+    fake = FakeClock()
+    calls = itertools.count()
+
+    def fn() -> None:
+        # 100 ns a call, but call 200 (inside the k = 1000 step) is held up for 2 ms.
+        fake.spend(100 + (2_000_000 if next(calls) == 200 else 0))
+
+    timing = run(fake, fn, n=3, min_trial_time=1e-3)
+    assert [k for k, _ in timing.calibration] == [1, 10, 100, 1000]
+    # The k = 100 step ran at 100.5 ns a call: at that speed a 1 ms trial needs 9951 calls.
+    assert timing.loops == math.ceil(1e6 / ((100 * 100 + READ_COST) / 100))
+    assert np.all(timing.values * timing.loops * 1e9 >= 1e6)
+
+
 def test_fixed_loops_skip_calibration() -> None:
     fake = FakeClock()
     timing = run(fake, fake.work(100), n=4, loops=7)
