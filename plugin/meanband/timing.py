@@ -438,8 +438,8 @@ def _one(call, runner, k, read) -> int:
 def _calibrate(call, runner, read, target_ns: float, deadline) -> tuple[int, list]:
     """Smallest k found (growing geometrically) whose trial lasts ``target_ns``.
 
-    If an earlier step ran faster per call (the last one was slowed by an interruption), k is
-    raised so that a trial at that speed still lasts ``target_ns``.
+    If an earlier step ran more than 10% faster per call (the last one was slowed by an
+    interruption), k is raised so that a trial at that speed still lasts ``target_ns``.
     """
     k = 1
     history: list[tuple[int, int]] = []
@@ -447,9 +447,9 @@ def _calibrate(call, runner, read, target_ns: float, deadline) -> tuple[int, lis
         elapsed = _one(call, runner, k, read)
         history.append((k, elapsed))
         if elapsed >= target_ns or k >= MAX_LOOPS:
-            fastest = min((ns / loops for loops, ns in history if ns > 0), default=None)
-            if fastest is not None:
-                k = max(k, min(math.ceil(target_ns / fastest), MAX_LOOPS))
+            earlier = min((ns / loops for loops, ns in history[:-1] if ns > 0), default=None)
+            if earlier is not None and elapsed / k > _OVERSHOOT * earlier:
+                k = max(k, min(math.ceil(_OVERSHOOT * target_ns / earlier), MAX_LOOPS))
             return k, history
         if deadline is not None and read() > deadline:
             return k, history
