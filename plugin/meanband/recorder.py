@@ -35,7 +35,7 @@ class Series:
         self._warmup = np.empty(0, dtype=np.float64)
         self._timing: dict[str, Any] | None = None
         self._timing_notes: list[dict[str, str]] = []
-        self._test_timing = TestTiming()
+        self._test_timing = SharedTiming()
         self._rows: list[Row] = []
 
     # -- collecting -------------------------------------------------------------------------
@@ -197,7 +197,7 @@ class Recorder(Series):
 
     def __init__(self, settings: Settings, nodeid: str = "", timing: Any = None) -> None:
         super().__init__("", settings, nodeid)
-        self._test_timing = TestTiming(timing)
+        self._test_timing = SharedTiming(timing)
         self._series: dict[str, Series] = {}
 
     def series(self, name: str) -> Series:
@@ -217,12 +217,10 @@ class Recorder(Series):
         return rows
 
 
-class TestTiming:
+class SharedTiming:
     """What the series of one test share when timing: the session's clock measurements and
     worker identity (a ``timing_plugin.TimingSession``, or None outside pytest) and the time
     spent so far against the per-test time limit."""
-
-    __test__ = False  # not a test class, despite the name
 
     def __init__(self, session: Any = None) -> None:
         self.session = session
