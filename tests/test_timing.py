@@ -121,6 +121,11 @@ def test_the_default_min_trial_time_is_large_against_the_clock() -> None:
     coarse = FakeClock(step=10_000.0, read_cost=50)
     # 1000 steps of 10 us: the clock's step is at most 0.1% of a trial.
     assert run(coarse, coarse.work(10), n=2).min_trial_time == pytest.approx(1e-2)
+    # A 15.6 ms step would ask for 15.6 s trials: the default stops at 0.1 s, with a note.
+    very = FakeClock(step=15_600_000.0, read_cost=50)
+    timing = run(very, very.work(1_000_000), n=2)
+    assert timing.min_trial_time == pytest.approx(0.1)
+    assert "coarse-clock" in {note.code for note in timing.notes}
 
 
 def test_calibration_stops_at_the_loop_limit_with_a_note(monkeypatch) -> None:
@@ -495,6 +500,14 @@ def test_bad_arguments_are_errors_that_say_what_to_do(options, match) -> None:
 def test_a_non_callable_is_an_error() -> None:
     with pytest.raises(TrialError, match="needs a callable"):
         time_calls(42, n=3)  # type: ignore[arg-type]
+
+
+def test_a_coroutine_function_is_an_error() -> None:
+    async def fetch_quote() -> float:
+        return 1.0
+
+    with pytest.raises(TrialError, match="coroutine function"):
+        time_calls(fetch_quote, n=3)
 
 
 def test_the_real_clock_times_a_call() -> None:

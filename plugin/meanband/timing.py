@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import functools
 import gc
+import inspect
 import math
 import os
 from array import array
@@ -32,8 +33,11 @@ __all__ = [
 #: Floor of the automatic minimum trial time (seconds).
 DEFAULT_MIN_TRIAL_TIME = 1e-3
 #: The automatic minimum trial time is also at least this many clock reads and clock steps, so
-#: the read around a trial and the clock's step are each at most 0.1% of the trial.
+#: the read around a trial and the clock's step are each at most 0.1% of the trial ...
 _TRIAL_OVER_CLOCK = 1000
+#: ... but never more than this (seconds): a very coarse clock gets a note instead of trials
+#: that each last seconds.
+MAX_AUTOMATIC_MIN_TRIAL_TIME = 0.1
 #: Most calls one trial may make; calibration stops here even if the trial is still short.
 MAX_LOOPS = 1 << 26
 #: Calibration grows k at most tenfold per step: an early trial includes first-call costs.
@@ -145,12 +149,13 @@ class Timing:
 
 
 def default_min_trial_time(info: ClockInfo) -> float:
-    """1 ms, or 1000 clock reads or clock steps if that is longer (seconds)."""
-    return max(
+    """1 ms, or 1000 clock reads or clock steps if that is longer, up to 0.1 s (seconds)."""
+    wanted = max(
         DEFAULT_MIN_TRIAL_TIME,
         _TRIAL_OVER_CLOCK * info.read_cost_ns * 1e-9,
         _TRIAL_OVER_CLOCK * info.resolution_ns * 1e-9,
     )
+    return min(wanted, MAX_AUTOMATIC_MIN_TRIAL_TIME)
 
 
 def parse_warmup(value: int | str | None) -> tuple[int, float]:
@@ -215,6 +220,12 @@ def time_calls(
     """
     if not callable(fn):
         raise TrialError(f"time() needs a callable, got {fn!r}; pass the function, not its result")
+    if inspect.iscoroutinefunction(fn):
+        raise TrialError(
+            f"{getattr(fn, '__qualname__', fn)!r} is a coroutine function: calling it only makes "
+            "a coroutine and does none of the work; time a plain function that runs it, e.g. "
+            "lambda: loop.run_until_complete(fn())"
+        )
     if setup is not None and not callable(setup):
         raise TrialError(f"setup={setup!r} is not callable; pass a function that returns the input")
     n = _count("n", n, minimum=max(min_trials, 2))
