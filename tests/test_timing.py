@@ -10,6 +10,8 @@ import math
 import meanband.timing as timing_module
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from meanband.clock import Clock, ClockInfo
 from meanband.errors import TrialError
 from meanband.timing import (
@@ -74,6 +76,21 @@ def test_k_grows_as_the_callable_gets_faster() -> None:
         np.testing.assert_allclose(timing.values, expected, rtol=1e-12)
     assert ks[0] == 1
     assert all(a < b for a, b in itertools.pairwise(ks)), ks
+
+
+@settings(max_examples=40, deadline=None)
+@given(
+    cost=st.integers(min_value=2_000, max_value=5_000_000),
+    target_us=st.integers(min_value=0, max_value=5_000),
+)
+def test_calibration_reaches_the_target_with_the_smallest_step_it_tried(cost, target_us) -> None:
+    fake = FakeClock()
+    target_ns = target_us * 1_000
+    timing = run(fake, fake.work(cost), n=2, min_trial_time=target_ns * 1e-9)
+    steps = [k for k, _ in timing.calibration]
+    assert timing.loops * cost + READ_COST >= target_ns
+    assert all(k * cost + READ_COST < target_ns for k in steps[:-1])
+    assert all(a < b <= 10 * a for a, b in itertools.pairwise(steps))
 
 
 def test_calibration_steps_grow_at_most_tenfold() -> None:

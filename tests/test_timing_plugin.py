@@ -176,10 +176,14 @@ def test_warm(trials, fake):
 def test_setup_runs_outside_the_timed_region(suite) -> None:
     result, rows = suite(
         """
-def test_sort(trials, fake):
+import time
+
+def test_sort(trials, fake, monkeypatch):
+    # Sleeping moves the fake clock, as a real sleep moves the real one.
+    monkeypatch.setattr(time, "sleep", lambda seconds: setattr(fake, "now", fake.now + int(seconds * 1e9)))
     seen = []
     def slow_fresh_input():
-        fake.now += 10**9          # a one-second setup
+        time.sleep(1.0)            # a one-second setup
         return [3, 1, 2]
     def sort_in_place(data):
         seen.append(data)
@@ -195,6 +199,8 @@ def test_sort(trials, fake):
     k = row["timing"]["k"]
     assert row["values"] == pytest.approx([(k * 20_000 + READ) / k * 1e-9] * 8)
     assert row["timing"]["setup"] is True
+    # The sleeps happened (k of them per trial, plus calibration), just not inside a trial.
+    assert row["timing"]["elapsed"] > 8 * k
 
 
 def test_gc_is_restored_when_the_timed_callable_raises(suite) -> None:
