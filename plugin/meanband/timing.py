@@ -202,7 +202,7 @@ def time_calls(
 ) -> Timing:
     """Time ``fn(*args, **kwargs)`` in ``n`` trials of k calls each; values are seconds per call.
 
-    - calibration: k doubles up to tenfold per step until one trial lasts ``min_trial_time``
+    - calibration: k grows (at most tenfold per step) until one trial lasts ``min_trial_time``
       (default :func:`default_min_trial_time`), so the clock's read cost and step are small
       against the trial; ``loops`` fixes k and skips calibration;
     - warm-up: ``warmup`` trials (an int) or trials for a duration (``"200ms"``), at the
