@@ -124,7 +124,7 @@ def test_it(trials):
 def test_duration_strings_are_budgets_in_seconds(run_suite, pytester, edge, seconds):
     under = [seconds * f for f in (0.50, 0.52, 0.48, 0.50, 0.51)]
     over = [seconds * f for f in (1.50, 1.52, 1.48, 1.50, 1.51)]
-    pytester.makepyfile(test_units=f"""
+    pytester.makepyfile(test_edge_units=f"""
 import pytest
 from meanband import BandViolation
 
@@ -326,7 +326,7 @@ def _summary_block(result: pytest.RunResult) -> list[str]:
 
 
 def _write_summary_suite(pytester):
-    pytester.makepyfile(test_summary=_suite(
+    pytester.makepyfile(test_rows=_suite(
         {"INSIDE": INSIDE, "OUTSIDE": OUTSIDE, "STRADDLE": STRADDLE},
         SUMMARY_SUITE.replace("INSIDE + 1.0", "[v + 1.0 for v in INSIDE]")))
 
@@ -337,15 +337,15 @@ def test_summary_rows_notes_suggestions_and_unchecked(run_suite, pytester):
     assert result.ret == 0
     block = "\n".join(_summary_block(result))
     assert "meanband: 5 checks: 3 PASS, 1 FAIL, 1 UNDECIDED; 1 recorded but never checked; 2 notes" in block
-    assert re.search(r"test_summary.py::test_pass\s+30\s+85\.0\d* degC\s+\[.*\]\s+95%\s+\[84.6 degC, 85.4 degC\]\s+PASS", block)
-    assert re.search(r"test_summary.py::test_two_series \[cold\]\s+30 .*<= 85.3 degC\s+PASS", block)
+    assert re.search(r"test_rows.py::test_pass\s+30\s+85\.0\d* degC\s+\[.*\]\s+95%\s+\[84.6 degC, 85.4 degC\]\s+PASS", block)
+    assert re.search(r"test_rows.py::test_two_series \[cold\]\s+30 .*<= 85.3 degC\s+PASS", block)
     assert "notes:" in block
-    assert "test_summary.py::test_undecided: only 8 trials (fewer than 10)" in block
-    assert "test_summary.py::test_zero_spread: all trials are equal" in block
+    assert "test_rows.py::test_undecided: only 8 trials (fewer than 10)" in block
+    assert "test_rows.py::test_zero_spread: all trials are equal" in block
     assert "suggested trial counts (90% power):" in block
-    assert re.search(r"test_summary.py::test_undecided: UNDECIDED at n=8; about \d+ trials", block)
+    assert re.search(r"test_rows.py::test_undecided: UNDECIDED at n=8; about \d+ trials", block)
     assert "recorded but never checked:" in block
-    assert "test_summary.py::test_two_series [warm]: 30 trials, mean 86.0" in block
+    assert "test_rows.py::test_two_series [warm]: 30 trials, mean 86.0" in block
     assert "sd" not in block.split("\n")[2].split()  # no verbose columns by default
 
 

@@ -82,6 +82,10 @@ def make_band(
             raise TrialError("a band needs at least one edge: give low=, high= or center=/tolerance=")
         low_value = -math.inf if low is None else _edge_value(low, unit, "low")
         high_value = math.inf if high is None else _edge_value(high, unit, "high")
+    if low_value == math.inf or high_value == -math.inf:
+        raise TrialError(f"a band edge cannot lie beyond all values (low={low!r}, high={high!r})")
+    if not (math.isfinite(low_value) or math.isfinite(high_value)):
+        raise TrialError("a band needs at least one finite edge; both edges are open")
     if low_value > high_value:
         raise TrialError(
             f"the band's low edge {low!r} lies above its high edge {high!r}; swap them"

@@ -9,14 +9,20 @@ from typing import Any
 
 import numpy as np
 
-from meanband.sample import as_sample, location_scale
+from meanband.errors import TrialError
+from meanband.sample import as_sample, deviations, sum_of_products
 
-__all__ = ["SHAPIRO_MAX_N", "Diagnostics", "NormalityTest", "diagnose", "lag1_autocorrelation"]
+__all__ = [
+    "SHAPIRO_MAX_N",
+    "Diagnostics",
+    "NormalityTest",
+    "dagostino_pearson",
+    "diagnose",
+    "lag1_autocorrelation",
+]
 
 #: Largest n for which scipy's Shapiro-Wilk (Royston 1995, AS R94) gives an accurate p-value.
 SHAPIRO_MAX_N = 5000
-#: Smallest n for D'Agostino-Pearson's K^2, used above SHAPIRO_MAX_N (D'Agostino & Pearson 1973).
-_DAGOSTINO_MIN_N = 20
 
 
 @dataclass(frozen=True, slots=True)
@@ -57,10 +63,10 @@ class Diagnostics:
 def lag1_autocorrelation(x: np.ndarray, mean: float) -> float:
     """r(1) exactly as NIST StRD defines it: sum of lagged products over the sum of squares."""
     d = x - mean
-    denominator = float(np.dot(d, d))
+    denominator = sum_of_products(d, d)
     if denominator == 0.0:
         return math.nan
-    return float(np.dot(d[:-1], d[1:])) / denominator
+    return sum_of_products(d[:-1], d[1:]) / denominator
 
 
 def diagnose(values: Iterable[float] | np.ndarray, *, alpha: float = 0.05) -> Diagnostics:
@@ -74,22 +80,40 @@ def diagnose(values: Iterable[float] | np.ndarray, *, alpha: float = 0.05) -> Di
       (Bayley & Hammersley 1946) and is capped at n, so a negative r never inflates it;
     - skewness: the adjusted Fisher-Pearson coefficient G1 (Joanes & Gill 1998).
     """
+    if not 0.0 < alpha < 1.0:
+        raise TrialError(f"alpha must lie strictly between 0 and 1, got {alpha!r}")
     x = as_sample(values, minimum=1)
     n = x.size
-    mean, sd = location_scale(x) if n > 1 else (float(x[0]), math.nan)
+    if n > 1:
+        mean, sd, dev = deviations(x)
+    else:
+        mean, sd, dev = float(x[0]), math.nan, x
     zero_spread = n > 1 and sd == 0.0
-    normality = _normality(x, zero_spread)
-    skewness = _skewness(x, mean, sd) if n > 2 and not zero_spread else math.nan
     if n > 2 and not zero_spread:
         from scipy.stats import norm
 
-        lag1 = lag1_autocorrelation(x, mean)
+        # One set of sums over the deviations serves r(1), skewness and K^2: a million trials
+        # cost a few passes and no new array, not a pass and a temporary per statistic.
+        sum2 = sd * sd * (n - 1)
+        lag1 = sum_of_products(dev[:-1], dev[1:]) / sum2 if sum2 > 0 else math.nan
+        # Standardise (in place: dev is our own copy) so cubes and fourth powers stay in range.
+        z = np.divide(dev, sd, out=dev)
+        sum3 = float(np.einsum("i,i,i->", z, z, z))
+        squares = np.multiply(z, z, out=z)
+        sum4 = sum_of_products(squares, squares)
+        # G1 = n / ((n-1)(n-2)) * sum(z^3), z standardised by the n-1 sd (Joanes & Gill 1998).
+        skewness = n / ((n - 1) * (n - 2)) * sum3
+        # Central moments (divisor n) of z: sum(z^2) is n - 1 by construction.
+        normality = _normality(x, sd, ((n - 1) / n, sum3 / n, sum4 / n))
         limit = float(norm.ppf(1.0 - alpha / 2.0)) / math.sqrt(n)
         significant = abs(lag1 + 1.0 / n) > limit
         effective_n = n * (1.0 - lag1) / (1.0 + lag1) if lag1 > -1.0 else float(n)
         effective_n = float(min(max(effective_n, 1.0), n))
     else:
-        lag1, limit, significant, effective_n = math.nan, math.nan, False, float(n)
+        normality = _normality(x, sd, None)
+        skewness, lag1, limit, significant, effective_n = (
+            math.nan, math.nan, math.nan, False, float(n)
+        )
     return Diagnostics(
         n=n,
         mean=mean,
@@ -104,27 +128,61 @@ def diagnose(values: Iterable[float] | np.ndarray, *, alpha: float = 0.05) -> Di
     )
 
 
-def _skewness(x: np.ndarray, mean: float, sd: float) -> float:
-    n = x.size
-    z = (x - mean) / sd
-    # G1 = n / ((n-1)(n-2)) * sum(z^3) with z standardised by the n-1 sd (Joanes & Gill 1998).
-    return float(n / ((n - 1) * (n - 2)) * float(np.sum(z * z * z)))
-
-
-def _normality(x: np.ndarray, zero_spread: bool) -> NormalityTest:
+def _normality(
+    x: np.ndarray, sd: float, moments: tuple[float, float, float] | None
+) -> NormalityTest:
     n = x.size
     if n < 3:
         return NormalityTest("Shapiro-Wilk", math.nan, math.nan, False, f"needs 3 trials, got {n}")
-    if zero_spread:
+    if moments is None:
         return NormalityTest("Shapiro-Wilk", math.nan, math.nan, False, "all trials are equal")
     if n <= SHAPIRO_MAX_N:
         from scipy.stats import shapiro
 
-        result = shapiro(x)
+        # W does not depend on the scale; dividing by sd keeps AS R94 away from its absolute
+        # "range zero" limit when trials are tiny numbers (e.g. 1e-20 s).
+        result = shapiro(x / sd)
         return NormalityTest("Shapiro-Wilk", float(result.statistic), float(result.pvalue), True)
-    from scipy.stats import normaltest
+    statistic, pvalue = dagostino_pearson(n, *moments)
+    return NormalityTest("D'Agostino-Pearson K2", statistic, pvalue, True)
 
-    result = normaltest(x)
-    return NormalityTest(
-        "D'Agostino-Pearson K2", float(result.statistic), float(result.pvalue), True
+
+def dagostino_pearson(n: int, m2: float, m3: float, m4: float) -> tuple[float, float]:
+    """K^2 and its p-value from the central moments m2, m3, m4 (divisor n) of n >= 8 values.
+
+    K^2 = Z(b1)^2 + Z(b2)^2 (D'Agostino & Pearson 1973), with the skewness transform of
+    D'Agostino (1970) and the kurtosis transform of Anscombe & Glynn (1983), as set out by
+    D'Agostino, Belanger & D'Agostino (1990); K^2 is chi-squared with 2 df, so p = exp(-K^2/2).
+    Computed from moments the caller already has, it matches scipy.stats.normaltest without
+    scipy's extra passes over the data.
+    """
+    if n < 8:
+        raise TrialError(f"D'Agostino-Pearson K^2 needs at least 8 values, got {n}")
+    b1 = m3 / m2**1.5
+    b2 = m4 / m2**2
+    # Skewness: D'Agostino (1970).
+    y = b1 * math.sqrt((n + 1) * (n + 3) / (6.0 * (n - 2)))
+    beta2 = (
+        3.0 * (n * n + 27 * n - 70) * (n + 1) * (n + 3)
+        / ((n - 2.0) * (n + 5) * (n + 7) * (n + 9))
     )
+    w2 = -1.0 + math.sqrt(2.0 * (beta2 - 1.0))
+    delta = 1.0 / math.sqrt(0.5 * math.log(w2))
+    a = math.sqrt(2.0 / (w2 - 1.0))
+    z_skew = delta * math.asinh(y / a)  # = delta * log(y/a + sqrt((y/a)^2 + 1))
+    # Kurtosis: Anscombe & Glynn (1983), equations 1-5.
+    expected = 3.0 * (n - 1) / (n + 1)
+    variance = 24.0 * n * (n - 2) * (n - 3) / ((n + 1) * (n + 1.0) * (n + 3) * (n + 5))
+    standard = (b2 - expected) / math.sqrt(variance)
+    root_beta1 = (
+        6.0 * (n * n - 5 * n + 2) / ((n + 7) * (n + 9))
+        * math.sqrt(6.0 * (n + 3) * (n + 5) / (n * (n - 2) * (n - 3)))
+    )
+    big_a = 6.0 + 8.0 / root_beta1 * (2.0 / root_beta1 + math.sqrt(1.0 + 4.0 / root_beta1**2))
+    denominator = 1.0 + standard * math.sqrt(2.0 / (big_a - 4.0))
+    if denominator == 0.0:
+        return math.nan, math.nan
+    term = math.copysign(abs((1.0 - 2.0 / big_a) / denominator) ** (1.0 / 3.0), denominator)
+    z_kurt = (1.0 - 2.0 / (9.0 * big_a) - term) / math.sqrt(2.0 / (9.0 * big_a))
+    statistic = z_skew * z_skew + z_kurt * z_kurt
+    return statistic, math.exp(-statistic / 2.0)

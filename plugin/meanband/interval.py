@@ -60,6 +60,8 @@ def critical_t(confidence: float, df: float, side: str = "two-sided") -> float:
     """Student-t critical value: the (1+C)/2 quantile two-sided, the C quantile one-sided."""
     level = check_confidence(confidence)
     _check_side(side)
+    if not df > 0:  # also refuses NaN, for which scipy would quietly return NaN
+        raise TrialError(f"degrees of freedom must be positive, got {df!r}; use n - 1 for n trials")
     q = (1.0 + level) / 2.0 if side == "two-sided" else level
     if math.isinf(df):
         from scipy.stats import norm

@@ -3,19 +3,23 @@
 from __future__ import annotations
 
 import math
-from collections.abc import Iterable
+from collections.abc import Iterable, Sequence
 
 import numpy as np
 
 from meanband.errors import TrialError
 
-__all__ = ["as_sample", "check_confidence", "location_scale"]
+__all__ = ["as_sample", "check_confidence", "deviations", "location_scale", "sum_of_products"]
 
 _MAX_LISTED_POSITIONS = 8
 
 
 def as_sample(values: Iterable[float] | np.ndarray, *, minimum: int = 2) -> np.ndarray:
     """Return ``values`` as a 1-D float64 array, refusing NaN, infinities and too few values."""
+    if isinstance(values, Iterable) and not (
+        isinstance(values, Sequence) or hasattr(values, "__array__")
+    ):
+        values = list(values)  # generators, map objects, dict views: numpy cannot read them
     try:
         x = np.asarray(values, dtype=np.float64)
     except (TypeError, ValueError) as exc:
@@ -54,20 +58,52 @@ def check_confidence(confidence: float) -> float:
 
 
 def location_scale(x: np.ndarray) -> tuple[float, float]:
-    """Mean and sample standard deviation (n - 1 divisor), accurate under a large offset.
+    """Mean and sample standard deviation (n - 1 divisor), accurate under a large offset."""
+    mean, sd, _ = deviations(x)
+    return mean, sd
+
+
+def deviations(x: np.ndarray) -> tuple[float, float, np.ndarray]:
+    """Mean, sample standard deviation (n - 1 divisor) and the deviations ``x - mean``.
 
     The data are shifted by their first value before summing: values close to one another
     subtract exactly (Sterbenz's lemma), so the deviations that remain are small and the
     two-pass sum of squares keeps its digits (NIST StRD NumAcc3/NumAcc4 exist to catch this).
+    One new array holds the deviations and is updated in place; callers may reuse it (diagnose
+    standardises it in place), since it is theirs alone.
     """
     shift = x[0]
     d = x - shift
     mean_d = float(np.mean(d))
-    d = d - mean_d
+    d -= mean_d
     # Second-pass correction (Chan, Golub & LeVeque 1983): removes the rounding left in mean_d.
     correction = float(np.mean(d))
     mean_d += correction
     d -= correction
     n = x.size
-    sd = math.sqrt(float(np.dot(d, d)) / (n - 1)) if n > 1 else math.nan
-    return float(shift + mean_d), sd
+    sd = math.sqrt(sum_of_products(d, d) / (n - 1)) if n > 1 else math.nan
+    return float(shift + mean_d), sd, d
+
+
+def sum_of_products(a: np.ndarray, b: np.ndarray) -> float:
+    """sum(a * b), accurately and without a temporary the size of the data.
+
+    Blocks of products go through numpy's pairwise summation and the block sums through
+    math.fsum, so the rounding error stays near that of pairwise summation (Higham 1993).
+    numpy.dot is avoided on purpose: it hands the work to a multithreaded BLAS whose threads
+    are slow to start and stall on a busy CI machine, and whose summation order is unspecified.
+    """
+    n = a.size
+    if n <= _BLOCK:
+        return float(np.add.reduce(a * b))
+    buffer = np.empty(_BLOCK, dtype=np.float64)
+    partial = []
+    for start in range(0, n, _BLOCK):  # a loop over blocks of 32768 values, not over trials
+        stop = min(start + _BLOCK, n)
+        block = np.multiply(a[start:stop], b[start:stop], out=buffer[: stop - start])
+        partial.append(float(np.add.reduce(block)))
+    return math.fsum(partial)
+
+
+#: Values per block in sum_of_products: the buffer (256 KiB) stays in the CPU cache.
+_BLOCK = 1 << 15

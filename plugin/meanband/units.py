@@ -50,6 +50,9 @@ def format_number(value: float, digits: int = 4) -> str:
     if value == 0:
         return "0"
     magnitude = math.floor(math.log10(abs(value)))
+    rounded = round(value, digits - 1 - magnitude)
+    if rounded != 0:  # 999.96 rounds up to 1000.0: count digits from the rounded value
+        magnitude = math.floor(math.log10(abs(rounded)))
     if -4 <= magnitude < 9:
         decimals = max(digits - 1 - magnitude, 0)
         return f"{value:.{decimals}f}"
