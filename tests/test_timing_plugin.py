@@ -395,3 +395,22 @@ def test_x(trials):
 """
     )
     result.stdout.fnmatch_lines(["*marker @pytest.mark.meanband on test_timed.py::test_x*time_limit*"])
+
+
+def test_clock_gc_and_time_limit_from_the_ini_file(suite, pytester) -> None:
+    pytester.makeini(
+        "[pytest]\nmeanband_clock = cpu\nmeanband_gc = on\nmeanband_time_limit = 30ms\n"
+    )
+    result, rows = suite(
+        """
+def test_from_ini(trials):
+    states = []
+    trials.time(lambda: states.append(gc.isenabled()), n=5, setup=None)
+    assert all(states)
+"""
+    )
+    assert result.ret == 0
+    row = one(rows, "test_from_ini")
+    assert row["settings"]["clock"] == "cpu" and row["timing"]["clock"] == "cpu"
+    assert row["settings"]["gc"] is True and row["timing"]["gc_enabled"] is True
+    assert row["timing"]["time_limit"] == pytest.approx(0.03)
