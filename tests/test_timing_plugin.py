@@ -414,3 +414,29 @@ def test_from_ini(trials):
     assert row["settings"]["clock"] == "cpu" and row["timing"]["clock"] == "cpu"
     assert row["settings"]["gc"] is True and row["timing"]["gc_enabled"] is True
     assert row["timing"]["time_limit"] == pytest.approx(0.03)
+
+
+def test_verbose_timing_lines_skip_rows_timed_elsewhere(suite) -> None:
+    result, rows = suite(
+        """
+def test_mixed(trials, fake):
+    trials.series("engine").time(fake.work(25_000), n=3)
+    trials.compare(lambda: sum(range(50)), lambda: sum(range(50)), at_most=10.0, n=4, seed=1)
+""",
+        "-v",
+    )
+    assert result.ret == 0, result.stdout.str()
+    assert {row["source"] for row in rows["test_mixed"]} == {"time", "compare"}
+    result.stdout.fnmatch_lines(
+        [
+            "timing clocks (measured once per test process):",
+            "  wall (fake clock): step 1.00 ns, one read 50.0 ns",
+            "timed series:",
+            "  test_timed.py::test_mixed [[]engine[]]: k=*",
+        ]
+    )
+    clock_lines = result.stdout.str().split("timing clocks")[1].split("timed series:")[0]
+    assert [line.strip() for line in clock_lines.strip().splitlines()] == [
+        "(measured once per test process):",
+        "wall (fake clock): step 1.00 ns, one read 50.0 ns",
+    ]

@@ -199,6 +199,7 @@ class Recorder(Series):
         super().__init__("", settings, nodeid)
         self._test_timing = SharedTiming(timing)
         self._series: dict[str, Series] = {}
+        self._comparisons: list[Row] = []
 
     def series(self, name: str) -> Series:
         """The series called ``name`` (created on first use), e.g. ``trials.series("cold")``."""
@@ -209,11 +210,47 @@ class Recorder(Series):
             self._series[name]._test_timing = self._test_timing
         return self._series[name]
 
+    def compare(
+        self,
+        new: Callable[[], Any],
+        old: Callable[[], Any],
+        *,
+        at_most: float | None = None,
+        at_least: float | None = None,
+        n: int | None = None,
+        confidence: float | None = None,
+        repeats: int = 5,
+        warmup: int = 2,
+        seed: int | None = None,
+        name: str | None = None,
+    ) -> Any:
+        """Time ``new`` and ``old`` in interleaved pairs (random order within each pair) and
+        pass only if the interval of the time ratio new/old lies inside the limits, e.g.
+        ``trials.compare(parse_v2, parse_v1, at_most=1.05)``: "v2 is at most 5% slower".
+
+        Drift of the machine hits both sides of a pair alike and cancels in the ratio, which
+        makes this the robust gate on a noisy CI machine (see ``meanband.comparison``).
+        """
+        from meanband.comparison import compare_callables
+
+        settings = self.settings.merged(n=n, confidence=confidence)
+        result, row, message = compare_callables(
+            new, old, n=settings.n, at_most=at_most, at_least=at_least,
+            confidence=settings.confidence, power=settings.power, repeats=repeats, warmup=warmup,
+            seed=seed,
+            name=name, nodeid=self.nodeid, settings=settings.to_dict(),
+        )
+        self._comparisons.append(row)
+        if not result.passed:
+            raise BandViolation(message, result)
+        return result
+
     def all_rows(self) -> list[Row]:
         """Rows of the default series and every named series, in creation order."""
         rows = self.rows()
         for named in self._series.values():
             rows.extend(named.rows())
+        rows.extend(self._comparisons)
         return rows
 
 

@@ -71,7 +71,12 @@ def timing_lines(rows: list[Row]) -> list[str]:
     from meanband.summary import row_name
     from meanband.units import SECONDS, format_value
 
-    timed = [r for r in rows if isinstance(r.get("timing"), dict)]
+    # Rows the engine timed; other features (e.g. in-run comparisons) keep their own details.
+    timed = [
+        r for r in rows
+        if r.get("source") == "time" and isinstance(r.get("timing"), dict)
+        and "resolution_ns" in r["timing"]
+    ]
     if not timed:
         return []
 

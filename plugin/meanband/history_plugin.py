@@ -1,0 +1,344 @@
+"""pytest glue for baselines: record runs in the history store, compare checks with a baseline."""
+
+from __future__ import annotations
+
+import itertools
+import math
+import os
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+import pytest
+
+if TYPE_CHECKING:
+    from meanband.history import StoredCheck
+    from meanband.regression import Limits
+
+HISTORY_PLUGIN_NAME = "meanband-history"
+
+_HELP = {
+    "store": "History store file for --meanband-record and --meanband-baseline "
+    "(default .meanband/history.sqlite under the rootdir).",
+    "record": "Store this run's checks and trials in the history store, under LABEL (default: "
+    "the git branch). Write the label with '=': --meanband-record=main.",
+    "baseline": "Compare every check with the same check in a stored run: the newest run with "
+    "LABEL, run number N, or the newest run when no label is given (--meanband-baseline=main).",
+    "max_increase": "How much slower than its baseline a timing may be before it counts as "
+    "regressed, e.g. '5%' (default 5%).",
+    "max_change": "How far a measured value (not a timing) may move from its baseline either "
+    "way, e.g. '2%' (default 5%).",
+    "store_timeout": "Seconds to wait for another process that is writing the history store "
+    "(default 10).",
+}
+
+
+def pytest_addoption(parser: pytest.Parser) -> None:
+    group = parser.getgroup("meanband")
+    group.addoption("--meanband-store", dest="meanband_store", metavar="PATH", default=None,
+                    help=_HELP["store"])
+    group.addoption("--meanband-record", dest="meanband_record", metavar="LABEL", nargs="?",
+                    const="", default=None, help=_HELP["record"])
+    group.addoption("--meanband-baseline", dest="meanband_baseline", metavar="LABEL", nargs="?",
+                    const="latest", default=None, help=_HELP["baseline"])
+    group.addoption("--meanband-max-increase", dest="meanband_max_increase", metavar="FRACTION",
+                    default=None, help=_HELP["max_increase"])
+    group.addoption("--meanband-max-change", dest="meanband_max_change", metavar="FRACTION",
+                    default=None, help=_HELP["max_change"])
+    group.addoption("--meanband-store-timeout", dest="meanband_store_timeout", metavar="SECONDS",
+                    default=None, help=_HELP["store_timeout"])
+    for name in ("store", "max_increase", "max_change", "store_timeout"):
+        parser.addini(f"meanband_{name}", _HELP[name], type="string", default=None)  # type: ignore[arg-type]
+
+
+def pytest_configure(config: pytest.Config) -> None:
+    if hasattr(config, "workerinput"):
+        return  # only the controller reads and writes the store
+    record = config.getoption("meanband_record")
+    baseline = config.getoption("meanband_baseline")
+    if record is None and baseline is None:
+        return
+    from meanband.errors import TrialError
+    from meanband.history import StoreError
+    from meanband.ratio import parse_fraction
+    from meanband.regression import DEFAULT_MAX_CHANGE, DEFAULT_MAX_INCREASE, Limits
+
+    args = [str(a) for a in config.invocation_params.args]
+    for option, value in (("--meanband-record", record), ("--meanband-baseline", baseline)):
+        # "--meanband-record tests/" takes the path as the label; "--meanband-record=main" is
+        # what was meant even when a directory called main exists.
+        separate = any(a == option and b == value for a, b in itertools.pairwise(args))
+        if value and separate and os.path.exists(value):
+            raise pytest.UsageError(
+                f"{option} took {value!r} as its label, but that is a path; write the label "
+                f"with '=' ({option}=LABEL) or put the option after the paths"
+            )
+    try:
+        limits = Limits(
+            max_increase=_fraction(config, "max_increase", DEFAULT_MAX_INCREASE, parse_fraction),
+            max_change=_fraction(config, "max_change", DEFAULT_MAX_CHANGE, parse_fraction),
+        )
+        timeout = _timeout(config)
+    except TrialError as exc:
+        raise pytest.UsageError(str(exc)) from None
+    plugin = HistoryPlugin(config, _store_path(config), limits, timeout, record)
+    if baseline is not None:
+        try:
+            plugin.load_baseline(baseline)
+        except StoreError as exc:
+            raise pytest.UsageError(f"--meanband-baseline: {exc}") from None
+    config.pluginmanager.register(plugin, HISTORY_PLUGIN_NAME)
+
+
+def _fraction(config: pytest.Config, name: str, default: float, parse: Any) -> float:
+    word = name.replace("_", "-")
+    given = config.getoption(f"meanband_{name}")
+    if given is not None:
+        return float(parse(given, f"--meanband-{word}"))
+    ini = config.getini(f"meanband_{name}")
+    if ini not in (None, ""):
+        return float(parse(ini, f"ini key meanband_{name}"))
+    return default
+
+
+def _timeout(config: pytest.Config) -> float:
+    from meanband.errors import TrialError
+    from meanband.history import DEFAULT_TIMEOUT
+
+    given = config.getoption("meanband_store_timeout")
+    source = "--meanband-store-timeout"
+    if given is None:
+        given = config.getini("meanband_store_timeout") or None
+        source = "ini key meanband_store_timeout"
+    if given is None:
+        return DEFAULT_TIMEOUT
+    try:
+        seconds = float(given)
+    except ValueError:
+        raise TrialError(f"{source}: {given!r} is not a number of seconds") from None
+    if not math.isfinite(seconds) or seconds < 0:
+        raise TrialError(f"{source}: the wait must be 0 or more seconds, got {given!r}")
+    return seconds
+
+
+def _store_path(config: pytest.Config) -> Path:
+    """Command line (relative to the invocation directory) > ini (relative to the rootdir) >
+    default under the rootdir."""
+    from meanband.history import DEFAULT_STORE
+
+    given = config.getoption("meanband_store")
+    if given:
+        return Path(config.invocation_params.dir, given)
+    ini = config.getini("meanband_store")
+    if ini:
+        return Path(config.rootpath, ini)
+    return config.rootpath / DEFAULT_STORE
+
+
+class HistoryPlugin:
+    """Compares rows with the baseline as they arrive; records the run at the end."""
+
+    def __init__(
+        self, config: pytest.Config, store: Path, limits: Limits, timeout: float,
+        record: str | None,
+    ) -> None:
+        self.config = config
+        self.store = store
+        self.limits = limits
+        self.timeout = timeout
+        self.record = record
+        self.baseline_run: Any = None
+        self.baseline_checks: dict[tuple[str, str], StoredCheck] = {}
+        self.session: pytest.Session | None = None
+        self.recorded: tuple[int, str] | None = None
+        self.record_error: str | None = None
+        self.record_skipped: str | None = None
+        self._environment: dict[str, Any] | None = None
+
+    def load_baseline(self, ref: str) -> None:
+        from meanband.history import HistoryStore
+
+        with HistoryStore(self.store, create=False, timeout=self.timeout) as store:
+            self.baseline_run = store.find_run(ref)
+            self.baseline_checks = {c.key: c for c in store.checks(self.baseline_run.id)}
+
+    def environment(self) -> dict[str, Any]:
+        """This run's commit, machine and Python, looked up once."""
+        if self._environment is None:
+            from meanband.history import describe_environment
+
+            self._environment = describe_environment(self.config.rootpath)
+        return self._environment
+
+    def pytest_sessionstart(self, session: pytest.Session) -> None:
+        self.session = session
+
+    def pytest_meanband_result(self, config: pytest.Config, row: dict[str, Any]) -> None:
+        if self.baseline_run is not None:
+            row["baseline"] = self._compare(row)
+
+    def _compare(self, row: dict[str, Any]) -> dict[str, Any]:
+        from meanband.errors import TrialError
+        from meanband.regression import NO_BASELINE, compare_samples, is_timing
+
+        run = self.baseline_run
+        about = {"run": run.id, "label": run.label}
+        if row.get("source") == "compare":
+            return {**about, "status": "not compared",
+                    "reason": "an in-run comparison is its own gate"}
+        key = (row.get("nodeid", ""), row.get("series", ""))
+        stored = self.baseline_checks.get(key)
+        if stored is None:
+            return {**about, "status": NO_BASELINE,
+                    "reason": f"run {run.id} has no trials for this check"}
+        if stored.unit != row.get("unit"):
+            return {**about, "status": "not compared",
+                    "reason": f"the unit changed from {stored.unit or 'none'} to "
+                              f"{row.get('unit') or 'none'} since run {run.id}"}
+        confidence = (row.get("settings") or {}).get("confidence", 0.95)
+        try:
+            result = compare_samples(
+                row.get("values") or [], stored.values,
+                timing=is_timing(row.get("unit"), row.get("source")),
+                confidence=confidence, limits=self.limits,
+            )
+        except TrialError as exc:
+            return {**about, "status": "not compared", "reason": str(exc)}
+        return {**about, **result}
+
+    def pytest_meanband_session_finish(
+        self, config: pytest.Config, rows: list[dict[str, Any]]
+    ) -> None:
+        from meanband.regression import REGRESSED
+
+        failed = any((r.get("baseline") or {}).get("status") == REGRESSED for r in rows)
+        status = self.session.exitstatus if self.session is not None else pytest.ExitCode.OK
+        if self.record is not None:
+            if status in (pytest.ExitCode.OK, pytest.ExitCode.TESTS_FAILED):
+                failed |= not self._record(rows)
+            else:
+                # An interrupted run holds only some checks: a poor baseline for later runs.
+                self.record_skipped = (
+                    f"the session ended early (exit status {int(status)}), so this run was not "
+                    "recorded"
+                )
+        if failed and self.session is not None and self.session.exitstatus == pytest.ExitCode.OK:
+            self.session.exitstatus = pytest.ExitCode.TESTS_FAILED
+
+    def _record(self, rows: list[dict[str, Any]]) -> bool:
+        from meanband.history import HistoryStore, StoreError
+
+        environment = self.environment()
+        label = self.record or environment.get("branch") or ""
+        try:
+            with HistoryStore(self.store, timeout=self.timeout) as store:
+                run_id = store.record_run(rows, label=label, environment=environment)
+        except StoreError as exc:
+            self.record_error = str(exc)
+            return False
+        self.recorded = (run_id, label)
+        return True
+
+    def pytest_terminal_summary(self, terminalreporter: pytest.TerminalReporter) -> None:
+        # With no rows the meanband hooks never run; say so rather than record nothing silently.
+        if self.record is not None and not (self.recorded or self.record_error or self.record_skipped):
+            terminalreporter.write_line(
+                "meanband: no test recorded trials, so there was nothing to record"
+            )
+
+    def pytest_meanband_summary_lines(
+        self, config: pytest.Config, rows: list[dict[str, Any]]
+    ) -> list[str]:
+        lines: list[str] = []
+        if self.baseline_run is not None:
+            lines += baseline_lines(self.baseline_run, rows)
+            elsewhere = machine_difference(self.baseline_run, self.environment())
+            if elsewhere:
+                lines.append(f"note: {elsewhere}")
+        if self.recorded is not None:
+            run_id, label = self.recorded
+            named = f" '{label}'" if label else ""
+            lines += ["", f"meanband: recorded run {run_id}{named} in {self.store}"]
+        if self.record_skipped is not None:
+            lines += ["", f"meanband: {self.record_skipped}"]
+        if self.record_error is not None:
+            lines += ["", f"meanband: ERROR: this run was not recorded: {self.record_error}"]
+        return lines
+
+
+def baseline_lines(run: Any, rows: list[dict[str, Any]]) -> list[str]:
+    """The baseline section of the summary: one line per compared check, then the verdicts."""
+    from meanband.regression import (
+        CANNOT_TELL,
+        NO_BASELINE,
+        REGRESSED,
+        format_limit,
+        format_ratio,
+    )
+    from meanband.summary import row_name
+    from meanband.units import format_value
+
+    label = f" '{run.label}'" if run.label else ""
+    commit = f", commit {run.commit[:10]}" if run.commit else ""
+    lines = ["", f"baseline: run {run.id}{label} of {run.started}{commit}"]
+    table: list[list[str]] = []
+    notes: list[str] = []
+    regressed: list[str] = []
+    levels: set[float] = set()
+    for row in sorted(rows, key=lambda r: (r.get("nodeid", ""), r.get("series", ""))):
+        info = row.get("baseline")
+        if not info:
+            continue
+        name = row_name(row)
+        if "ratio" not in info:
+            if info["status"] == NO_BASELINE:
+                notes.append(f"  {name}: no baseline in run {run.id}; nothing to compare yet")
+            else:
+                notes.append(f"  {name}: not compared: {info.get('reason', '')}")
+            continue
+        unit = row.get("unit")
+        levels.add(info["ratio"]["confidence"])
+        table.append([
+            name, format_value(info["baseline_mean"], unit),
+            format_value(info["current_mean"], unit), format_ratio(info["ratio"]),
+            format_limit(info), info["status"],
+        ])
+        if info["status"] == CANNOT_TELL:
+            more = info.get("suggested_n")
+            notes.append(
+                f"  {name}: cannot tell yet at n={info['n_current']} (baseline "
+                f"n={info['n_baseline']}); "
+                + (f"about {more} trials in both runs would likely decide it" if more else
+                   "the ratio sits on the limit, more trials are unlikely to decide it")
+            )
+        if info.get("note"):
+            notes.append(f"  {name}: {info['note']}")
+        if info["status"] == REGRESSED:
+            regressed.append(name)
+    if table:
+        level = f"{levels.pop() * 100:g}% " if len(levels) == 1 else ""
+        header = ["test", "baseline mean", "mean", f"ratio, {level}interval", "allowed", "verdict"]
+        widths = [max(len(h), *(len(r[i]) for r in table)) for i, h in enumerate(header)]
+        for cells in [header, *table]:
+            lines.append("  ".join(c.ljust(w) for c, w in zip(cells, widths, strict=True)).rstrip())
+    if notes:
+        lines += ["", "baseline notes:", *notes]
+    if regressed:
+        lines += ["", f"meanband: REGRESSION: {len(regressed)} check(s) slower or moved beyond the "
+                  f"allowed change from run {run.id}{label}; the session fails:"]
+        lines += [f"  {name}" for name in regressed]
+    return lines
+
+
+def machine_difference(run: Any, environment: dict[str, Any]) -> str | None:
+    """A warning when the baseline ran on another kind of machine or Python: timing ratios then
+    compare the machines as well as the code. Host names alone are not compared, since CI
+    runners of one kind get a new name each time."""
+    then = (run.machine, run.cpus, run.python)
+    now = (environment.get("machine"), environment.get("cpus"), environment.get("python"))
+    if then == now:
+        return None
+    return (
+        f"the baseline ran on {run.host} ({then[0]}, {then[1]} CPUs, {then[2]}), this run on "
+        f"{environment.get('host')} ({now[0]}, {now[1]} CPUs, {now[2]}); timing ratios compare "
+        "the machines as well as the code"
+    )

@@ -1,0 +1,152 @@
+"""Judge a check against its baseline: ratio interval, limit and a verdict in plain words."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from meanband.bands import Verdict
+from meanband.ratio import RatioInterval, judge_ratio, ratio_interval
+from meanband.units import SECONDS
+
+__all__ = [
+    "CANNOT_TELL",
+    "DEFAULT_MAX_CHANGE",
+    "DEFAULT_MAX_INCREASE",
+    "NO_BASELINE",
+    "NO_REGRESSION",
+    "REGRESSED",
+    "Limits",
+    "compare_samples",
+    "format_limit",
+    "format_ratio",
+    "is_timing",
+]
+
+REGRESSED = "regressed"
+NO_REGRESSION = "no regression"
+CANNOT_TELL = "cannot tell yet"
+NO_BASELINE = "no baseline"
+
+#: A timing may grow by this fraction of its baseline before it counts as a regression.
+DEFAULT_MAX_INCREASE = 0.05
+#: A measured value (not a timing) may move by this fraction either way.
+DEFAULT_MAX_CHANGE = 0.05
+
+_WORDS = {Verdict.FAIL: REGRESSED, Verdict.PASS: NO_REGRESSION, Verdict.UNDECIDED: CANNOT_TELL}
+
+
+@dataclass(frozen=True, slots=True)
+class Limits:
+    """How far a check may move from its baseline: timings up, other values either way."""
+
+    max_increase: float = DEFAULT_MAX_INCREASE
+    max_change: float = DEFAULT_MAX_CHANGE
+
+    def band(self, timing: bool) -> tuple[float, float]:
+        """The allowed range of current/baseline."""
+        if timing:
+            return (-math.inf, 1.0 + self.max_increase)
+        return (1.0 - self.max_change, 1.0 + self.max_change)
+
+
+def is_timing(unit: str | None, source: str | None) -> bool:
+    """Timings are compared on the log scale and may only grow by ``max_increase``."""
+    return unit == SECONDS or source == "time"
+
+
+def compare_samples(
+    current: Iterable[float] | np.ndarray,
+    baseline: Iterable[float] | np.ndarray,
+    *,
+    timing: bool,
+    confidence: float = 0.95,
+    limits: Limits | None = None,
+) -> dict[str, Any]:
+    """Compare ``current`` trials with ``baseline`` trials of the same check.
+
+    The two-sided ``confidence`` interval of current/baseline decides: wholly above the limit is
+    ``regressed``, wholly inside the allowed range is ``no regression``, across an edge is
+    ``cannot tell yet``. For timings the ratio is of geometric means on the log scale (Welch
+    1947 on log values); for other values it is the ratio of means by Fieller (1954). When the
+    true ratio sits exactly on the limit, a check is called regressed with probability at most
+    (1 - confidence) / 2.
+
+    Returns builtin types only (it becomes the ``"baseline"`` key of a row).
+    """
+    limits = limits or Limits()
+    xc = np.asarray(current, dtype=np.float64)
+    xb = np.asarray(baseline, dtype=np.float64)
+    positive = bool(np.all(xc > 0) and np.all(xb > 0))
+    method = "log" if timing and positive else "fieller"
+    interval: RatioInterval = ratio_interval(xc, xb, confidence, method)
+    low, high = limits.band(timing)
+    status = _WORDS[judge_ratio(interval, low, high)]
+    result: dict[str, Any] = {
+        "status": status,
+        "timing": timing,
+        "ratio": interval.to_dict(),
+        "limit_low": None if math.isinf(low) else low,
+        "limit_high": high,
+        "current_mean": interval.mean_current,
+        "baseline_mean": interval.mean_baseline,
+        "n_current": interval.n_current,
+        "n_baseline": interval.n_baseline,
+    }
+    if status == CANNOT_TELL:
+        result["suggested_n"] = _trials_to_decide(xc, xb, interval, (low, high), confidence)
+    if timing and not positive:
+        result["note"] = (
+            "some timings are zero or negative, so they were compared as a ratio of means "
+            "(Fieller) rather than on the log scale"
+        )
+    return result
+
+
+def _trials_to_decide(
+    xc: np.ndarray, xb: np.ndarray, interval: RatioInterval, band: tuple[float, float],
+    confidence: float,
+) -> int | None:
+    """Trials per run (the same in both) that would likely decide an undecided comparison.
+
+    On the scale the interval is built on (logs for the log method, the ratio itself by the
+    delta method otherwise) the difference of two means of n trials each has the spread of one
+    mean of n trials with sd sqrt(s_c^2 + s_b^2); the count then follows from the noncentral t
+    power of planning.trials_needed.
+    """
+    from meanband.planning import trials_needed
+
+    if not interval.bounded:
+        return None
+    edges = [e for e in band if math.isfinite(e)]
+    if interval.method == "log":
+        sd = math.hypot(float(np.std(np.log(xc), ddof=1)), float(np.std(np.log(xb), ddof=1)))
+        margin = min(abs(math.log(interval.ratio) - math.log(e)) for e in edges)
+    else:
+        cv_c = float(np.std(xc, ddof=1)) / abs(interval.mean_current)
+        cv_b = float(np.std(xb, ddof=1)) / abs(interval.mean_baseline)
+        sd = abs(interval.ratio) * math.hypot(cv_c, cv_b)
+        margin = min(abs(interval.ratio - e) for e in edges)
+    if not (sd > 0 and margin > 0 and math.isfinite(sd)):
+        return None
+    return trials_needed(sd, margin=margin, confidence=confidence, side="two-sided")
+
+
+def format_limit(comparison: dict[str, Any]) -> str:
+    """The allowed range of a comparison in words: ``<= 1.05x`` or ``0.95x..1.05x``."""
+    high = comparison["limit_high"]
+    low = comparison.get("limit_low")
+    if low is None:
+        return f"<= {high:.4g}x"
+    return f"{low:.4g}x..{high:.4g}x"
+
+
+def format_ratio(ratio: dict[str, Any]) -> str:
+    """A ratio interval as ``1.21x [1.15, 1.27]``; unbounded intervals say so."""
+    if not ratio.get("bounded", True):
+        return f"{ratio['ratio']:.3f}x [unbounded]"
+    return f"{ratio['ratio']:.3f}x [{ratio['low']:.3f}, {ratio['high']:.3f}]"

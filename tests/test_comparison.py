@@ -1,0 +1,180 @@
+"""In-run comparison: interleaved pairs, their ratio interval, and ``trials.compare``."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from meanband import TrialError, Verdict
+from meanband.comparison import check_ratio, time_pairs
+from scipy import stats
+
+
+class FakeMachine:
+    """A deterministic clock: each callable advances it by its own cost; the log says who ran."""
+
+    def __init__(self) -> None:
+        self.now = 0
+        self.log: list[str] = []
+
+    def clock(self) -> int:
+        return self.now
+
+    def work(self, name: str, cost: int, spikes: dict[int, int] | None = None):
+        calls = {"n": 0}
+
+        def fn() -> None:
+            calls["n"] += 1
+            self.now += cost + (spikes or {}).get(calls["n"], 0)
+            self.log.append(name)
+
+        fn.__name__ = name
+        return fn
+
+
+def test_pairs_are_timed_in_random_order_and_ratio_is_exact() -> None:
+    machine = FakeMachine()
+    new, old = machine.work("new", 55_000), machine.work("old", 50_000)
+    times = time_pairs(new, old, 200, repeats=1, warmup=0, seed=1, clock=machine.clock)
+    assert times.batch == 1  # 50 µs is above the 20 µs floor: one call per measurement
+    np.testing.assert_allclose(times.first, 55e-6)
+    np.testing.assert_allclose(times.second, 50e-6)
+    # After the two calibration calls, calls come in pairs; count who went first.
+    firsts = machine.log[2::2]
+    share = firsts.count("new") / len(firsts)
+    assert 0.35 < share < 0.65  # Binomial(200, 1/2): 0.35..0.65 is beyond 4 sd (common practice)
+    assert times.first_went_first.sum() == firsts.count("new")
+
+
+def test_quick_callables_are_batched_alike() -> None:
+    machine = FakeMachine()
+    new, old = machine.work("new", 300), machine.work("old", 200)
+    times = time_pairs(new, old, 5, repeats=1, warmup=0, seed=2, clock=machine.clock)
+    assert times.batch == 100  # 20 µs / 200 ns
+    np.testing.assert_allclose(times.first / times.second, 1.5)
+
+
+def test_quickest_round_discards_a_descheduled_measurement() -> None:
+    machine = FakeMachine()
+    # Call 10 of "new" is hit by a 5 ms interruption; its pair keeps the undisturbed round.
+    new = machine.work("new", 55_000, spikes={10: 5_000_000})
+    old = machine.work("old", 50_000)
+    times = time_pairs(new, old, 20, repeats=3, warmup=0, seed=3, clock=machine.clock)
+    np.testing.assert_allclose(times.first, 55e-6)
+    result = check_ratio(times.first, times.second, at_most=1.05)
+    assert result.verdict is Verdict.FAIL and result.interval.ratio == pytest.approx(1.1)
+
+
+def test_check_ratio_matches_paired_t_on_logs() -> None:
+    rng = np.random.default_rng(8)
+    old = rng.lognormal(math.log(50e-6), 0.2, 40)
+    new = old * rng.lognormal(math.log(1.03), 0.04, 40)
+    result = check_ratio(new, old, at_most=1.05, confidence=0.9)
+    # Reference: scipy.stats.ttest_rel on the logs, confidence_interval() exponentiated.
+    ci = stats.ttest_rel(np.log(new), np.log(old)).confidence_interval(0.9)
+    assert result.interval.low == pytest.approx(math.exp(ci.low), rel=1e-12)
+    assert result.interval.high == pytest.approx(math.exp(ci.high), rel=1e-12)
+    expected = (Verdict.PASS if math.exp(ci.high) <= 1.05 else
+                Verdict.FAIL if math.exp(ci.low) > 1.05 else Verdict.UNDECIDED)
+    assert result.verdict is expected
+
+
+@pytest.mark.parametrize(
+    ("kwargs", "message"),
+    [
+        ({}, "needs a limit"),
+        ({"at_most": 0.9, "at_least": 1.1}, "swap them"),
+        ({"at_most": -1.0}, "positive finite ratio"),
+        ({"at_most": "fast"}, "ratio such as 1.05"),
+    ],
+)
+def test_bad_limits_are_refused(kwargs: dict[str, object], message: str) -> None:
+    with pytest.raises(TrialError, match=message):
+        check_ratio(np.ones(3), np.ones(3), **kwargs)  # type: ignore[arg-type]
+
+
+@pytest.mark.parametrize(("n", "repeats", "warmup"), [(1, 5, 2), (10, 0, 2), (10, 5, -1), (True, 5, 2)])
+def test_bad_counts_are_refused(n: int, repeats: int, warmup: int) -> None:
+    with pytest.raises(TrialError, match="a comparison needs"):
+        time_pairs(lambda: None, lambda: None, n, repeats=repeats, warmup=warmup)
+
+
+# -- real callables --------------------------------------------------------------------------------
+
+
+def spin(k: int) -> None:
+    for _ in range(k):
+        pass
+
+
+def test_ten_percent_slower_real_callable_is_detected() -> None:
+    # Busy loops of about 50 µs (5000 and 5500 turns of an empty loop on a typical machine).
+    def old() -> None:
+        spin(5000)
+
+    def new() -> None:
+        spin(5500)
+
+    times = time_pairs(new, old, 60, seed=4)
+    slower = check_ratio(times.first, times.second, at_most=1.02)
+    assert slower.verdict is Verdict.FAIL, slower.interval
+    faster = check_ratio(times.second, times.first, at_most=0.98)
+    assert faster.verdict is Verdict.PASS, faster.interval
+
+
+COMPARE_SUITE = """
+import pytest
+
+def spin(k):
+    for _ in range(k):
+        pass
+
+def parse_v1():
+    spin(5000)
+
+def parse_v2():
+    spin(5500)
+
+def test_v2_not_slower(trials):
+    trials.compare(parse_v2, parse_v1, at_most=1.02, n=60, seed=1)
+
+def test_v1_faster(trials):
+    result = trials.compare(parse_v1, parse_v2, at_most=0.98, n=60, seed=2)
+    assert result.passed
+
+def test_needs_limit(trials):
+    trials.compare(parse_v1, parse_v2)
+"""
+
+
+@pytest.mark.parametrize("workers", [[], ["-n", "2"]])
+def test_trials_compare_in_a_suite(pytester: pytest.Pytester, run_suite, workers: list[str]) -> None:
+    pytester.makepyfile(test_parsers=COMPARE_SUITE)
+    result = run_suite(*workers, "-rf")
+    result.assert_outcomes(passed=1, failed=2)
+    result.stdout.fnmatch_lines([
+        "*BandViolation: parse_v2 / parse_v1: time ratio 1.*x, 95% interval [[]1.*, 1.*[]] from 60 "
+        "interleaved pairs; allowed at most 1.02x: FAIL, the whole interval lies above the "
+        "allowed range",
+    ])
+    result.stdout.fnmatch_lines(["*TrialError: a comparison needs a limit*"])
+    result.stdout.re_match_lines([
+        r"test_parsers.py::test_v1_faster \[parse_v1 / parse_v2\]\s+60\s+0\.\d+ x\s+\[.*\]\s+"
+        r"95% paired-log \(time ratio\)\s+<= 0\.98 x\s+PASS",
+        r"test_parsers.py::test_v2_not_slower \[parse_v2 / parse_v1\]\s+60\s+1\.\d+ x .* FAIL",
+    ])
+
+
+def test_comparison_row_carries_both_sides(pytester: pytest.Pytester, run_suite) -> None:
+    pytester.makeconftest(
+        """
+        def pytest_meanband_result(config, row):
+            c = row["comparison"]
+            print("\\nROW", row["source"], row["unit"], len(row["values"]), c["new"], c["old"],
+                  len(c["new_values"]), len(c["old_values"]), c["at_most"], row["timing"]["repeats"])
+        """
+    )
+    pytester.makepyfile(test_parsers=COMPARE_SUITE)
+    result = run_suite("-s", "-k", "v1_faster")
+    result.stdout.fnmatch_lines(["*ROW compare x 60 parse_v1 parse_v2 60 60 0.98 5"])
