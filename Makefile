@@ -6,7 +6,7 @@ STAMP := $(VENV)/.installed-stamp
 # Hermetic runs: no plugin but ours (and xdist where asked) may change a result.
 HERMETIC := PYTEST_DISABLE_PLUGIN_AUTOLOAD=1
 
-.PHONY: demo test lint bench study clean
+.PHONY: demo test lint bench study pictures clean
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -23,6 +23,9 @@ lint: $(STAMP)
 
 demo: $(STAMP)
 	$(HERMETIC) $(PY) -m pytest -p meanband -p no:cacheprovider sample_suites
+
+pictures: $(STAMP)
+	$(PY) docs/pictures.py
 
 bench: $(STAMP)
 	for script in benchmarks/*.py; do $(PY) $$script || exit 1; done

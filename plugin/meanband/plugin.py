@@ -14,7 +14,7 @@ if TYPE_CHECKING:
     from meanband.recorder import Recorder
 
 #: Feature plugins, each with its own options in the ``meanband`` group.
-pytest_plugins: list[str] = ["meanband.history_plugin", "meanband.timing_plugin"]
+pytest_plugins: list[str] = ["meanband.history_plugin", "meanband.report_plugin", "meanband.timing_plugin"]
 
 RECORDER_KEY = pytest.StashKey["Recorder"]()
 CONFIG_LAYERS_KEY = pytest.StashKey[list[tuple[str, dict[str, Any]]]]()

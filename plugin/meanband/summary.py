@@ -157,7 +157,10 @@ def _unchecked(rows: Sequence[Row]) -> list[str]:
     for row in rows:
         if row.get("kind") != "unchecked":
             continue
-        values = row.get("values") or []
+        values = row.get("values")
+        if values is None:  # a report written without its trials
+            out.append(f"  {row_name(row)}: trials not kept in the report")
+            continue
         mean = math.fsum(values) / len(values) if values else math.nan
         out.append(f"  {row_name(row)}: {len(values)} trials, mean "
                    f"{format_value(mean, row.get('unit'))}")
