@@ -21,7 +21,8 @@ Prints three figures:
 The load average is printed before and after: on a machine shared with other work every figure
 is noisier, and the agreement most of all.
 
-Run: ``.venv/bin/python benchmarks/bench_timing.py`` (``--quick`` for a shorter run).
+Run: ``.venv/bin/python benchmarks/bench_timing.py`` (``--quick`` for a shorter run,
+``--strict`` to exit with status 1 when a target is missed).
 """
 
 from __future__ import annotations
@@ -164,6 +165,9 @@ def load() -> str:
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="fewer rounds")
+    parser.add_argument(
+        "--strict", action="store_true", help="exit with status 1 when a target is missed"
+    )
     options = parser.parse_args(argv)
     rounds = 5 if options.quick else 15
     seconds = 3.0 if options.quick else 12.0
@@ -208,7 +212,8 @@ def main(argv: list[str] | None = None) -> int:
                 f"target within {AGREEMENT_TARGET:.0%})  {'ok' if ok else 'MISSED'}"
             )
     print(f"after: {load()}")
-    return 0 if all_ok else 1
+    print("all targets met" if all_ok else "some targets missed (see MISSED above)")
+    return 1 if options.strict and not all_ok else 0
 
 
 if __name__ == "__main__":
