@@ -440,3 +440,22 @@ def test_mixed(trials, fake):
         "(measured once per test process):",
         "wall (fake clock): step 1.00 ns, one read 50.0 ns",
     ]
+
+
+def test_timing_lines_show_the_range_when_worker_processes_measured_differently() -> None:
+    from meanband.timing_plugin import timing_lines
+
+    def row(test: str, read_cost: float) -> dict:
+        timing = {
+            "clock": "wall", "source": "time.perf_counter_ns", "resolution_ns": 1.0,
+            "read_cost_ns": read_cost, "k": 10, "min_trial_time": 1e-3, "trials": 3,
+            "warmup_trials": 0, "gc_enabled": False, "setup": False, "stopped_early": False,
+        }
+        return {"nodeid": f"t.py::{test}", "series": "", "source": "time",
+                "values": [1e-4, 1.1e-4, 1.2e-4], "timing": timing}
+
+    lines = timing_lines([row("test_a", 43.0), row("test_b", 45.0)])
+    assert "  wall (time.perf_counter_ns): step 1.00 ns, one read 43.0 ns to 45.0 ns" in lines
+    assert any(line.startswith("  t.py::test_b: k=10 calls/trial, 3 trials of about 1.10 ms")
+               for line in lines)
+    assert timing_lines([{"source": "values", "timing": None}]) == []
