@@ -6,7 +6,7 @@ STAMP := $(VENV)/.installed-stamp
 # Hermetic runs: no plugin but ours (and xdist where asked) may change a result.
 HERMETIC := PYTEST_DISABLE_PLUGIN_AUTOLOAD=1
 
-.PHONY: demo test lint bench study pictures clean
+.PHONY: demo test lint bench study pictures clean tuning-demo
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -18,7 +18,7 @@ test: $(STAMP)
 	$(HERMETIC) $(PY) -m pytest -p meanband -p xdist -n 2 -q tests
 
 lint: $(STAMP)
-	$(VENV)/bin/ruff check plugin tests benchmarks sample_suites
+	$(VENV)/bin/ruff check plugin tests benchmarks sample_suites studies
 	$(VENV)/bin/mypy
 
 demo: $(STAMP)
@@ -26,6 +26,13 @@ demo: $(STAMP)
 
 pictures: $(STAMP)
 	$(PY) docs/pictures.py
+
+# Trial tuning: run with a first guess and write the suggested plan, show it, run with it.
+TUNING := $(HERMETIC) $(PY) -m pytest -p meanband -p no:cacheprovider sample_suites/tuning
+tuning-demo: $(STAMP)
+	$(TUNING) --meanband-plan sample_suites/tuning/first-guess.toml --meanband-write-plan out/tuning-plan.toml
+	cat out/tuning-plan.toml
+	$(TUNING) --meanband-plan out/tuning-plan.toml
 
 bench: $(STAMP)
 	for script in benchmarks/*.py; do $(PY) $$script || exit 1; done

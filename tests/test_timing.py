@@ -497,7 +497,7 @@ def test_the_row_entry_is_builtin_types_only() -> None:
 @pytest.mark.parametrize(
     ("options", "match"),
     [
-        ({"n": 1}, "n=1 must be a whole number >= 2"),
+        ({"n": 0}, "n=0 must be a whole number >= 1"),
         ({"n": 2.5}, "n=2.5"),
         ({"n": 3, "loops": 0}, "loops=0"),
         ({"n": 3, "min_trial_time": -1.0}, "min_trial_time"),
@@ -512,6 +512,14 @@ def test_bad_arguments_are_errors_that_say_what_to_do(options, match) -> None:
     options.setdefault("clock", fake.clock)
     with pytest.raises(TrialError, match=match):
         time_calls(fake.work(10), clock_info=fake.info, **options)
+
+
+def test_a_single_trial_is_allowed_and_the_minimum_follows_n() -> None:
+    # Two-stage collection may ask for one more trial; statistics need two, but that is the
+    # caller's concern.
+    fake = FakeClock()
+    timing = run(fake, fake.work(2_000_000), n=1, time_limit=1e-3)
+    assert timing.trials == 1 and not timing.stopped_early
 
 
 def test_a_non_callable_is_an_error() -> None:

@@ -459,3 +459,25 @@ def test_timing_lines_show_the_range_when_worker_processes_measured_differently(
     assert any(line.startswith("  t.py::test_b: k=10 calls/trial, 3 trials of about 1.10 ms")
                for line in lines)
     assert timing_lines([{"source": "values", "timing": None}]) == []
+
+
+def test_n_auto_times_through_the_engine_and_refuses_a_cut_short_second_stage(suite) -> None:
+    result, rows = suite(
+        """
+@pytest.mark.meanband(min_trial_time=0)
+def test_auto(trials, fake):
+    rng = iter(__import__("numpy").random.default_rng(2).normal(0, 20_000, 10_000).astype(int))
+    trials.time(lambda: fake.work(500_000 + int(next(rng)))(), n="auto", band=dict(high="1ms"),
+                pilot=8, max_n=40)
+    trials.check(high="1ms")
+
+@pytest.mark.meanband(min_trial_time=0, time_limit="3ms")
+def test_auto_limited(trials, fake):
+    trials.time(fake.work(1_000_000), n="auto", band=dict(high="2ms"), pilot=10)
+"""
+    )
+    row = one(rows, "test_auto")
+    assert row["timing"]["k"] == 1 and row["timing"]["calls"] in (1, 2)
+    assert len(row["values"]) >= 8
+    result.assert_outcomes(passed=1, failed=1)
+    result.stdout.fnmatch_lines(["*the time limit stopped n='auto' after 2 of the 10 trials*"])

@@ -32,6 +32,9 @@ def pytest_meanband_session_finish(config: pytest.Config, rows: list[Row]) -> No
 def pytest_meanband_item_settings(item: pytest.Item) -> dict[str, Any] | None:
     """Return settings for ``item`` from a plan (e.g. ``{"n": 48}``) or None.
 
+    The settings apply to the test's default series; an optional ``"series"`` key maps a
+    series name to settings of its own (``{"n": 48, "series": {"cold": {"n": 20}}}``).
+
     The first non-None result is used as the "plan" layer, which ranks below the marker and the
     call arguments and above the command line, the ini file and the defaults.
     """

@@ -12,9 +12,13 @@ from meanband.settings import SettingError, marker_settings, resolve, validate
 
 if TYPE_CHECKING:
     from meanband.recorder import Recorder
+    from meanband.settings import Settings
 
 #: Feature plugins, each with its own options in the ``meanband`` group.
-pytest_plugins: list[str] = ["meanband.history_plugin", "meanband.report_plugin", "meanband.timing_plugin"]
+pytest_plugins: list[str] = [
+    "meanband.history_plugin", "meanband.report_plugin", "meanband.plan_plugin",
+    "meanband.timing_plugin",
+]
 
 RECORDER_KEY = pytest.StashKey["Recorder"]()
 CONFIG_LAYERS_KEY = pytest.StashKey[list[tuple[str, dict[str, Any]]]]()
@@ -89,6 +93,7 @@ def _config_layers(config: pytest.Config) -> list[tuple[str, dict[str, Any]]]:
 def trials(request: pytest.FixtureRequest) -> Recorder:
     """Collect repeated trials and check that the interval of their mean lies in a band."""
     from meanband.recorder import Recorder
+    from meanband.timing_plugin import timing_session
 
     item = request.node
     config = request.config
@@ -101,14 +106,22 @@ def trials(request: pytest.FixtureRequest) -> Recorder:
             layers.insert(0, (where, marker_settings(**marker.kwargs)))
         except TypeError as exc:
             raise SettingError(f"{where}: {exc}") from None
-    plan = config.hook.pytest_meanband_item_settings(item=item)
-    if plan:
-        layers.append((f"plan entry for {item.nodeid}", dict(plan)))
-    config_layers: list[tuple[str, dict[str, Any]]] = config.stash[CONFIG_LAYERS_KEY]
-    layers.extend(config_layers)
-    from meanband.timing_plugin import timing_session
+    plan = dict(config.hook.pytest_meanband_item_settings(item=item) or {})
+    series_plans = plan.pop("series", None) or {}
+    tail: list[tuple[str, dict[str, Any]]] = config.stash[CONFIG_LAYERS_KEY]
 
-    recorder = Recorder(resolve(layers), item.nodeid, timing=timing_session(config))
+    def with_plan(source: str, values: dict[str, Any]) -> Settings:
+        return resolve([*layers, *([(source, values)] if values else []), *tail])
+
+    recorder = Recorder(
+        with_plan(f"plan entry for {item.nodeid}", plan), item.nodeid,
+        series_settings={
+            name: with_plan(f"plan entry for {item.nodeid} [{name}]", dict(values))
+            for name, values in series_plans.items()
+        },
+        other_series=with_plan("", {}),
+        timing=timing_session(config),
+    )
     item.stash[RECORDER_KEY] = recorder
     return recorder
 

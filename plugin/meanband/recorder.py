@@ -7,7 +7,8 @@ from typing import Any
 
 import numpy as np
 
-from meanband.bands import Decision, Edge, decide, make_band
+from meanband import adaptive
+from meanband.bands import Band, Decision, Edge, decide, make_band
 from meanband.clock import get_clock
 from meanband.errors import BandViolation, TrialError
 from meanband.explain import assumption_notes, describe
@@ -37,31 +38,64 @@ class Series:
         self._timing_notes: list[dict[str, str]] = []
         self._test_timing = SharedTiming()
         self._rows: list[Row] = []
+        self._adaptive: adaptive.AdaptiveRun | None = None  # set by n="auto"
 
     # -- collecting -------------------------------------------------------------------------
 
     def time(
-        self, fn: Callable[..., Any], *args: Any, n: int | None = None,
-        warmup: int | str | None = None, setup: Callable[[], Any] | None = None, **kwargs: Any,
+        self, fn: Callable[..., Any], *args: Any, n: int | str | None = None,
+        warmup: int | str | None = None, setup: Callable[[], Any] | None = None,
+        max_n: int | None = None, band: dict[str, Edge] | Band | None = None,
+        pilot: int | None = None, **kwargs: Any,
     ) -> np.ndarray:
         """Run ``n`` timed trials of ``fn(*args, **kwargs)``; each value is seconds per call.
 
         Each trial makes k calls, k calibrated so a trial lasts the minimum trial time.
         ``setup`` runs before every call, outside the timed region; a value it returns (not
         None) is passed to ``fn`` as the first argument. See docs/timing.md.
+        ``n="auto"`` picks the count by Stein's two-stage rule for ``band`` (``adaptive.py``).
         """
+        if n == "auto":
+            settings = self.settings.merged(warmup=warmup)
+            self._claim(SECONDS, "time")
+            warm = [settings.warmup]
+
+            def collect(count: int) -> np.ndarray:
+                if count == 0:
+                    return np.empty(0, dtype=np.float64)
+                values = self._timed(
+                    fn, args, kwargs, settings, count, warm.pop() if warm else 0, setup
+                )
+                if values.size < count:
+                    raise TrialError(
+                        f"the time limit stopped n='auto' after {values.size} of the {count} "
+                        "trials its two-stage rule asks for; raise --meanband-time-limit or set "
+                        "a fixed n for this test"
+                    )
+                return values
+
+            return self._auto(collect, settings, max_n=max_n, band=band, pilot=pilot)
+        adaptive.refuse_options(max_n, band, pilot)
         settings = self.settings.merged(n=n, warmup=warmup)
         self._claim(SECONDS, "time")
+        values = self._timed(fn, args, kwargs, settings, settings.n, settings.warmup, setup)
+        self._append(values)
+        return values
+
+    def _timed(
+        self, fn: Callable[..., Any], args: tuple[Any, ...], kwargs: dict[str, Any],
+        settings: Settings, n: int, warmup: int | str, setup: Callable[[], Any] | None,
+    ) -> np.ndarray:
+        """One run of the timing engine; keeps its warm-up, details and notes on the series."""
         shared = self._test_timing
         clock = get_clock(settings.clock)
         run = time_calls(
-            fn, args, kwargs, n=settings.n, warmup=settings.warmup, setup=setup, clock=clock,
+            fn, args, kwargs, n=n, warmup=warmup, setup=setup, clock=clock,
             clock_info=shared.clock_info(clock), min_trial_time=settings.min_trial_time,
             time_limit=shared.time_left(settings.time_limit), gc_enabled=settings.gc,
             environ=shared.environ,
         )
         shared.spent += run.elapsed
-        self._append(run.values)
         self._warmup = np.concatenate([self._warmup, run.warmup])
         calls = 1 if self._timing is None else int(self._timing.get("calls", 1)) + 1
         self._timing = {**run.to_dict(), "calls": calls}
@@ -71,19 +105,42 @@ class Series:
         return run.values
 
     def sample(
-        self, fn: Callable[..., Any], *args: Any, n: int | None = None,
-        unit: str | None = None, **kwargs: Any,
+        self, fn: Callable[..., Any], *args: Any, n: int | str | None = None,
+        unit: str | None = None, max_n: int | None = None,
+        band: dict[str, Edge] | Band | None = None, pilot: int | None = None, **kwargs: Any,
     ) -> np.ndarray:
-        """Record ``n`` values returned by ``fn(*args, **kwargs)``, in ``unit``."""
+        """Record ``n`` values returned by ``fn(*args, **kwargs)``, in ``unit``.
+
+        ``n="auto"`` picks the count by Stein's two-stage rule for ``band`` (``adaptive.py``).
+        """
+
+        def collect(count: int) -> np.ndarray:
+            collected = [fn(*args, **kwargs) for _ in range(count)]
+            try:
+                return as_sample(collected, minimum=1)
+            except TrialError as exc:
+                raise TrialError(f"{_callable_name(fn)} returned bad values: {exc}") from None
+
+        if n == "auto":
+            self._claim(unit, "sample")
+            return self._auto(collect, self.settings, max_n=max_n, band=band, pilot=pilot)
+        adaptive.refuse_options(max_n, band, pilot)
         settings = self.settings.merged(n=n)
         self._claim(unit, "sample")
-        collected = [fn(*args, **kwargs) for _ in range(settings.n)]
-        try:
-            values = as_sample(collected, minimum=1)
-        except TrialError as exc:
-            raise TrialError(f"{_callable_name(fn)} returned bad values: {exc}") from None
+        values = collect(settings.n)
         self._append(values)
         return values
+
+    def _auto(
+        self, take: Callable[[int], np.ndarray], settings: Settings, *, max_n: int | None,
+        band: dict[str, Edge] | Band | None, pilot: int | None,
+    ) -> np.ndarray:
+        self._adaptive = adaptive.collect(
+            take, held=self._values.size, label=self._label(), unit=self.unit, band=band,
+            settings=settings, max_n=max_n, pilot=pilot,
+        )
+        self._append(self._adaptive.values)
+        return self._adaptive.values
 
     def add(self, value: float, *, unit: str | None = None) -> None:
         """Record one value measured elsewhere."""
@@ -134,15 +191,26 @@ class Series:
         bound must lie on the right side of it.
         """
         settings = self.settings.merged(confidence=confidence, method=method)
-        band = make_band(low, high, center=center, tolerance=tolerance, unit=self.unit)
-        decision = decide(
-            self._values, band, confidence=settings.confidence, method=settings.method,
-            power=settings.power,
-        )
-        notes = self._timing_notes + assumption_notes(
-            decision.diagnostics, min_n=settings.min_n, normality_alpha=settings.normality_alpha
-        )
-        self._rows.append(self._row("check", settings, decision.to_dict(), notes))
+        if self._adaptive is not None:
+            decision, notes, extra = self._adaptive.check(
+                low, high, center, tolerance, held=self._values.size, unit=self.unit,
+                settings=settings,
+            )
+            notes = self._timing_notes + notes
+            row = self._row("check", settings, decision.to_dict(), notes) | extra
+            row["settings"]["n"] = "auto"
+        else:
+            band = make_band(low, high, center=center, tolerance=tolerance, unit=self.unit)
+            decision = decide(
+                self._values, band, confidence=settings.confidence, method=settings.method,
+                power=settings.power,
+            )
+            notes = self._timing_notes + assumption_notes(
+                decision.diagnostics, min_n=settings.min_n,
+                normality_alpha=settings.normality_alpha,
+            )
+            row = self._row("check", settings, decision.to_dict(), notes)
+        self._rows.append(row)
         if not decision.passed:
             raise BandViolation(describe(decision, label=self._label(), notes=notes), decision)
         return decision
@@ -195,18 +263,26 @@ class Series:
 class Recorder(Series):
     """The ``trials`` fixture: the default series, plus named ones from :meth:`series`."""
 
-    def __init__(self, settings: Settings, nodeid: str = "", timing: Any = None) -> None:
+    def __init__(
+        self, settings: Settings, nodeid: str = "", *,
+        series_settings: dict[str, Settings] | None = None, other_series: Settings | None = None,
+        timing: Any = None,
+    ) -> None:
         super().__init__("", settings, nodeid)
         self._test_timing = SharedTiming(timing)
         self._series: dict[str, Series] = {}
         self._comparisons: list[Row] = []
+        # A plan may give named series counts of their own; unplanned series use other_series.
+        self._series_settings = dict(series_settings or {})
+        self._other_series = settings if other_series is None else other_series
 
     def series(self, name: str) -> Series:
         """The series called ``name`` (created on first use), e.g. ``trials.series("cold")``."""
         if not isinstance(name, str) or not name:
             raise TrialError(f"a series needs a non-empty name, got {name!r}")
         if name not in self._series:
-            self._series[name] = Series(name, self.settings, self.nodeid)
+            settings = self._series_settings.get(name, self._other_series)
+            self._series[name] = Series(name, settings, self.nodeid)
             self._series[name]._test_timing = self._test_timing
         return self._series[name]
 

@@ -132,8 +132,9 @@ def _suggestions(checks: Sequence[Row]) -> list[str]:
         suggestion = row.get("suggestion")
         decision = row["decision"]
         n = decision["interval"]["n"]
-        if suggestion and suggestion.get("text"):
-            out.append(f"  {row_name(row)}: {suggestion['text']}")
+        if suggestion and "text" in suggestion:
+            if suggestion["text"]:  # an empty text: the count is right, nothing to say
+                out.append(f"  {row_name(row)}: {suggestion['text']}")
             continue
         suggested = decision.get("suggested_n")
         verdict = decision["verdict"]

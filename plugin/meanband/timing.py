@@ -228,7 +228,8 @@ def time_calls(
         )
     if setup is not None and not callable(setup):
         raise TrialError(f"setup={setup!r} is not callable; pass a function that returns the input")
-    n = _count("n", n, minimum=max(min_trials, 2))
+    n = _count("n", n, minimum=1)
+    min_trials = min(_count("min_trials", min_trials, minimum=1), n)
     warm_count, warm_seconds = parse_warmup(warmup)
     if loops is not None:
         loops = _count("loops", loops, minimum=1)
