@@ -218,7 +218,6 @@ def test_instrument_uncertainty_can_forbid_a_count_the_t_test_alone_would_promis
     """With a large Type B part, no n shrinks U below the margin: the suggestion must say so
     (JCGM 100 G.4.1: u_c^2 = s^2/n + u_B^2 never falls below u_B^2), not quote a t-test count."""
     import numpy as np
-
     from meanband.bands import decide, make_band
     from meanband.suggest import suggestion_for_row
 

@@ -89,7 +89,7 @@ def suggest_trials(
     min_n: int = 2,
     trial_seconds: float | None = None,
     unit: str | None = None,
-    instrument_count: int | None | str = "none given",
+    instrument_count: int | str | None = "none given",
 ) -> Suggestion | None:
     """The count that decides a check at ``power``, from its mean, sd and band.
 
