@@ -264,3 +264,10 @@ def test_notes_are_well_formed_and_never_recommend_the_method_in_use(
         assert note.get("recommend") != method
         if "recommend" in note:
             assert note["recommend"] in METHODS
+
+
+def test_skipped_codes_are_left_out() -> None:
+    rng = np.random.default_rng(8)
+    x = 10.0 + np.linspace(2.0, 0.0, 50) + rng.normal(0, 0.3, 50)
+    assert "drift" in codes(x)
+    assert "drift" not in codes(x, skip={"drift"})

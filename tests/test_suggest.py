@@ -212,3 +212,28 @@ def test_suggestions_go_the_right_way_and_are_minimal(seed, n, shift, two_sided)
     if s.direction in ("more", "fewer") and s.n > max(2, n + 1 if verdict == "UNDECIDED" else 2):
         assert power_against_edge(effect, s.n, alpha) >= 0.9
         assert power_against_edge(effect, s.n - 1, alpha) < 0.9
+
+
+def test_instrument_uncertainty_can_forbid_a_count_the_t_test_alone_would_promise():
+    """With a large Type B part, no n shrinks U below the margin: the suggestion must say so
+    (JCGM 100 G.4.1: u_c^2 = s^2/n + u_B^2 never falls below u_B^2), not quote a t-test count."""
+    import numpy as np
+    from meanband.bands import decide, make_band
+    from meanband.suggest import suggestion_for_row
+
+    rng = np.random.default_rng(4)
+    z = rng.normal(size=40)
+    values = 12.01 + 0.0107 * (z - z.mean()) / z.std(ddof=1)
+    band = make_band(center=12.0, tolerance=0.04, unit="mA")
+    decision = decide(values, band, instrument_uncertainty=0.02)
+    assert decision.verdict.value == "UNDECIDED" and decision.suggested_n is None
+    row = {"kind": "check", "decision": decision.to_dict(), "settings": {"power": 0.9, "min_n": 10},
+           "uncertainty": decision.uncertainty.to_dict(), "unit": "mA", "source": "sample", "values": list(values)}
+    suggestion = suggestion_for_row(row)
+    assert suggestion.n is None and suggestion.direction == "none"
+    assert "instrument's own uncertainty" in suggestion.reason
+    # The same data without the instrument pass, and get an ordinary count.
+    plain = decide(values, band)
+    plain_row = dict(row, decision=plain.to_dict(), uncertainty=None)
+    assert plain.verdict.value == "PASS"
+    assert suggestion_for_row(plain_row).n == max(plain.suggested_n, 10)

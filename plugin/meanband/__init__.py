@@ -16,15 +16,18 @@ if TYPE_CHECKING:
     from meanband.errors import BandViolation, TrialError
     from meanband.interval import Interval, critical_t, mean_interval
     from meanband.planning import trials_needed
+    from meanband.uncertainty import InstrumentUncertainty, UncertaintyBudget, uncertainty_budget
 
 __all__ = [
     "Band",
     "BandViolation",
     "Decision",
     "Diagnostics",
+    "InstrumentUncertainty",
     "Interval",
     "NormalityTest",
     "TrialError",
+    "UncertaintyBudget",
     "Verdict",
     "assert_mean_within",
     "critical_t",
@@ -33,6 +36,7 @@ __all__ = [
     "make_band",
     "mean_interval",
     "trials_needed",
+    "uncertainty_budget",
 ]
 
 __version__ = "0.1.0"
@@ -53,6 +57,9 @@ _HOME = {
     "critical_t": "interval",
     "mean_interval": "interval",
     "trials_needed": "planning",
+    "InstrumentUncertainty": "uncertainty",
+    "UncertaintyBudget": "uncertainty",
+    "uncertainty_budget": "uncertainty",
 }
 
 

@@ -8,7 +8,7 @@ from typing import Any
 
 import numpy as np
 
-from meanband.bands import Band, Decision, Edge, make_band
+from meanband.bands import Band, Decision, Edge, Tolerance, make_band
 from meanband.errors import TrialError
 from meanband.explain import assumption_notes
 from meanband.settings import Settings
@@ -63,7 +63,7 @@ class AdaptiveRun:
         return self.run.values
 
     def check(
-        self, low: Edge, high: Edge, center: Edge, tolerance: Edge, *, held: int,
+        self, low: Edge, high: Edge, center: Edge, tolerance: Tolerance, *, held: int,
         unit: str | None, settings: Settings,
     ) -> tuple[Decision, list[dict[str, str]], dict[str, Any]]:
         """The decision, its notes, and the row's extra keys; refuse what would void the plan.

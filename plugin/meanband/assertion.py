@@ -6,9 +6,11 @@ from collections.abc import Iterable
 
 import numpy as np
 
-from meanband.bands import Decision, Edge, decide, make_band
+from meanband.bands import Decision, Edge, Tolerance, decide, make_band
 from meanband.errors import BandViolation
 from meanband.explain import assumption_notes, describe
+from meanband.rules import GUARDED
+from meanband.uncertainty import InstrumentSpec
 
 __all__ = ["assert_mean_within"]
 
@@ -19,18 +21,27 @@ def assert_mean_within(
     high: Edge = None,
     *,
     center: Edge = None,
-    tolerance: Edge = None,
+    tolerance: Tolerance = None,
     confidence: float = 0.95,
     method: str = "t",
     unit: str | None = None,
+    instrument_uncertainty: InstrumentSpec = None,
+    rule: str = GUARDED,
 ) -> Decision:
     """Return the :class:`Decision` when the interval of the mean lies inside the band.
 
     Raises :class:`BandViolation` (an ``AssertionError``) on FAIL or UNDECIDED, with a message
     that gives n, mean, interval, band, verdict and diagnostics.
+
+    ``instrument_uncertainty`` (standard uncertainty in the trials' unit, ``(u, df)`` or an
+    :class:`~meanband.uncertainty.InstrumentUncertainty`) widens the interval to mean +/- U;
+    ``rule="simple"`` compares the mean alone with the band (see :func:`meanband.decide`).
     """
     band = make_band(low, high, center=center, tolerance=tolerance, unit=unit)
-    decision = decide(values, band, confidence=confidence, method=method)
+    decision = decide(
+        values, band, confidence=confidence, method=method,
+        instrument_uncertainty=instrument_uncertainty, rule=rule,
+    )
     if not decision.passed:
         raise BandViolation(describe(decision, notes=assumption_notes(decision.diagnostics, method=method)),
                             decision)

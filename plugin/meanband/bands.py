@@ -14,12 +14,22 @@ from meanband.diagnostics import Diagnostics, diagnose
 from meanband.errors import TrialError
 from meanband.interval import Interval, mean_interval
 from meanband.planning import trials_needed
+from meanband.rules import GUARDED, RuleOutcome, apply_rule, check_rule
 from meanband.sample import as_sample, check_confidence
+from meanband.uncertainty import (
+    InstrumentSpec,
+    UncertaintyBudget,
+    as_instrument_uncertainty,
+    trials_to_decide,
+    uncertainty_budget,
+)
 from meanband.units import SECONDS, parse_duration
 
 __all__ = ["Band", "Decision", "Verdict", "decide", "make_band"]
 
 Edge = float | int | str | None
+#: A tolerance: symmetric ``0.4``, or asymmetric ``(below, above)`` such as ``(0.3, 0.5)``.
+Tolerance = Edge | tuple[Edge, Edge]
 
 
 class Verdict(str, enum.Enum):
@@ -58,12 +68,14 @@ def make_band(
     high: Edge = None,
     *,
     center: Edge = None,
-    tolerance: Edge = None,
+    tolerance: Tolerance = None,
     unit: str | None = None,
 ) -> Band:
     """Build a band from ``low``/``high`` or from ``center`` +/- ``tolerance``.
 
-    Edges may be duration strings (``"3ms"``) when the trials are timings (``unit="s"``).
+    ``tolerance=(below, above)`` is asymmetric: ``center=85, tolerance=(0.3, 0.5)`` is the
+    band 84.7..85.5 (-0.3/+0.5). Edges may be duration strings (``"3ms"``) when the trials are
+    timings (``unit="s"``).
     """
     if center is not None or tolerance is not None:
         if low is not None or high is not None:
@@ -73,10 +85,8 @@ def make_band(
         if center is None or tolerance is None:
             raise TrialError("center= and tolerance= go together; give both")
         middle = _edge_value(center, unit, "center")
-        spread = _edge_value(tolerance, unit, "tolerance")
-        if spread < 0:
-            raise TrialError(f"tolerance must be >= 0, got {tolerance!r}")
-        low_value, high_value = middle - spread, middle + spread
+        below, above = _tolerance_values(tolerance, unit)
+        low_value, high_value = middle - below, middle + above
     else:
         if low is None and high is None:
             raise TrialError("a band needs at least one edge: give low=, high= or center=/tolerance=")
@@ -91,6 +101,26 @@ def make_band(
             f"the band's low edge {low!r} lies above its high edge {high!r}; swap them"
         )
     return Band(low_value, high_value, unit)
+
+
+def _tolerance_values(tolerance: Tolerance, unit: str | None) -> tuple[float, float]:
+    """(below, above) from a symmetric tolerance or an asymmetric pair, each finite and >= 0."""
+    if isinstance(tolerance, tuple | list):
+        if len(tolerance) != 2:
+            raise TrialError(
+                f"an asymmetric tolerance is a pair (below, above), e.g. (0.3, 0.5) for "
+                f"-0.3/+0.5; got {tolerance!r}"
+            )
+        parts = (tolerance[0], tolerance[1])
+    else:
+        parts = (tolerance, tolerance)
+    values = tuple(_edge_value(part, unit, "tolerance") for part in parts)
+    if values[0] < 0 or values[1] < 0:
+        raise TrialError(
+            f"tolerance must be >= 0 (a pair is given as magnitudes below and above the center, "
+            f"e.g. (0.3, 0.5)), got {tolerance!r}"
+        )
+    return values[0], values[1]
 
 
 def _edge_value(edge: Edge, unit: str | None, name: str) -> float:
@@ -121,6 +151,11 @@ class Decision:
     diagnostics: Diagnostics
     suggested_n: int | None
     unit: str | None = None
+    #: The uncertainty of the mean (Type A, instrument Type B, k, U); None for methods other
+    #: than the t interval.
+    uncertainty: UncertaintyBudget | None = None
+    #: The decision rule applied and the conformance probability.
+    rule: RuleOutcome | None = None
 
     @property
     def passed(self) -> bool:
@@ -148,6 +183,8 @@ def decide(
     method: str = "t",
     power: float = 0.9,
     alpha: float = 0.05,
+    instrument_uncertainty: InstrumentSpec = None,
+    rule: str = GUARDED,
 ) -> Decision:
     """Decide a check at ``confidence``.
 
@@ -156,36 +193,64 @@ def decide(
     ``confidence`` must be inside for PASS; the opposite one-sided bound beyond the edge is FAIL.
     This is guarded acceptance with the guard band equal to the expanded uncertainty
     (ILAC-G8:2019; JCGM 106:2012, clause 8).
+
+    ``instrument_uncertainty`` (a standard uncertainty in the trials' unit, ``(u, df)`` or an
+    :class:`~meanband.uncertainty.InstrumentUncertainty`) is combined with the Type A
+    uncertainty of the mean (JCGM 100:2008): the interval becomes mean +/- U. ``rule="simple"``
+    compares the mean alone with the band (simple acceptance, no UNDECIDED).
     """
     level = check_confidence(confidence)
+    check_rule(rule)
+    instrument = as_instrument_uncertainty(instrument_uncertainty)
     x = as_sample(values, minimum=2)
     side = band.side
-    interval = mean_interval(x, level, side, method)
+    budget: UncertaintyBudget | None = None
+    if method == "t":
+        budget = uncertainty_budget(x, level, side, instrument)
+    elif instrument is not None and instrument.standard > 0:
+        raise TrialError(
+            f"instrument_uncertainty combines with the t interval only (JCGM 100); this check "
+            f"uses method={method!r}: use method='t' or leave instrument_uncertainty out"
+        )
+    combined = budget if budget is not None and budget.has_instrument else None
+    interval = combined.interval() if combined is not None else mean_interval(x, level, side, method)
     counter: Interval | None = None
-    if side == "two-sided":
-        if band.low <= interval.low and interval.high <= band.high:
-            verdict = Verdict.PASS
-        elif interval.high < band.low or interval.low > band.high:
-            verdict = Verdict.FAIL
+    low, high = interval.low, interval.high
+    if side != "two-sided":
+        opposite = "lower" if side == "upper" else "upper"
+        if combined is not None:
+            counter = combined.interval(opposite)
         else:
-            verdict = Verdict.UNDECIDED
-    else:
-        counter = mean_interval(x, level, "lower" if side == "upper" else "upper", method)
+            counter = mean_interval(x, level, opposite, method)
+        # The bounds that decide a budget: the one-sided bound and its opposite counterpart.
         if side == "upper":
-            inside, beyond = interval.high <= band.high, counter.low > band.high
+            low, high = counter.low, interval.high
         else:
-            inside, beyond = interval.low >= band.low, counter.high < band.low
-        verdict = Verdict.PASS if inside else Verdict.FAIL if beyond else Verdict.UNDECIDED
+            low, high = interval.low, counter.high
+    outcome = apply_rule(
+        rule, mean=interval.mean, low=low, high=high, band_low=band.low, band_high=band.high,
+        standard_uncertainty=None if budget is None else budget.combined,
+        df=None if budget is None else budget.effective_df,
+    )
+    verdict = Verdict(outcome.verdict)
     diagnostics = diagnose(x, alpha=alpha)
     suggested = None
     if verdict is not Verdict.FAIL:
-        # sem * sqrt(n) is the sd per trial that the method's interval implies: the plain sd for
-        # independent trials, the larger long-run sd for batch means of autocorrelated ones.
-        suggested = trials_needed(
-            interval.sem * math.sqrt(interval.n), margin=edge_margin(interval.mean, band), confidence=level,
-            side=side, power=power,
-        )
-    return Decision(verdict, band, interval, counter, diagnostics, suggested, band.unit)
+        margin = edge_margin(interval.mean, band)
+        if combined is not None:
+            suggested = trials_to_decide(
+                interval.sd, margin, instrument, confidence=level, side=side, power=power
+            )
+        else:
+            # sem * sqrt(n) is the sd per trial that the method's interval implies: the plain
+            # sd for independent trials, the long-run sd for batch means of correlated ones.
+            spread = interval.sem * math.sqrt(interval.n)
+            suggested = trials_needed(
+                spread, margin=margin, confidence=level, side=side, power=power
+            )
+    return Decision(
+        verdict, band, interval, counter, diagnostics, suggested, band.unit, budget, outcome
+    )
 
 
 def edge_margin(mean: float, band: Band) -> float:

@@ -3,10 +3,12 @@
 from __future__ import annotations
 
 import math
+from collections.abc import Collection
 from statistics import NormalDist
 
 from meanband.bands import Band, Decision, Verdict
 from meanband.diagnostics import BIMODAL_THRESHOLD, Diagnostics
+from meanband.rules import format_probability
 from meanband.units import SECONDS, format_value, significant_digits, time_scale
 
 __all__ = [
@@ -62,6 +64,7 @@ def assumption_notes(
     method: str = "t",
     alpha: float = 0.05,
     drift_alpha: float = 0.01,
+    skip: Collection[str] = (),
 ) -> list[dict[str, str]]:
     """Notes on the assumptions behind the interval, each ``{"code": ..., "text": ...}``.
 
@@ -71,6 +74,7 @@ def assumption_notes(
     autocorrelation only when one-sided significant at ``alpha`` (Box & Jenkins 1976 limits); a
     drift when Mann-Kendall rejects at ``drift_alpha`` (stricter, as a drift note asks for action);
     ``method`` is the interval method in use, so no note recommends what is already used.
+    Codes in ``skip`` are left out (e.g. "drift" when the timing engine has its own drift note).
     """
     notes: list[dict[str, str]] = []
     d = diagnostics
@@ -86,7 +90,7 @@ def assumption_notes(
             "text": "all trials are equal: the interval is the single point [mean, mean]; "
             "check that the measurement resolves the quantity",
         })
-        return notes
+        return [note for note in notes if note["code"] not in skip]
     skew_risk = _skew_risk(d, normality_alpha)
     if method in _NORMAL_THEORY:
         notes.extend(_normality_notes(d, normality_alpha, skew_risk))
@@ -121,7 +125,7 @@ def assumption_notes(
         if independence or d.lag1_significant:
             text += " (autocorrelated trials alone can make this test fire)"
         notes.append({"code": "drift", "text": text})
-    return notes
+    return [note for note in notes if note["code"] not in skip]
 
 
 def lognormal_skewness(log_sd: float) -> float:
@@ -252,6 +256,12 @@ def describe(decision: Decision, *, label: str = "", notes: list[dict[str, str]]
         Verdict.FAIL: "the mean is confidently outside the band",
         Verdict.UNDECIDED: "the interval straddles a band edge: not enough evidence either way",
     }[decision.verdict]
+    simple = decision.rule is not None and decision.rule.rule == "simple"
+    if simple:
+        head = {
+            Verdict.PASS: "the mean lies inside the band (simple acceptance, no guard band)",
+            Verdict.FAIL: "the mean lies outside the band (simple acceptance, no guard band)",
+        }.get(decision.verdict, head)
     lines = [
         f"meanband {decision.verdict.value}{' [' + label + ']' if label else ''}: {head}",
         f"  n          {iv.n}",
@@ -260,8 +270,9 @@ def describe(decision: Decision, *, label: str = "", notes: list[dict[str, str]]
         f"({iv.confidence * 100:g}% {which}, {iv.method}; about the {iv.estimand})",
         f"  band       {format_band(decision.band, digits)}",
         f"  verdict    {decision.verdict.value}",
-        f"  sd         {_fmt(iv.sd, unit, scale)} (df {iv.df:g})",
+        f"  sd         {_fmt(iv.sd, unit, scale)} (df {_sd_df(decision):g})",
     ]
+    lines.extend(_metrology_lines(decision, scale))
     normality = d.normality
     if normality.testable:
         lines.append(f"  normality  {normality.method} W/stat = {normality.statistic:.4g}, "
@@ -270,8 +281,12 @@ def describe(decision: Decision, *, label: str = "", notes: list[dict[str, str]]
         lines.append(f"  normality  not testable ({normality.reason})")
     if not math.isnan(d.lag1):
         lines.append(f"  lag-1 r    {d.lag1:.3f} (effective n about {d.effective_n:.0f})")
+    budget = decision.uncertainty
     if decision.verdict is Verdict.UNDECIDED:
-        if decision.suggested_n is None:
+        if decision.suggested_n is None and budget is not None and budget.has_instrument:
+            lines.append("  to decide  more trials will not decide it: the instrument's own "
+                         "uncertainty leaves too little room; a better calibrated instrument may")
+        elif decision.suggested_n is None:
             lines.append("  to decide  the mean sits on the edge: no number of trials is likely to decide")
         else:
             lines.append(f"  to decide  about {decision.suggested_n} trials would likely decide it "
@@ -279,3 +294,44 @@ def describe(decision: Decision, *, label: str = "", notes: list[dict[str, str]]
     for note in notes or []:
         lines.append(f"  note       {note['text']}")
     return "\n".join(lines)
+
+
+def _metrology_lines(decision: Decision, scale: float | None) -> list[str]:
+    """The uncertainty budget (when an instrument enters it) and the decision rule."""
+    lines: list[str] = []
+    budget, outcome, unit = decision.uncertainty, decision.rule, decision.unit
+    if budget is not None and budget.has_instrument:
+        lines.append(
+            f"  u(mean)    u_A {_fmt(budget.type_a, unit, scale)} (df {budget.type_a_df:g}), "
+            f"u_B {_fmt(budget.type_b, unit, scale)} (df {_df_text(budget.type_b_df)}), "
+            f"u_c {_fmt(budget.combined, unit, scale)} (nu_eff {_df_text(budget.effective_df)})"
+        )
+        lines.append(
+            f"  U          {_fmt(budget.expanded, unit, scale)} "
+            f"(k = {budget.coverage_factor:.3f}, {budget.confidence * 100:g}% {budget.side})"
+        )
+    if outcome is None:
+        return lines
+    if outcome.rule == "simple":
+        text = "simple acceptance (w = 0): the mean alone is compared with the band"
+    else:
+        text = f"guarded acceptance (guard band w = U = {_fmt(outcome.guard_band, unit, scale)})"
+    if outcome.conformance_probability is not None:
+        text += f"; conformance probability {format_probability(outcome.conformance_probability)}"
+    if outcome.false_accept_probability is not None:
+        risk = format_probability(outcome.false_accept_probability)
+        text += f"; probability of false acceptance {risk}"
+    if outcome.false_reject_probability is not None:
+        text += f"; probability of false rejection {format_probability(outcome.false_reject_probability)}"
+    lines.append(f"  rule       {text}")
+    return lines
+
+
+def _sd_df(decision: Decision) -> float:
+    """Degrees of freedom of the trials' sd (the interval's df is nu_eff once u_B enters)."""
+    budget = decision.uncertainty
+    return budget.type_a_df if budget is not None else decision.interval.df
+
+
+def _df_text(df: float) -> str:
+    return "inf" if math.isinf(df) else f"{df:.0f}" if df >= 100 else f"{df:.3g}"

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from collections.abc import Mapping, Sequence
 from typing import Any
 
@@ -10,11 +11,14 @@ from meanband.report_json import ReportError, assemble
 __all__ = ["MergeConflict", "merge_reports", "pool_rows"]
 
 #: Note codes that :func:`meanband.explain.assumption_notes` writes; a pool recomputes them.
-_ASSUMPTION_CODES = frozenset({"few-trials", "zero-spread", "not-normal", "autocorrelated"})
+_ASSUMPTION_CODES = frozenset({
+    "few-trials", "zero-spread", "not-normal", "autocorrelated", "not-normal-harmless",
+    "outliers", "bimodal", "log-not-normal",
+})
 #: Row keys a pool rebuilds or carries over; any other key was computed from one shard's trials.
 _CORE_KEYS = frozenset({
     "nodeid", "series", "kind", "unit", "source", "values", "warmup", "decision", "notes",
-    "settings", "timing", "run", "pooled",
+    "settings", "timing", "run", "pooled", "uncertainty", "rule",
 })
 _LISTED_CONFLICTS = 10
 
@@ -111,6 +115,8 @@ def pool_rows(found: Sequence[tuple[str, Mapping[str, Any]]], *, label: str = ""
         ("band", lambda r: r["decision"] and r["decision"]["band"]),
         ("confidence", lambda r: r["settings"]["confidence"]),
         ("method", lambda r: r["settings"]["method"]),
+        ("instrument uncertainty", _instrument),
+        ("decision rule", _rule),
     ):
         expected = read(first)
         for name, row in found[1:]:
@@ -138,12 +144,17 @@ def pool_rows(found: Sequence[tuple[str, Mapping[str, Any]]], *, label: str = ""
             confidence=settings["confidence"],
             method=settings["method"],
             power=_settings_value(settings, "power", 0.9),
+            instrument_uncertainty=_instrument(first),
+            rule=_rule(first),
         )
         decision = result.to_dict()
         notes = assumption_notes(
             result.diagnostics,
             min_n=_settings_value(settings, "min_n", 10),
             normality_alpha=_settings_value(settings, "normality_alpha", 0.05),
+            method=settings["method"],
+            # Pooled shards are not one series in time order: a trend across them is no drift.
+            skip={"drift"},
         )
     seen = {(note["code"], note["text"]) for note in notes}
     for _, row in found:
@@ -161,4 +172,23 @@ def pool_rows(found: Sequence[tuple[str, Mapping[str, Any]]], *, label: str = ""
     row = {key: value for key, value in first.items() if key in _CORE_KEYS}
     row.update(values=values, warmup=warmup, decision=decision, notes=notes,
                pooled={"runs": runs, "counts": counts, "dropped": dropped})
+    if decision is not None:  # recomputed with the pooled trials, like the decision
+        for key, value in (("uncertainty", result.uncertainty), ("rule", result.rule)):
+            if value is None:
+                row.pop(key, None)
+            else:
+                row[key] = value.to_dict()
     return row
+
+
+def _instrument(row: Mapping[str, Any]) -> tuple[float, float] | None:
+    """The check's instrument uncertainty (u_B, df) from its row; None when it had none."""
+    budget = row.get("uncertainty") or {}
+    if not budget.get("type_b"):
+        return None
+    df = budget.get("type_b_df")
+    return (float(budget["type_b"]), math.inf if df is None else float(df))
+
+
+def _rule(row: Mapping[str, Any]) -> str:
+    return str((row.get("rule") or {}).get("rule", "guarded"))

@@ -15,7 +15,10 @@ if TYPE_CHECKING:
     from meanband.settings import Settings
 
 #: Feature plugins, each with its own options in the ``meanband`` group.
-pytest_plugins: list[str] = ["meanband.history_plugin", "meanband.report_plugin", "meanband.plan_plugin"]
+pytest_plugins: list[str] = [
+    "meanband.history_plugin", "meanband.report_plugin", "meanband.plan_plugin",
+    "meanband.metrology_plugin", "meanband.timing_plugin",
+]
 
 RECORDER_KEY = pytest.StashKey["Recorder"]()
 CONFIG_LAYERS_KEY = pytest.StashKey[list[tuple[str, dict[str, Any]]]]()
@@ -32,6 +35,14 @@ _SETTING_OPTIONS = (
      "'200ms' (default 0).", "string"),
     ("method", "method", "Default interval method (default 't').", "string"),
     ("power", "power", "Power at which trial counts are suggested (default 0.9).", "string"),
+    ("min_trial_time", "min-trial-time", "Shortest timed trial, e.g. '5ms'; calibration runs "
+     "enough calls per trial to fill it (default: 1 ms or 1000 clock reads).", "string"),
+    ("clock", "clock", "Clock of timed trials: 'wall' (elapsed) or 'cpu' (this process's CPU "
+     "time) (default wall).", "string"),
+    ("gc", "gc", "Keep garbage collection on during timed trials: on or off (default off).",
+     "string"),
+    ("time_limit", "time-limit", "Most time a test may spend timing, e.g. '2s'; trials stop "
+     "early with a note (default: no limit).", "string"),
 )
 
 
@@ -53,7 +64,8 @@ def pytest_configure(config: pytest.Config) -> None:
     config.addinivalue_line(
         "markers",
         "meanband(n=None, confidence=None, warmup=None, min_n=None, normality_alpha=None, "
-        "method=None, power=None): settings for the test's `trials` fixture.",
+        "method=None, power=None, min_trial_time=None, clock=None, gc=None, time_limit=None): "
+        "settings for the test's `trials` fixture.",
     )
     config.stash[CONFIG_LAYERS_KEY] = _config_layers(config)
     if not hasattr(config, "workerinput"):
@@ -81,6 +93,7 @@ def _config_layers(config: pytest.Config) -> list[tuple[str, dict[str, Any]]]:
 def trials(request: pytest.FixtureRequest) -> Recorder:
     """Collect repeated trials and check that the interval of their mean lies in a band."""
     from meanband.recorder import Recorder
+    from meanband.timing_plugin import timing_session
 
     item = request.node
     config = request.config
@@ -107,6 +120,7 @@ def trials(request: pytest.FixtureRequest) -> Recorder:
             for name, values in series_plans.items()
         },
         other_series=with_plan("", {}),
+        timing=timing_session(config),
     )
     item.stash[RECORDER_KEY] = recorder
     return recorder

@@ -2,19 +2,23 @@
 
 from __future__ import annotations
 
+import os
 from collections.abc import Callable, Iterable
 from typing import Any
 
 import numpy as np
 
 from meanband import adaptive
-from meanband.bands import Band, Decision, Edge, decide, make_band
+from meanband.bands import Band, Decision, Edge, Tolerance, decide, make_band
+from meanband.clock import get_clock
 from meanband.errors import BandViolation, TrialError
 from meanband.explain import assumption_notes, describe
 from meanband.interval import Interval, mean_interval
+from meanband.rules import GUARDED
 from meanband.sample import as_sample
 from meanband.settings import Settings
-from meanband.timing import time_trials
+from meanband.timing import time_calls
+from meanband.uncertainty import InstrumentSpec
 from meanband.units import SECONDS
 
 __all__ = ["Recorder", "Series"]
@@ -34,6 +38,8 @@ class Series:
         self._values = np.empty(0, dtype=np.float64)
         self._warmup = np.empty(0, dtype=np.float64)
         self._timing: dict[str, Any] | None = None
+        self._timing_notes: list[dict[str, str]] = []
+        self._test_timing = SharedTiming()
         self._rows: list[Row] = []
         self._adaptive: adaptive.AdaptiveRun | None = None  # set by n="auto"
 
@@ -41,11 +47,15 @@ class Series:
 
     def time(
         self, fn: Callable[..., Any], *args: Any, n: int | str | None = None,
-        warmup: int | str | None = None, max_n: int | None = None,
-        band: dict[str, Edge] | Band | None = None, pilot: int | None = None, **kwargs: Any,
+        warmup: int | str | None = None, setup: Callable[[], Any] | None = None,
+        max_n: int | None = None, band: dict[str, Edge] | Band | None = None,
+        pilot: int | None = None, **kwargs: Any,
     ) -> np.ndarray:
         """Run ``n`` timed trials of ``fn(*args, **kwargs)``; each value is seconds per call.
 
+        Each trial makes k calls, k calibrated so a trial lasts the minimum trial time.
+        ``setup`` runs before every call, outside the timed region; a value it returns (not
+        None) is passed to ``fn`` as the first argument. See docs/timing.md.
         ``n="auto"`` picks the count by Stein's two-stage rule for ``band`` (``adaptive.py``).
         """
         if n == "auto":
@@ -54,19 +64,47 @@ class Series:
             warm = [settings.warmup]
 
             def collect(count: int) -> np.ndarray:
-                run = time_trials(fn, args, kwargs, n=count, warmup=warm.pop() if warm else 0)
-                self._warmup = np.concatenate([self._warmup, run.warmup])
-                self._timing = dict(run.details)
-                return run.values
+                if count == 0:
+                    return np.empty(0, dtype=np.float64)
+                values = self._timed(
+                    fn, args, kwargs, settings, count, warm.pop() if warm else 0, setup
+                )
+                if values.size < count:
+                    raise TrialError(
+                        f"the time limit stopped n='auto' after {values.size} of the {count} "
+                        "trials its two-stage rule asks for; raise --meanband-time-limit or set "
+                        "a fixed n for this test"
+                    )
+                return values
 
             return self._auto(collect, settings, max_n=max_n, band=band, pilot=pilot)
         adaptive.refuse_options(max_n, band, pilot)
         settings = self.settings.merged(n=n, warmup=warmup)
         self._claim(SECONDS, "time")
-        run = time_trials(fn, args, kwargs, n=settings.n, warmup=settings.warmup)
-        self._append(run.values)
+        values = self._timed(fn, args, kwargs, settings, settings.n, settings.warmup, setup)
+        self._append(values)
+        return values
+
+    def _timed(
+        self, fn: Callable[..., Any], args: tuple[Any, ...], kwargs: dict[str, Any],
+        settings: Settings, n: int, warmup: int | str, setup: Callable[[], Any] | None,
+    ) -> np.ndarray:
+        """One run of the timing engine; keeps its warm-up, details and notes on the series."""
+        shared = self._test_timing
+        clock = get_clock(settings.clock)
+        run = time_calls(
+            fn, args, kwargs, n=n, warmup=warmup, setup=setup, clock=clock,
+            clock_info=shared.clock_info(clock), min_trial_time=settings.min_trial_time,
+            time_limit=shared.time_left(settings.time_limit), gc_enabled=settings.gc,
+            environ=shared.environ,
+        )
+        shared.spent += run.elapsed
         self._warmup = np.concatenate([self._warmup, run.warmup])
-        self._timing = dict(run.details)
+        calls = 1 if self._timing is None else int(self._timing.get("calls", 1)) + 1
+        self._timing = {**run.to_dict(), "calls": calls}
+        for note in run.notes:
+            if note.to_dict() not in self._timing_notes:
+                self._timing_notes.append(note.to_dict())
         return run.values
 
     def sample(
@@ -117,6 +155,21 @@ class Series:
         self._claim(unit, "values")
         self._append(clean)
 
+    def extend_from(
+        self, path: str | os.PathLike[str], column: str | int | None = None, *,
+        unit: str | None = None, delimiter: str | None = None, header: bool | None = None,
+    ) -> np.ndarray:
+        """Record one column of a bench log (CSV or whitespace-separated; ``#`` comments).
+
+        ``column`` is a header name or a 0-based index. A bad row raises TrialError with its
+        line number, and the series keeps exactly what it held before.
+        """
+        from meanband.benchlog import read_column
+
+        values = read_column(path, column, delimiter=delimiter, header=header)
+        self.extend(values, unit=unit)
+        return values
+
     @property
     def values(self) -> np.ndarray:
         """The trials recorded so far (warm-up excluded), read-only."""
@@ -146,34 +199,49 @@ class Series:
         high: Edge = None,
         *,
         center: Edge = None,
-        tolerance: Edge = None,
+        tolerance: Tolerance = None,
         confidence: float | None = None,
         method: str | None = None,
+        instrument_uncertainty: InstrumentSpec = None,
+        rule: str = GUARDED,
     ) -> Decision:
         """Pass only if the interval of the mean lies inside the band; raise BandViolation if not.
 
         Two edges: the two-sided interval must lie inside. One edge (a budget): the one-sided
-        bound must lie on the right side of it.
+        bound must lie on the right side of it. ``tolerance=(below, above)`` is asymmetric.
+        ``instrument_uncertainty`` (standard uncertainty in the trials' unit, or ``(u, df)``)
+        widens the interval to mean +/- U (JCGM 100); ``rule="simple"`` compares the mean alone.
         """
         settings = self.settings.merged(confidence=confidence, method=method)
         if self._adaptive is not None:
+            if instrument_uncertainty is not None or rule != GUARDED:
+                raise TrialError(
+                    "instrument_uncertainty= and rule= cannot be used with n='auto': the "
+                    "two-stage verdict uses Stein's interval; collect a fixed n for this check"
+                )
             decision, notes, extra = self._adaptive.check(
                 low, high, center, tolerance, held=self._values.size, unit=self.unit,
                 settings=settings,
             )
+            notes = self._timing_notes + notes
             row = self._row("check", settings, decision.to_dict(), notes) | extra
             row["settings"]["n"] = "auto"
         else:
             band = make_band(low, high, center=center, tolerance=tolerance, unit=self.unit)
             decision = decide(
                 self._values, band, confidence=settings.confidence, method=settings.method,
-                power=settings.power,
+                power=settings.power, instrument_uncertainty=instrument_uncertainty, rule=rule,
             )
-            notes = assumption_notes(
+            notes = self._timing_notes + assumption_notes(
                 decision.diagnostics, min_n=settings.min_n,
                 normality_alpha=settings.normality_alpha, method=settings.method,
+                skip={note["code"] for note in self._timing_notes},
             )
             row = self._row("check", settings, decision.to_dict(), notes)
+            if decision.uncertainty is not None:
+                row["uncertainty"] = decision.uncertainty.to_dict()
+            if decision.rule is not None:
+                row["rule"] = decision.rule.to_dict()
         self._rows.append(row)
         if not decision.passed:
             raise BandViolation(describe(decision, label=self._label(), notes=notes), decision)
@@ -186,7 +254,7 @@ class Series:
         if self._rows:
             return list(self._rows)
         if self._values.size:
-            return [self._row("unchecked", self.settings, None, [])]
+            return [self._row("unchecked", self.settings, None, list(self._timing_notes))]
         return []
 
     def _row(
@@ -230,8 +298,10 @@ class Recorder(Series):
     def __init__(
         self, settings: Settings, nodeid: str = "", *,
         series_settings: dict[str, Settings] | None = None, other_series: Settings | None = None,
+        timing: Any = None,
     ) -> None:
         super().__init__("", settings, nodeid)
+        self._test_timing = SharedTiming(timing)
         self._series: dict[str, Series] = {}
         self._comparisons: list[Row] = []
         # A plan may give named series counts of their own; unplanned series use other_series.
@@ -245,6 +315,7 @@ class Recorder(Series):
         if name not in self._series:
             settings = self._series_settings.get(name, self._other_series)
             self._series[name] = Series(name, settings, self.nodeid)
+            self._series[name]._test_timing = self._test_timing
         return self._series[name]
 
     def compare(
@@ -289,6 +360,27 @@ class Recorder(Series):
             rows.extend(named.rows())
         rows.extend(self._comparisons)
         return rows
+
+
+class SharedTiming:
+    """What the series of one test share when timing: the session's clock measurements and
+    worker identity (a ``timing_plugin.TimingSession``, or None outside pytest) and the time
+    spent so far against the per-test time limit."""
+
+    def __init__(self, session: Any = None) -> None:
+        self.session = session
+        self.spent = 0.0
+
+    def clock_info(self, clock: Any) -> Any:
+        return None if self.session is None else self.session.clock_info(clock)
+
+    @property
+    def environ(self) -> dict[str, str] | None:
+        return None if self.session is None else self.session.environ
+
+    def time_left(self, limit: float | None) -> float | None:
+        """Seconds left of ``limit``; once spent, a sliver, so the engine takes its minimum."""
+        return None if limit is None else max(limit - self.spent, 1e-9)
 
 
 def _callable_name(fn: Callable[..., Any]) -> str:

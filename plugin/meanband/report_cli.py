@@ -96,6 +96,7 @@ def run_report(args: argparse.Namespace, out: TextIO | None = None,
                err: TextIO | None = None) -> int:
     """``meanband report ALL.json [-v] [--markdown PATH] [--plots DIR]``."""
     from meanband import markdown
+    from meanband.metrology_plugin import metrology_lines
     from meanband.report_json import ReportError, load_report
     from meanband.summary import format_summary
 
@@ -106,6 +107,8 @@ def run_report(args: argparse.Namespace, out: TextIO | None = None,
         return _fail("report", exc, err)
     rows = report["rows"]
     for line in format_summary(rows, args.verbose - args.quiet):
+        print(line, file=out)
+    for line in metrology_lines(rows, args.verbose - args.quiet):
         print(line, file=out)
     try:
         if args.markdown or args.job_summary:

@@ -27,6 +27,13 @@ class Settings:
     normality_alpha: float = 0.05
     method: str = "t"
     power: float = 0.9
+    #: Timing engine (see docs/timing.md): seconds a trial lasts at least (None: automatic),
+    #: the clock ("wall" or "cpu"), whether garbage collection stays on during trials, and a
+    #: per-test limit in seconds on the time spent timing (None: no limit).
+    min_trial_time: float | None = None
+    clock: str = "wall"
+    gc: bool = False
+    time_limit: float | None = None
 
     def merged(self, **overrides: Any) -> Settings:
         """A copy with the non-None ``overrides`` (call arguments), validated."""
@@ -52,6 +59,10 @@ def marker_settings(
     normality_alpha: float | None = None,
     method: str | None = None,
     power: float | None = None,
+    min_trial_time: float | str | None = None,
+    clock: str | None = None,
+    gc: bool | str | None = None,
+    time_limit: float | str | None = None,
 ) -> dict[str, Any]:
     """The signature of ``@pytest.mark.meanband(...)``: a wrong keyword is a TypeError."""
     return {k: v for k, v in locals().items() if v is not None}
@@ -94,6 +105,52 @@ def _method(value: Any) -> str:
     return str(value)
 
 
+def _seconds(*, zero_ok: bool) -> Callable[[Any], float]:
+    def check(value: Any) -> float:
+        if isinstance(value, bool):
+            raise ValueError("a duration is needed, e.g. '2ms' or 0.002 (seconds)")
+        if isinstance(value, str):
+            from meanband.units import parse_duration
+
+            text = value.strip()
+            seconds = float(text) if _is_number(text) else parse_duration(text)
+        else:
+            seconds = float(value)
+        if not math.isfinite(seconds) or seconds < 0 or (seconds == 0 and not zero_ok):
+            raise ValueError(f"a duration {'>= 0' if zero_ok else '> 0'} is needed, e.g. '2ms'")
+        return seconds
+
+    return check
+
+
+def _is_number(text: str) -> bool:
+    try:
+        float(text)
+    except ValueError:
+        return False
+    return True
+
+
+def _clock(value: Any) -> str:
+    from meanband.clock import CLOCKS
+
+    if value not in CLOCKS:
+        raise ValueError(f"choose one of {', '.join(sorted(CLOCKS))}")
+    return str(value)
+
+
+_SWITCH = {"on": True, "true": True, "yes": True, "1": True,
+           "off": False, "false": False, "no": False, "0": False}
+
+
+def _switch(value: Any) -> bool:
+    if isinstance(value, bool):
+        return value
+    if isinstance(value, str) and value.strip().lower() in _SWITCH:
+        return _SWITCH[value.strip().lower()]
+    raise ValueError("write on or off (True or False in a marker)")
+
+
 _VALIDATORS: dict[str, Callable[[Any], Any]] = {
     "n": _integer(2),
     "confidence": _probability,
@@ -102,6 +159,10 @@ _VALIDATORS: dict[str, Callable[[Any], Any]] = {
     "normality_alpha": _probability,
     "method": _method,
     "power": _probability,
+    "min_trial_time": _seconds(zero_ok=True),
+    "clock": _clock,
+    "gc": _switch,
+    "time_limit": _seconds(zero_ok=False),
 }
 
 

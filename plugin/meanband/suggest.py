@@ -89,6 +89,7 @@ def suggest_trials(
     min_n: int = 2,
     trial_seconds: float | None = None,
     unit: str | None = None,
+    instrument_count: int | str | None = "none given",
 ) -> Suggestion | None:
     """The count that decides a check at ``power``, from its mean, sd and band.
 
@@ -97,6 +98,9 @@ def suggest_trials(
     FAIL gets no suggestion: the interval already lies wholly outside the band, and more
     trials only confirm it. A PASS whose count could shrink by at least ``MIN_SAVING`` of its
     trials gets the smaller count, with the CI seconds saved when ``trial_seconds`` is known.
+    When the check carries an instrument (Type B) uncertainty, pass the count its decision
+    computed with it as ``instrument_count`` (None: no count decides it); the t test alone
+    would promise a decision that the instrument's own uncertainty can forbid.
     """
     level = check_confidence(confidence)
     power = check_power(power)
@@ -118,11 +122,19 @@ def suggest_trials(
     power_now = _power(margin, sd, n, alpha)
     floor = max(int(min_n), 2)
 
-    needed = trials_needed(
-        sd, margin=margin, confidence=level, side=side, power=power, n_max=_N_CEILING
-    )
+    if isinstance(instrument_count, str):
+        needed = trials_needed(
+            sd, margin=margin, confidence=level, side=side, power=power, n_max=_N_CEILING
+        )
+    else:
+        needed = instrument_count
     if needed is None:
-        if margin == 0:
+        if not isinstance(instrument_count, str) and margin > 0:
+            reason = (
+                f"{verdict} at n={n}; more trials will not decide it: the instrument's own "
+                "uncertainty leaves too little room between the mean and the edge"
+            )
+        elif margin == 0:
             reason = f"{verdict} at n={n}; the mean sits on the band edge: no count decides it"
         else:
             reason = (
@@ -224,7 +236,16 @@ def suggestion_for_row(
         min_n=int(settings.get("min_n") or 2),
         trial_seconds=trial_seconds(row),
         unit=decision.get("unit") or row.get("unit"),
+        **_instrument_count(row, decision),
     )
+
+
+def _instrument_count(row: Mapping[str, Any], decision: Mapping[str, Any]) -> dict[str, Any]:
+    """The decision's own count when an instrument uncertainty shares the budget, else nothing."""
+    budget = row.get("uncertainty") or {}
+    if budget.get("type_b"):
+        return {"instrument_count": decision.get("suggested_n")}
+    return {}
 
 
 def _two_stage_suggestion(row: Mapping[str, Any], decision: Mapping[str, Any]) -> Suggestion | None:
