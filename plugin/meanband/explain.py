@@ -131,7 +131,10 @@ def assumption_notes(
 def lognormal_skewness(log_sd: float) -> float:
     """Skewness of a log-normal population with log-sd ``log_sd``: (e^s2 + 2) sqrt(e^s2 - 1)
     (Johnson, Kotz & Balakrishnan 1994, chapter 14)."""
-    w = math.exp(log_sd * log_sd)
+    s2 = log_sd * log_sd
+    if s2 > 300.0:  # e^s2 alone would overflow the cube below: the skewness is beyond any n
+        return math.inf
+    w = math.exp(s2)
     return (w + 2.0) * math.sqrt(w - 1.0)
 
 
