@@ -15,8 +15,6 @@ from hypothesis import strategies as st
 from meanband.clock import Clock, ClockInfo
 from meanband.errors import TrialError
 from meanband.timing import (
-    DRIFT_MAX_POINTS,
-    drift_test,
     parse_warmup,
     time_calls,
 )
@@ -403,8 +401,9 @@ def test_a_slowing_trend_across_trials_is_noted_as_drift() -> None:
         fake, lambda: fake.spend(200_000 + 2_000 * next(calls) + next(noise)), n=30, loops=1
     )
     assert "drift" in codes(timing)
-    assert timing.drift is not None and timing.drift.tau > 0.5
-    assert timing.drift.change > 0.1
+    assert timing.drift is not None and timing.drift.statistic > 0.5
+    # Sen's slope over the run: about 2,000 ns x 29 trials on a level of about 230,000 ns.
+    assert timing.drift.change / float(np.median(timing.values)) > 0.1
     [note] = [note for note in timing.notes if note.code == "drift"]
     assert "upward" in note.text and "Mann-Kendall" in note.text
 
@@ -433,47 +432,6 @@ def test_notes_serialise_as_code_and_text() -> None:
     timing = run(fake, fake.work(400), n=3, loops=1)
     assert timing.notes
     assert all(note.to_dict().keys() == {"code", "text"} for note in timing.notes)
-
-
-# --- drift test against references -------------------------------------------------------------
-
-
-def mann_kendall_s(x: np.ndarray) -> int:
-    """S = sum over i < j of sign(x_j - x_i) (Mann 1945; Kendall 1975)."""
-    n = x.size
-    return int(sum(np.sign(x[j] - x[i]) for i in range(n) for j in range(i + 1, n)))
-
-
-def test_drift_test_matches_the_mann_kendall_statistic() -> None:
-    x = np.random.default_rng(11).normal(size=60) + np.linspace(0, 0.8, 60)
-    result = drift_test(x)
-    assert result is not None
-    n = x.size
-    s = mann_kendall_s(x)
-    # No ties: tau = S / (n(n-1)/2) and, for n > 50, scipy's p-value is the normal approximation
-    # with Var(S) = n(n-1)(2n+5)/18 (Kendall 1975; Gilbert 1987, section 16.4 - from memory,
-    # without the continuity correction, as scipy.stats.kendalltau computes it).
-    assert result.tau == pytest.approx(s / (n * (n - 1) / 2))
-    from scipy.stats import norm
-
-    z = s / math.sqrt(n * (n - 1) * (2 * n + 5) / 18)
-    assert result.pvalue == pytest.approx(2 * norm.sf(abs(z)), rel=1e-6)
-
-
-def test_drift_test_needs_enough_trials_and_tolerates_zero_spread() -> None:
-    assert drift_test(np.arange(5.0)) is None
-    flat = drift_test(np.full(20, 3.0))
-    assert flat is not None and not flat.significant
-    assert json.loads(json.dumps(flat.to_dict()))["tau"] is None
-
-
-def test_drift_test_on_long_runs_uses_block_means() -> None:
-    x = np.random.default_rng(3).normal(size=5 * DRIFT_MAX_POINTS)
-    result = drift_test(x)
-    assert result is not None
-    assert result.points <= DRIFT_MAX_POINTS
-    trend = drift_test(x + np.linspace(0, 1, x.size))
-    assert trend is not None and trend.significant
 
 
 # --- the row entry and bad input ---------------------------------------------------------------

@@ -74,6 +74,11 @@ class DriftTest:
         """Whether the test finds a trend at level ``alpha``."""
         return self.testable and self.pvalue < alpha
 
+    def to_dict(self) -> dict[str, Any]:
+        """Builtin types only; an undefined statistic is None, so strict JSON can carry it."""
+        return {k: (None if isinstance(v, float) and not math.isfinite(v) else v)
+                for k, v in asdict(self).items()}
+
 
 #: The drift field of diagnostics made without a drift test.
 NO_DRIFT = DriftTest("Mann-Kendall", math.nan, math.nan, math.nan, math.nan, False, 0,

@@ -16,16 +16,15 @@ from typing import Any
 import numpy as np
 
 from meanband.clock import Clock, ClockInfo, get_clock, measure
+from meanband.diagnostics import DriftTest, drift_test
 from meanband.errors import TrialError
 from meanband.units import SECONDS, format_value, parse_duration
 
 __all__ = [
     "DEFAULT_MIN_TRIAL_TIME",
-    "DriftTest",
     "Note",
     "Timing",
     "default_min_trial_time",
-    "drift_test",
     "parse_warmup",
     "time_calls",
 ]
@@ -46,7 +45,7 @@ _MAX_GROWTH = 10
 _OVERSHOOT = 1.1
 #: Level of the drift test. Low, because the note is raised for every timed series.
 DRIFT_ALPHA = 0.01
-#: Fewest trials the drift test looks at; most points it tests (longer runs become block means).
+#: Fewest trials the drift test looks at; most trials a bookkeeping median reads.
 DRIFT_MIN_N = 8
 DRIFT_MAX_POINTS = 2000
 #: Note thresholds: a clock step above 1% of the trial, a read above 1% of a one-call trial.
@@ -64,37 +63,6 @@ class Note:
     def to_dict(self) -> dict[str, str]:
         """The row form of a note."""
         return {"code": self.code, "text": self.text}
-
-
-@dataclass(frozen=True, slots=True)
-class DriftTest:
-    """Mann-Kendall test for a monotonic trend of the trials against their index."""
-
-    method: str
-    tau: float
-    pvalue: float
-    #: Median of the last third of the trials over the median of the first third, minus one.
-    change: float
-    #: Points tested: the trials, or block means of them when there are many.
-    points: int
-    alpha: float
-
-    @property
-    def significant(self) -> bool:
-        """Whether the trend is significant at ``alpha``."""
-        return bool(self.pvalue < self.alpha)
-
-    def to_dict(self) -> dict[str, Any]:
-        """Builtin types only."""
-        return {
-            "method": self.method,
-            "tau": _builtin(self.tau),
-            "pvalue": _builtin(self.pvalue),
-            "change": _builtin(self.change),
-            "points": int(self.points),
-            "alpha": float(self.alpha),
-            "significant": self.significant,
-        }
 
 
 @dataclass(frozen=True, eq=False)
@@ -277,7 +245,8 @@ def time_calls(
     per_call = 1e-9 / k
     values = np.frombuffer(out, dtype=np.int64, count=taken) * per_call
     warm_values = np.asarray(warm, dtype=np.float64) * per_call
-    drift = drift_test(values, alpha=drift_alpha)
+    # The core trend test (diagnostics.drift_test), judged here at the engine's own level.
+    drift = drift_test(values) if values.size >= DRIFT_MIN_N else None
     stopped_early = taken < n or (deadline is not None and len(warm) < warm_count)
     notes = _notes(
         values=values,
@@ -291,6 +260,7 @@ def time_calls(
         stopped_early=stopped_early,
         time_limit=time_limit,
         drift=drift,
+        drift_alpha=drift_alpha,
         environ=os.environ if environ is None else environ,
     )
     return Timing(
@@ -308,40 +278,6 @@ def time_calls(
         elapsed=(read() - start) * 1e-9,
         drift=drift,
         notes=tuple(notes),
-    )
-
-
-def drift_test(values: np.ndarray, *, alpha: float = DRIFT_ALPHA) -> DriftTest | None:
-    """Mann-Kendall trend test (Mann 1945; Kendall 1975): Kendall's tau of trials against index.
-
-    Returns None below ``DRIFT_MIN_N`` trials. Above ``DRIFT_MAX_POINTS`` the test runs on
-    means of consecutive blocks, which keeps its cost linear and its power against a trend.
-    """
-    x = np.asarray(values, dtype=np.float64)
-    n = x.size
-    if n < DRIFT_MIN_N:
-        return None
-    points = x
-    if n > DRIFT_MAX_POINTS:
-        size = -(-n // DRIFT_MAX_POINTS)
-        usable = (n // size) * size
-        points = x[:usable].reshape(-1, size).mean(axis=1)
-    third = max(n // 3, 1)
-    first = _median(x[:third])
-    last = _median(x[-third:])
-    change = last / first - 1.0 if first > 0 else math.nan
-    if np.all(points == points[0]):
-        return DriftTest("Mann-Kendall", math.nan, 1.0, change, int(points.size), alpha)
-    from scipy.stats import kendalltau
-
-    result = kendalltau(np.arange(points.size), points)
-    return DriftTest(
-        "Mann-Kendall",
-        float(result.statistic),
-        float(result.pvalue),
-        change,
-        int(points.size),
-        alpha,
     )
 
 
@@ -504,6 +440,7 @@ def _notes(
     stopped_early: bool,
     time_limit: float | None,
     drift: DriftTest | None,
+    drift_alpha: float,
     environ: Mapping[str, str],
 ) -> list[Note]:
     notes: list[Note] = []
@@ -534,14 +471,17 @@ def _notes(
                 "without -n",
             )
         )
-    if drift is not None and drift.significant:
-        direction = "upward (slowing)" if drift.tau > 0 else "downward (speeding up)"
-        change = f"{drift.change:+.1%}" if math.isfinite(drift.change) else "n/a"
+    if drift is not None and drift.rejects(drift_alpha):
+        direction = "upward (slowing)" if drift.statistic > 0 else "downward (speeding up)"
+        level = _median(values)
+        relative = drift.change / level if level > 0 else math.nan
+        change = f"{relative:+.1%}" if math.isfinite(relative) else "n/a"
         notes.append(
             Note(
                 "drift",
-                f"trials trend {direction} across the run ({drift.method} tau={drift.tau:.2f}, "
-                f"p={drift.pvalue:.2g}; last third vs first third {change}): warm-up too short, "
+                f"trials trend {direction} across the run ({drift.method} tau="
+                f"{drift.statistic:.2f}, p={drift.pvalue:.2g}; first to last trial {change}): "
+                "warm-up too short, "
                 "a throttling CPU or a busy neighbour; the t interval assumes independent trials",
             )
         )
@@ -596,5 +536,3 @@ def _count(name: str, value: Any, *, minimum: int) -> int:
     return int(value)
 
 
-def _builtin(value: float) -> float | None:
-    return None if not math.isfinite(value) else float(value)
