@@ -178,3 +178,23 @@ def test_comparison_row_carries_both_sides(pytester: pytest.Pytester, run_suite)
     pytester.makepyfile(test_parsers=COMPARE_SUITE)
     result = run_suite("-s", "-k", "v1_faster")
     result.stdout.fnmatch_lines(["*ROW compare x 60 parse_v1 parse_v2 60 60 0.98 5"])
+
+
+def test_compare_reads_the_clock_the_settings_name() -> None:
+    # The clock module owns the clock: a comparison on the CPU clock says so in its row.
+    from meanband.comparison import compare_callables
+
+    def new() -> int:
+        return sum(range(200))
+
+    def old() -> int:
+        return sum(range(200))
+
+    for name in ("wall", "cpu"):
+        _result, row, _message = compare_callables(
+            new, old, n=4, at_most=100.0, at_least=None, confidence=0.95, repeats=1, warmup=0,
+            seed=1, clock=name,
+        )
+        assert row["timing"]["clock"] == name
+    with pytest.raises(TrialError, match="unknown clock 'sundial'"):
+        compare_callables(new, old, n=4, at_most=2.0, at_least=None, confidence=0.95, clock="sundial")

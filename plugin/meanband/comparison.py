@@ -12,7 +12,6 @@ from __future__ import annotations
 
 import gc
 import math
-import time
 from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
@@ -20,6 +19,7 @@ from typing import Any
 import numpy as np
 
 from meanband.bands import Verdict
+from meanband.clock import get_clock
 from meanband.errors import TrialError
 from meanband.ratio import RatioInterval, judge_ratio, paired_ratio_interval
 
@@ -65,7 +65,7 @@ def time_pairs(
     repeats: int = 5,
     warmup: int = 2,
     seed: int | None = None,
-    clock: Callable[[], int] = time.perf_counter_ns,
+    clock: Callable[[], int] | None = None,
 ) -> PairedTimes:
     """Time ``n`` pairs; each pair is ``repeats`` rounds of one call batch of each callable, in
     a random order per round, and keeps each side's quickest round.
@@ -74,8 +74,11 @@ def time_pairs(
     the quickest of a few adjacent rounds is the pair's undisturbed time and one descheduling
     cannot throw a pair off (common practice in timing, from memory). Calls are batched (the
     same batch size for both) so each measurement lasts at least ``MIN_MEASUREMENT``; ``warmup``
-    pairs run first and are dropped. Garbage collection is off while timing.
+    pairs run first and are dropped. Garbage collection is off while timing. ``clock`` reads
+    integer nanoseconds; by default the wall clock of ``meanband.clock``.
     """
+    if clock is None:
+        clock = get_clock("wall").read
     for value, what, least in ((n, "n", 2), (repeats, "repeats", 1), (warmup, "warmup", 0)):
         if isinstance(value, bool) or not isinstance(value, int) or value < least:
             raise TrialError(f"a comparison needs {what} >= {least} (a whole number), got {value!r}")
@@ -172,6 +175,7 @@ def compare_callables(
     name: str | None = None,
     nodeid: str = "",
     settings: dict[str, Any] | None = None,
+    clock: str = "wall",
 ) -> tuple[RatioCheck, dict[str, Any], str]:
     """Time ``new`` against ``old`` and judge the ratio; return the check, its result row
     (builtin types only) and the message a failure should carry."""
@@ -180,7 +184,8 @@ def compare_callables(
 
     # Validate the limits before spending time on the callables.
     check_ratio(np.ones(2), np.ones(2), at_most=at_most, at_least=at_least)
-    times = time_pairs(new, old, n, repeats=repeats, warmup=warmup, seed=seed)
+    timer = get_clock(clock)
+    times = time_pairs(new, old, n, repeats=repeats, warmup=warmup, seed=seed, clock=timer.read)
     result = check_ratio(
         times.first, times.second, at_most=at_most, at_least=at_least, confidence=confidence
     )
@@ -224,7 +229,7 @@ def compare_callables(
         "notes": [],
         "settings": dict(settings or {}),
         "timing": {
-            "clock": "perf_counter_ns", "k": times.batch, "interleaved": True, "repeats": repeats,
+            "clock": timer.name, "k": times.batch, "interleaved": True, "repeats": repeats,
         },
         "comparison": {
             "new": new_name,

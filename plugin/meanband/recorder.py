@@ -345,7 +345,7 @@ class Recorder(Series):
         result, row, message = compare_callables(
             new, old, n=settings.n, at_most=at_most, at_least=at_least,
             confidence=settings.confidence, power=settings.power, repeats=repeats, warmup=warmup,
-            seed=seed,
+            seed=seed, clock=settings.clock,
             name=name, nodeid=self.nodeid, settings=settings.to_dict(),
         )
         self._comparisons.append(row)
