@@ -1,4 +1,4 @@
-"""Metrology options alongside other features: pooled shard reports and n="auto" counts."""
+"""Metrology options alongside other features: pooled reports, n="auto", suggested counts."""
 
 from __future__ import annotations
 
@@ -96,3 +96,15 @@ def test_adaptive_count_refuses_instrument_and_simple_rule_clearly(check) -> Non
     with pytest.raises(TrialError, match="cannot be used with n='auto'"):
         recorder.check(**check)
     assert recorder.all_rows()[0]["kind"] == "unchecked"  # nothing recorded as a check
+
+
+def test_simple_acceptance_keeps_its_count_instead_of_a_power_suggestion() -> None:
+    from meanband.suggest import suggestion_for_row
+
+    values = RNG.normal(12.039, 0.01, 20)  # mean just inside the upper edge 12.04
+    simple = suggestion_for_row(_row(values, rule="simple"))
+    assert simple is not None and simple.direction == "keep" and simple.n == 20
+    assert "simple acceptance" in simple.reason
+    # The same trials under guarded acceptance get a count from the power of the interval.
+    guarded = suggestion_for_row(_row(values))
+    assert guarded is not None and guarded.direction == "more"

@@ -223,6 +223,13 @@ def suggestion_for_row(
     settings = row.get("settings") or {}
     if power is None:
         power = settings.get("power", DEFAULT_POWER)
+    if (row.get("rule") or {}).get("rule") == "simple" and decision["verdict"] != "FAIL":
+        # Simple acceptance compares the mean alone: the power of the interval says nothing
+        # about it, so the count is kept (its risk is the rule's false-acceptance probability).
+        n = int(interval["n"])
+        reason = (f"{decision['verdict']} at n={n} under simple acceptance, which compares the "
+                  "mean alone: the count is kept")
+        return Suggestion(n, reason, "keep", n, float(power), None)
     band = decision["band"]
     return suggest_trials(
         verdict=decision["verdict"],
