@@ -499,3 +499,16 @@ def test_the_real_clock_times_a_call() -> None:
     assert timing.loops >= 1
     assert np.all(timing.values > 0)
     assert timing.clock.clock == "wall"
+
+
+def test_long_runs_test_drift_on_block_means() -> None:
+    # The engine's drift test reads at most DRIFT_MAX_POINTS points, so its cost does not grow
+    # with n, and still finds a trend hidden in the jitter of single trials.
+    from meanband.timing import DRIFT_MAX_POINTS, _drift
+
+    x = np.random.default_rng(3).normal(size=5 * DRIFT_MAX_POINTS)
+    flat = _drift(x)
+    assert flat is not None and flat.used <= DRIFT_MAX_POINTS
+    trend = _drift(x + np.linspace(0, 1, x.size))
+    assert trend is not None and trend.rejects(0.01)
+    assert trend.change == pytest.approx(1.0, rel=0.2)

@@ -45,7 +45,7 @@ _MAX_GROWTH = 10
 _OVERSHOOT = 1.1
 #: Level of the drift test. Low, because the note is raised for every timed series.
 DRIFT_ALPHA = 0.01
-#: Fewest trials the drift test looks at; most trials a bookkeeping median reads.
+#: Fewest trials the drift test looks at; most points it tests (longer runs become block means).
 DRIFT_MIN_N = 8
 DRIFT_MAX_POINTS = 2000
 #: Note thresholds: a clock step above 1% of the trial, a read above 1% of a one-call trial.
@@ -245,8 +245,7 @@ def time_calls(
     per_call = 1e-9 / k
     values = np.frombuffer(out, dtype=np.int64, count=taken) * per_call
     warm_values = np.asarray(warm, dtype=np.float64) * per_call
-    # The core trend test (diagnostics.drift_test), judged here at the engine's own level.
-    drift = drift_test(values) if values.size >= DRIFT_MIN_N else None
+    drift = _drift(values)
     stopped_early = taken < n or (deadline is not None and len(warm) < warm_count)
     notes = _notes(
         values=values,
@@ -320,6 +319,24 @@ def _run(call, k, out, first, stop, read, deadline) -> int:
         if deadline is not None and t1 > deadline:
             return i + 1
     return stop
+
+
+def _drift(values: np.ndarray) -> DriftTest | None:
+    """The core trend test (``diagnostics.drift_test``) on at most ``DRIFT_MAX_POINTS`` points.
+
+    Long runs are tested on means of consecutive blocks: the cost stays fixed however many
+    trials are taken (it must not grow the per-trial overhead), and block means keep the power
+    against a trend while they average away the jitter of single trials.
+    """
+    n = values.size
+    if n < DRIFT_MIN_N:
+        return None
+    points = values
+    if n > DRIFT_MAX_POINTS:
+        size = -(-n // DRIFT_MAX_POINTS)
+        usable = (n // size) * size
+        points = values[:usable].reshape(-1, size).mean(axis=1)
+    return drift_test(points)
 
 
 class _SetupRunner:
