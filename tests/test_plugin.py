@@ -487,3 +487,15 @@ def test_import_meanband_does_not_import_pytest_or_scipy():
     code = "import sys, meanband; meanband.Verdict; print('pytest' in sys.modules, 'scipy' in sys.modules)"
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.split() == ["False", "False"]
+
+
+def test_session_finish_hook_fires_even_without_rows(run_suite, pytester):
+    # Exporters rely on it: a shard that ran no checks still writes its (empty) files.
+    pytester.makeconftest("""
+def pytest_meanband_session_finish(config, rows):
+    print(f"FINISH {len(rows)}")
+""")
+    pytester.makepyfile(test_plain="def test_a():\n    pass\n")
+    result = run_suite("-s")
+    result.stdout.fnmatch_lines(["*FINISH 0*"])
+    assert "= meanband =" not in result.stdout.str()

@@ -212,7 +212,7 @@ class HistoryPlugin:
 
         failed = any((r.get("baseline") or {}).get("status") == REGRESSED for r in rows)
         status = self.session.exitstatus if self.session is not None else pytest.ExitCode.OK
-        if self.record is not None:
+        if self.record is not None and rows:  # a run without checks is no baseline
             if status in (pytest.ExitCode.OK, pytest.ExitCode.TESTS_FAILED):
                 failed |= not self._record(rows)
             else:

@@ -25,7 +25,8 @@ def pytest_meanband_summary_lines(config: pytest.Config, rows: list[Row]) -> lis
 
 def pytest_meanband_session_finish(config: pytest.Config, rows: list[Row]) -> None:
     """Called once on the controller at the end of the session, before the terminal summary is
-    printed, with every row. Exporters (history, JSON, Markdown, plots) write their files here."""
+    printed, with every row (an empty list when no test used ``trials``). Exporters (history,
+    JSON, Markdown, plots) write their files here."""
 
 
 @pytest.hookspec(firstresult=True)

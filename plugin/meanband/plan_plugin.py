@@ -92,8 +92,6 @@ class PlanPlugin:
         workeroutput = getattr(self.config, "workeroutput", None)
         if workeroutput is not None and self.plan is not None:
             workeroutput[_COLLECTED_KEY] = sorted(self.collected)
-        if workeroutput is None:
-            self._write_plan([])
 
     @pytest.hookimpl(optionalhook=True)
     def pytest_testnodedown(self, node: Any, error: Any) -> None:

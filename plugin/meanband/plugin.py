@@ -177,8 +177,8 @@ class SummaryPlugin:
             self.rows.append(row)
 
     def pytest_sessionfinish(self, session: pytest.Session) -> None:
-        if self.rows:
-            self.config.hook.pytest_meanband_session_finish(config=self.config, rows=self.rows)
+        # Called even with no rows: a shard that ran no checks still writes its (empty) files.
+        self.config.hook.pytest_meanband_session_finish(config=self.config, rows=self.rows)
 
     def pytest_terminal_summary(self, terminalreporter: pytest.TerminalReporter) -> None:
         if not self.rows:

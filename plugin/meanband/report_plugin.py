@@ -186,7 +186,6 @@ class ReportWriter:
     def __init__(self, config: pytest.Config, settings: ReportSettings) -> None:
         self.config = config
         self.settings = settings
-        self.finished = False
         self.messages: list[tuple[str, dict[str, bool]]] = []
 
     def _say(self, text: str, **markup: bool) -> None:
@@ -202,7 +201,6 @@ class ReportWriter:
     def pytest_meanband_session_finish(self, config: pytest.Config, rows: list[dict]) -> None:
         if hasattr(config, "workerinput"):
             return
-        self.finished = True
         from meanband.report_json import ReportError
 
         s = self.settings
@@ -219,12 +217,6 @@ class ReportWriter:
             except (ReportError, OSError) as exc:
                 # Every other file is still written; the failure is shown, never swallowed.
                 self._say(f"meanband: could not write the {what}: {exc}", red=True, bold=True)
-
-    @pytest.hookimpl(trylast=True)
-    def pytest_sessionfinish(self, session: pytest.Session) -> None:
-        # A shard that ran no checks still leaves its (empty) report, so a merge finds every file.
-        if not self.finished:
-            self.pytest_meanband_session_finish(self.config, [])
 
     def _write_report(self, rows: list[dict]) -> None:
         from meanband import report_json
