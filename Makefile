@@ -21,8 +21,10 @@ lint: $(STAMP)
 	$(VENV)/bin/ruff check plugin tests benchmarks sample_suites studies
 	$(VENV)/bin/mypy
 
+# The latency and bench suites, then the trial-tuning loop on sample_suites/tuning.
 demo: $(STAMP)
-	$(HERMETIC) $(PY) -m pytest -p meanband -p no:cacheprovider sample_suites
+	$(HERMETIC) $(PY) -m pytest -p meanband -p no:cacheprovider sample_suites --ignore=sample_suites/tuning
+	$(MAKE) --no-print-directory tuning-demo
 
 pictures: $(STAMP)
 	$(PY) docs/pictures.py
