@@ -234,7 +234,9 @@ def suggestion_for_row(
     return suggest_trials(
         verdict=decision["verdict"],
         mean=float(interval["mean"]),
-        sd=float(interval["sd"]),
+        # The spread the decision planned with (bands.decide): sem * sqrt(n) is the sd for the
+        # t interval and the long-run spread for batch means, so both counts agree.
+        sd=float(interval["sem"]) * math.sqrt(int(interval["n"])),
         n=int(interval["n"]),
         low=float(band["low"]),
         high=float(band["high"]),
