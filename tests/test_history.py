@@ -14,8 +14,8 @@ from typing import Any
 
 import numpy as np
 import pytest
-from meanband import history
-from meanband.history import HistoryStore, StoreError, describe_environment
+from meanband.store import history
+from meanband.store.history import HistoryStore, StoreError, describe_environment
 
 RNG = np.random.default_rng(20261206)
 ENV = {"commit": "0123456789abcdef", "branch": "main", "dirty": False, "host": "bench-7",
@@ -251,7 +251,7 @@ _SLOW_SAVER = textwrap.dedent(
     """
     import sys, time
     sys.path.insert(0, {plugin!r})
-    from meanband.history import HistoryStore
+    from meanband.store.history import HistoryStore
 
     path, label, pause, go = sys.argv[1], sys.argv[2], float(sys.argv[3]), sys.argv[4]
     env = {{"host": "child", "machine": "m", "system": "s", "python": "p", "meanband": "0"}}

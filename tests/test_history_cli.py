@@ -16,7 +16,7 @@ from typing import Any
 import numpy as np
 import pytest
 from meanband.cli import main
-from meanband.history import HistoryStore
+from meanband.store.history import HistoryStore
 from scipy import stats
 
 ENV = {"commit": "feedfacecafe0123", "branch": "main", "dirty": True, "host": "bench-7",

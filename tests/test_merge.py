@@ -4,9 +4,9 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from meanband import report_json
-from meanband.merge import MergeConflict, merge_reports
-from meanband.report_json import ReportError
+from meanband.report.merge import MergeConflict, merge_reports
+from meanband.store import report_json
+from meanband.store.report_json import ReportError
 from report_rows import make_row, sample_rows
 
 

@@ -11,8 +11,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from meanband import TrialError, mean_interval
-from meanband.interval import METHODS
-from meanband.methods import (
+from meanband.stats.interval import METHODS
+from meanband.stats.methods import (
     BOOTSTRAP_SEED,
     batch_count,
     bca_mean_bounds,

@@ -6,7 +6,7 @@ import math
 
 import numpy as np
 import pytest
-from meanband.regression import (
+from meanband.stats.regression import (
     CANNOT_TELL,
     NO_REGRESSION,
     REGRESSED,

@@ -9,8 +9,8 @@ import jsonschema
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
-from meanband import report_json
-from meanband.report_json import ReportError
+from meanband.store import report_json
+from meanband.store.report_json import ReportError
 from report_rows import make_row, same, sample_rows
 
 CORE_ROW_KEYS = ["nodeid", "series", "kind", "unit", "source", "values", "warmup", "decision",

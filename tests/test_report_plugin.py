@@ -7,8 +7,8 @@ import json
 import jsonschema
 import numpy as np
 import pytest
-from meanband import report_json
 from meanband.cli import main as console
+from meanband.store import report_json
 
 pytest.importorskip("matplotlib")
 # Loaded once here: in-process inner runs would otherwise import matplotlib's C parts again.

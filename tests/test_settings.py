@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import pytest
-from meanband.settings import DEFAULTS, SettingError, marker_settings, resolve, validate
+from meanband.record.settings import DEFAULTS, SettingError, marker_settings, resolve, validate
 
 
 def test_defaults_are_the_documented_ones():

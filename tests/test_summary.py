@@ -3,8 +3,8 @@
 from __future__ import annotations
 
 import numpy as np
-from meanband.bands import decide, make_band
-from meanband.summary import format_summary, totals_line
+from meanband.report.terminal import format_summary, totals_line
+from meanband.stats.bands import decide, make_band
 
 
 def _row(nodeid, values, band, unit=None, series="", notes=()):

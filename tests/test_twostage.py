@@ -6,9 +6,9 @@ import math
 
 import numpy as np
 import pytest
-from meanband.bands import Verdict, make_band
 from meanband.errors import TrialError
-from meanband.twostage import (
+from meanband.stats.bands import Verdict, make_band
+from meanband.stats.twostage import (
     MIN_SECOND,
     check_max_n,
     decide_two_stage,

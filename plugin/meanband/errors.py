@@ -5,7 +5,7 @@ from __future__ import annotations
 from typing import TYPE_CHECKING, Any
 
 if TYPE_CHECKING:
-    from meanband.bands import Decision
+    from meanband.stats.bands import Decision
 
 __all__ = ["BandViolation", "TrialError"]
 
@@ -19,5 +19,5 @@ class BandViolation(AssertionError):
 
     def __init__(self, message: str, decision: Decision | Any = None) -> None:
         super().__init__(message)
-        #: The :class:`~meanband.bands.Decision` that failed.
+        #: The :class:`~meanband.stats.bands.Decision` that failed.
         self.decision = decision

@@ -9,7 +9,7 @@ from collections.abc import Sequence
 
 #: Modules that each expose ``register(subparsers)``; a missing one is skipped. Each subcommand
 #: sets ``handler=function(args) -> int`` with ``set_defaults``.
-SUBCOMMAND_MODULES = ("meanband.history_cli", "meanband.plan_cli", "meanband.report_cli")
+SUBCOMMAND_MODULES = ("meanband.cli.history", "meanband.cli.plan", "meanband.cli.report")
 
 
 def build_parser() -> argparse.ArgumentParser:

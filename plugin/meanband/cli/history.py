@@ -13,7 +13,7 @@ from pathlib import Path
 from typing import Any
 
 from meanband.errors import TrialError
-from meanband.history import DEFAULT_STORE, HistoryStore, RunInfo, StoredCheck, StoreError
+from meanband.store.history import DEFAULT_STORE, HistoryStore, RunInfo, StoredCheck, StoreError
 from meanband.units import format_number, format_value
 
 __all__ = ["register"]
@@ -149,8 +149,8 @@ def _show(args: argparse.Namespace) -> int:
 
 
 def _compare(args: argparse.Namespace) -> int:
-    from meanband.ratio import parse_fraction
-    from meanband.regression import (
+    from meanband.stats.ratio import parse_fraction
+    from meanband.stats.regression import (
         REGRESSED,
         Limits,
         compare_samples,
@@ -158,7 +158,7 @@ def _compare(args: argparse.Namespace) -> int:
         format_ratio,
         is_timing,
     )
-    from meanband.sample import check_confidence
+    from meanband.stats.sample import check_confidence
 
     limits = Limits(
         max_increase=parse_fraction(args.max_increase, "--max-increase"),

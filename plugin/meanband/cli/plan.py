@@ -59,8 +59,8 @@ def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) ->
 
 def _guarded(command: Callable[[argparse.Namespace], int]) -> Callable[[argparse.Namespace], int]:
     def run(args: argparse.Namespace) -> int:
-        from meanband.history import StoreError
-        from meanband.report_json import ReportError
+        from meanband.store.history import StoreError
+        from meanband.store.report_json import ReportError
 
         try:
             return command(args)
@@ -80,7 +80,7 @@ def rows_from_store(path: str | Path, run: str | None = None) -> tuple[list[Row]
     Each stored check's ``row`` holds the row without its trials, which come back from the
     store's float64 column as ``values``.
     """
-    from meanband.history import HistoryStore
+    from meanband.store.history import HistoryStore
 
     if not Path(path).exists():
         raise SourceError(
@@ -107,8 +107,7 @@ def rows_from_file(path: str | Path, run: str | None = None) -> tuple[list[Row],
     ``report_json``. Rows of several runs (a merged report) carry ``"run"``; the last run is
     taken unless ``run`` names another (its index).
     """
-    from meanband import report_json
-
+    from meanband.store import report_json
     try:
         document = json.loads(Path(path).read_text(encoding="utf-8"))
     except FileNotFoundError:
@@ -146,7 +145,7 @@ def load_rows(args: argparse.Namespace) -> tuple[list[Row], str]:
     """Rows chosen by the command line: ``--rows FILE`` or the history store."""
     if args.rows is not None:
         return rows_from_file(args.rows, args.run)
-    from meanband.history import DEFAULT_STORE
+    from meanband.store.history import DEFAULT_STORE
 
     return rows_from_store(args.store or DEFAULT_STORE, args.run)
 
@@ -155,9 +154,9 @@ def load_rows(args: argparse.Namespace) -> tuple[list[Row], str]:
 
 
 def _plan(args: argparse.Namespace) -> int:
-    from meanband.planfile import entries_from_rows, write_plan
-    from meanband.suggest import check_power, suggestion_for_row
-    from meanband.summary import row_name
+    from meanband.report.terminal import row_name
+    from meanband.stats.suggest import check_power, suggestion_for_row
+    from meanband.store.planfile import entries_from_rows, write_plan
 
     power = None if args.power is None else check_power(args.power, "--power")
     rows, where = load_rows(args)

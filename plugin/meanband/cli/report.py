@@ -57,8 +57,8 @@ def register(subparsers: Any) -> None:
 
 
 def _formats(text: str) -> tuple[str, ...]:
-    from meanband.plots import check_formats
-    from meanband.report_json import ReportError
+    from meanband.report.plots import check_formats
+    from meanband.store.report_json import ReportError
 
     try:
         return check_formats(text)
@@ -74,8 +74,8 @@ def _fail(command: str, message: object, err: TextIO) -> int:
 def run_merge(args: argparse.Namespace, out: TextIO | None = None,
               err: TextIO | None = None) -> int:
     """``meanband merge A.json B.json ... -o ALL.json [--pool]``."""
-    from meanband.merge import merge_reports
-    from meanband.report_json import ReportError, load_report, write_report
+    from meanband.report.merge import merge_reports
+    from meanband.store.report_json import ReportError, load_report, write_report
 
     out, err = out or sys.stdout, err or sys.stderr
     try:
@@ -95,10 +95,10 @@ def run_merge(args: argparse.Namespace, out: TextIO | None = None,
 def run_report(args: argparse.Namespace, out: TextIO | None = None,
                err: TextIO | None = None) -> int:
     """``meanband report ALL.json [-v] [--markdown PATH] [--plots DIR]``."""
-    from meanband import markdown
-    from meanband.metrology_plugin import metrology_lines
-    from meanband.report_json import ReportError, load_report
-    from meanband.summary import format_summary
+    from meanband.report import markdown
+    from meanband.report.metrology import metrology_lines
+    from meanband.report.terminal import format_summary
+    from meanband.store.report_json import ReportError, load_report
 
     out, err = out or sys.stdout, err or sys.stderr
     try:
@@ -121,8 +121,7 @@ def run_report(args: argparse.Namespace, out: TextIO | None = None,
                 path = markdown.append_job_summary(text, variable)
                 print(f"appended the summary to {path} (from {variable})", file=out)
         if args.plots:
-            from meanband import plots
-
+            from meanband.report import plots
             result = plots.write_plots(rows, args.plots, formats=args.plot_format,
                                        checks=args.plot_checks)
             print(f"wrote {len(result.written)} plot files to {args.plots}", file=out)

@@ -18,10 +18,10 @@ from typing import Any
 
 import numpy as np
 
-from meanband.bands import Verdict
-from meanband.clock import get_clock
+from meanband.collect.clock import get_clock
 from meanband.errors import TrialError
-from meanband.ratio import RatioInterval, judge_ratio, paired_ratio_interval
+from meanband.stats.bands import Verdict
+from meanband.stats.ratio import RatioInterval, judge_ratio, paired_ratio_interval
 
 __all__ = ["PairedTimes", "RatioCheck", "check_ratio", "compare_callables", "time_pairs"]
 
@@ -75,7 +75,7 @@ def time_pairs(
     cannot throw a pair off (common practice in timing, from memory). Calls are batched (the
     same batch size for both) so each measurement lasts at least ``MIN_MEASUREMENT``; ``warmup``
     pairs run first and are dropped. Garbage collection is off while timing. ``clock`` reads
-    integer nanoseconds; by default the wall clock of ``meanband.clock``.
+    integer nanoseconds; by default the wall clock of ``meanband.collect.clock``.
     """
     if clock is None:
         clock = get_clock("wall").read
@@ -179,8 +179,8 @@ def compare_callables(
 ) -> tuple[RatioCheck, dict[str, Any], str]:
     """Time ``new`` against ``old`` and judge the ratio; return the check, its result row
     (builtin types only) and the message a failure should carry."""
-    from meanband.diagnostics import diagnose
-    from meanband.planning import trials_needed
+    from meanband.stats.diagnostics import diagnose
+    from meanband.stats.planning import trials_needed
 
     # Validate the limits before spending time on the callables.
     check_ratio(np.ones(2), np.ones(2), at_most=at_most, at_least=at_least)

@@ -15,9 +15,9 @@ from typing import Any
 
 import numpy as np
 
-from meanband.clock import Clock, ClockInfo, get_clock, measure
-from meanband.diagnostics import DriftTest, drift_test
+from meanband.collect.clock import Clock, ClockInfo, get_clock, measure
 from meanband.errors import TrialError
+from meanband.stats.diagnostics import DriftTest, drift_test
 from meanband.units import SECONDS, format_value, parse_duration
 
 __all__ = [

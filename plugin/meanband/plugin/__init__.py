@@ -8,16 +8,16 @@ from typing import TYPE_CHECKING, Any
 
 import pytest
 
-from meanband.settings import SettingError, marker_settings, resolve, validate
+from meanband.record.settings import SettingError, marker_settings, resolve, validate
 
 if TYPE_CHECKING:
-    from meanband.recorder import Recorder
-    from meanband.settings import Settings
+    from meanband.record.recorder import Recorder
+    from meanband.record.settings import Settings
 
 #: Feature plugins, each with its own options in the ``meanband`` group.
 pytest_plugins: list[str] = [
-    "meanband.history_plugin", "meanband.report_plugin", "meanband.plan_plugin",
-    "meanband.metrology_plugin", "meanband.timing_plugin",
+    "meanband.plugin.history", "meanband.plugin.reports", "meanband.plugin.plan",
+    "meanband.report.metrology", "meanband.plugin.timing",
 ]
 
 RECORDER_KEY = pytest.StashKey["Recorder"]()
@@ -47,8 +47,7 @@ _SETTING_OPTIONS = (
 
 
 def pytest_addhooks(pluginmanager: pytest.PytestPluginManager) -> None:
-    from meanband import hookspecs
-
+    from meanband.plugin import hookspecs
     pluginmanager.add_hookspecs(hookspecs)
 
 
@@ -92,8 +91,8 @@ def _config_layers(config: pytest.Config) -> list[tuple[str, dict[str, Any]]]:
 @pytest.fixture
 def trials(request: pytest.FixtureRequest) -> Recorder:
     """Collect repeated trials and check that the interval of their mean lies in a band."""
-    from meanband.recorder import Recorder
-    from meanband.timing_plugin import timing_session
+    from meanband.plugin.timing import timing_session
+    from meanband.record.recorder import Recorder
 
     item = request.node
     config = request.config
@@ -183,7 +182,7 @@ class SummaryPlugin:
     def pytest_terminal_summary(self, terminalreporter: pytest.TerminalReporter) -> None:
         if not self.rows:
             return
-        from meanband.summary import format_summary
+        from meanband.report.terminal import format_summary
 
         verbosity = self.config.get_verbosity()
         lines = format_summary(self.rows, verbosity)

@@ -11,8 +11,8 @@ from typing import TYPE_CHECKING, Any
 import pytest
 
 if TYPE_CHECKING:
-    from meanband.history import StoredCheck
-    from meanband.regression import Limits
+    from meanband.stats.regression import Limits
+    from meanband.store.history import StoredCheck
 
 HISTORY_PLUGIN_NAME = "meanband-history"
 
@@ -58,9 +58,9 @@ def pytest_configure(config: pytest.Config) -> None:
     if record is None and baseline is None:
         return
     from meanband.errors import TrialError
-    from meanband.history import StoreError
-    from meanband.ratio import parse_fraction
-    from meanband.regression import DEFAULT_MAX_CHANGE, DEFAULT_MAX_INCREASE, Limits
+    from meanband.stats.ratio import parse_fraction
+    from meanband.stats.regression import DEFAULT_MAX_CHANGE, DEFAULT_MAX_INCREASE, Limits
+    from meanband.store.history import StoreError
 
     args = [str(a) for a in config.invocation_params.args]
     for option, value in (("--meanband-record", record), ("--meanband-baseline", baseline)):
@@ -102,7 +102,7 @@ def _fraction(config: pytest.Config, name: str, default: float, parse: Any) -> f
 
 def _timeout(config: pytest.Config) -> float:
     from meanband.errors import TrialError
-    from meanband.history import DEFAULT_TIMEOUT
+    from meanband.store.history import DEFAULT_TIMEOUT
 
     given = config.getoption("meanband_store_timeout")
     source = "--meanband-store-timeout"
@@ -123,7 +123,7 @@ def _timeout(config: pytest.Config) -> float:
 def _store_path(config: pytest.Config) -> Path:
     """Command line (relative to the invocation directory) > ini (relative to the rootdir) >
     default under the rootdir."""
-    from meanband.history import DEFAULT_STORE
+    from meanband.store.history import DEFAULT_STORE
 
     given = config.getoption("meanband_store")
     if given:
@@ -155,7 +155,7 @@ class HistoryPlugin:
         self._environment: dict[str, Any] | None = None
 
     def load_baseline(self, ref: str) -> None:
-        from meanband.history import HistoryStore
+        from meanband.store.history import HistoryStore
 
         with HistoryStore(self.store, create=False, timeout=self.timeout) as store:
             self.baseline_run = store.find_run(ref)
@@ -164,7 +164,7 @@ class HistoryPlugin:
     def environment(self) -> dict[str, Any]:
         """This run's commit, machine and Python, looked up once."""
         if self._environment is None:
-            from meanband.history import describe_environment
+            from meanband.store.history import describe_environment
 
             self._environment = describe_environment(self.config.rootpath)
         return self._environment
@@ -178,7 +178,7 @@ class HistoryPlugin:
 
     def _compare(self, row: dict[str, Any]) -> dict[str, Any]:
         from meanband.errors import TrialError
-        from meanband.regression import NO_BASELINE, compare_samples, is_timing
+        from meanband.stats.regression import NO_BASELINE, compare_samples, is_timing
 
         run = self.baseline_run
         about = {"run": run.id, "label": run.label}
@@ -208,7 +208,7 @@ class HistoryPlugin:
     def pytest_meanband_session_finish(
         self, config: pytest.Config, rows: list[dict[str, Any]]
     ) -> None:
-        from meanband.regression import REGRESSED
+        from meanband.stats.regression import REGRESSED
 
         failed = any((r.get("baseline") or {}).get("status") == REGRESSED for r in rows)
         status = self.session.exitstatus if self.session is not None else pytest.ExitCode.OK
@@ -225,7 +225,7 @@ class HistoryPlugin:
             self.session.exitstatus = pytest.ExitCode.TESTS_FAILED
 
     def _record(self, rows: list[dict[str, Any]]) -> bool:
-        from meanband.history import HistoryStore, StoreError
+        from meanband.store.history import HistoryStore, StoreError
 
         environment = self.environment()
         label = self.record or environment.get("branch") or ""
@@ -267,14 +267,14 @@ class HistoryPlugin:
 
 def baseline_lines(run: Any, rows: list[dict[str, Any]]) -> list[str]:
     """The baseline section of the summary: one line per compared check, then the verdicts."""
-    from meanband.regression import (
+    from meanband.report.terminal import row_name
+    from meanband.stats.regression import (
         CANNOT_TELL,
         NO_BASELINE,
         REGRESSED,
         format_limit,
         format_ratio,
     )
-    from meanband.summary import row_name
     from meanband.units import format_value
 
     label = f" '{run.label}'" if run.label else ""

@@ -8,7 +8,7 @@ from typing import TYPE_CHECKING, Any
 import pytest
 
 if TYPE_CHECKING:
-    from meanband.planfile import Plan
+    from meanband.store.planfile import Plan
 
 PLAN_PLUGIN_NAME = "meanband-plan"
 _COLLECTED_KEY = "meanband_collected"  # key in an xdist worker's workeroutput
@@ -42,7 +42,7 @@ def pytest_configure(config: pytest.Config) -> None:
         if source:
             source = str(Path(str(config.rootpath), source))
     if source:
-        from meanband.planfile import PlanError, read_plan
+        from meanband.store.planfile import PlanError, read_plan
 
         try:
             plan = read_plan(source)
@@ -120,7 +120,7 @@ class PlanPlugin:
     # -- suggestions and the written plan ----------------------------------------------------
 
     def pytest_meanband_result(self, config: pytest.Config, row: dict[str, Any]) -> None:
-        from meanband.suggest import suggestion_for_row
+        from meanband.stats.suggest import suggestion_for_row
 
         suggestion = suggestion_for_row(row)
         if suggestion is None:
@@ -137,7 +137,7 @@ class PlanPlugin:
         target = self.config.getoption("meanband_write_plan")
         if not target or self.written is not None or hasattr(self.config, "workerinput"):
             return
-        from meanband.planfile import PlanError, entries_from_rows, read_plan, write_plan
+        from meanband.store.planfile import PlanError, entries_from_rows, read_plan, write_plan
 
         path = Path(target)
         entries = entries_from_rows(rows)

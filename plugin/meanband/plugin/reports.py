@@ -111,8 +111,8 @@ def _ini_bool(config: pytest.Config, name: str) -> bool:
 
 def resolve(config: pytest.Config) -> ReportSettings:
     """Read the report options; a bad value is a usage error naming the option or ini key."""
-    from meanband.plots import check_formats
-    from meanband.report_json import ReportError
+    from meanband.report.plots import check_formats
+    from meanband.store.report_json import ReportError
 
     trials_option = config.getoption("meanband_report_trials")
     trials = (trials_option == "yes") if trials_option else _ini_bool(
@@ -156,7 +156,7 @@ def pytest_configure(config: pytest.Config) -> None:
     if not settings.wanted or hasattr(config, "workerinput"):
         return
     if settings.plots is not None:
-        from meanband.plots import PlotsUnavailable, require_matplotlib
+        from meanband.report.plots import PlotsUnavailable, require_matplotlib
 
         try:  # fail before the suite runs, not after
             require_matplotlib()
@@ -201,7 +201,7 @@ class ReportWriter:
     def pytest_meanband_session_finish(self, config: pytest.Config, rows: list[dict]) -> None:
         if hasattr(config, "workerinput"):
             return
-        from meanband.report_json import ReportError
+        from meanband.store.report_json import ReportError
 
         s = self.settings
         steps = []
@@ -219,8 +219,7 @@ class ReportWriter:
                 self._say(f"meanband: could not write the {what}: {exc}", red=True, bold=True)
 
     def _write_report(self, rows: list[dict]) -> None:
-        from meanband import report_json
-
+        from meanband.store import report_json
         report = report_json.build_report(
             rows, environment=report_json.environment(),
             configuration=configuration(self.config), include_trials=self.settings.trials,
@@ -229,8 +228,8 @@ class ReportWriter:
         self._say(f"meanband: wrote JSON report {_shown(path)} ({len(rows)} rows)")
 
     def _write_markdown(self, rows: list[dict]) -> None:
-        from meanband import markdown
-        from meanband.report_json import ReportError
+        from meanband.report import markdown
+        from meanband.store.report_json import ReportError
 
         text = markdown.format_markdown(rows)
         if self.settings.markdown is not None:
@@ -246,8 +245,7 @@ class ReportWriter:
                           f"(from {self.settings.job_summary_var})")
 
     def _write_plots(self, rows: list[dict]) -> None:
-        from meanband import plots
-
+        from meanband.report import plots
         result = plots.write_plots(rows, self.settings.plots,  # type: ignore[arg-type]
                                    formats=self.settings.plot_formats,
                                    checks=self.settings.plot_checks)

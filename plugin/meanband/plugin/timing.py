@@ -7,7 +7,7 @@ from typing import TYPE_CHECKING, Any
 import pytest
 
 if TYPE_CHECKING:
-    from meanband.clock import Clock, ClockInfo
+    from meanband.collect.clock import Clock, ClockInfo
 
 TIMING_SESSION_KEY = pytest.StashKey["TimingSession"]()
 
@@ -26,7 +26,7 @@ class TimingSession:
         """The clock's step and read cost, measured on first use and then reused."""
         info = self._infos.get(clock)
         if info is None:
-            from meanband.clock import measure
+            from meanband.collect.clock import measure
 
             info = self._infos[clock] = measure(clock)
         return info
@@ -68,7 +68,7 @@ def pytest_meanband_summary_lines(config: pytest.Config, rows: list[Row]) -> lis
 
 def timing_lines(rows: list[Row]) -> list[str]:
     """The timing section of the verbose summary, from rows alone."""
-    from meanband.summary import row_name
+    from meanband.report.terminal import row_name
     from meanband.units import SECONDS, format_value
 
     # Rows the engine timed; other features (e.g. in-run comparisons) keep their own details.

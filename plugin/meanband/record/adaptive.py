@@ -8,11 +8,11 @@ from typing import Any
 
 import numpy as np
 
-from meanband.bands import Band, Decision, Edge, Tolerance, make_band
 from meanband.errors import TrialError
-from meanband.explain import assumption_notes
-from meanband.settings import Settings
-from meanband.twostage import (
+from meanband.record.settings import Settings
+from meanband.stats.bands import Band, Decision, Edge, Tolerance, make_band
+from meanband.stats.notes import assumption_notes
+from meanband.stats.twostage import (
     DEFAULT_MAX_N,
     DEFAULT_PILOT,
     TwoStageRun,

@@ -6,11 +6,11 @@ from collections.abc import Iterable
 
 import numpy as np
 
-from meanband.bands import Decision, Edge, Tolerance, decide, make_band
 from meanband.errors import BandViolation
-from meanband.explain import assumption_notes, describe
-from meanband.rules import GUARDED
-from meanband.uncertainty import InstrumentSpec
+from meanband.stats.bands import Decision, Edge, Tolerance, decide, make_band
+from meanband.stats.notes import assumption_notes, describe
+from meanband.stats.rules import GUARDED
+from meanband.stats.uncertainty import InstrumentSpec
 
 __all__ = ["assert_mean_within"]
 
@@ -34,7 +34,7 @@ def assert_mean_within(
     that gives n, mean, interval, band, verdict and diagnostics.
 
     ``instrument_uncertainty`` (standard uncertainty in the trials' unit, ``(u, df)`` or an
-    :class:`~meanband.uncertainty.InstrumentUncertainty`) widens the interval to mean +/- U;
+    :class:`~meanband.stats.uncertainty.InstrumentUncertainty`) widens the interval to mean +/- U;
     ``rule="simple"`` compares the mean alone with the band (see :func:`meanband.decide`).
     """
     band = make_band(low, high, center=center, tolerance=tolerance, unit=unit)

@@ -8,17 +8,17 @@ from typing import Any
 
 import numpy as np
 
-from meanband import adaptive
-from meanband.bands import Band, Decision, Edge, Tolerance, decide, make_band
-from meanband.clock import get_clock
+from meanband.collect.clock import get_clock
+from meanband.collect.timing import time_calls
 from meanband.errors import BandViolation, TrialError
-from meanband.explain import assumption_notes, describe
-from meanband.interval import Interval, mean_interval
-from meanband.rules import GUARDED
-from meanband.sample import as_sample
-from meanband.settings import Settings
-from meanband.timing import time_calls
-from meanband.uncertainty import InstrumentSpec
+from meanband.record import adaptive
+from meanband.record.settings import Settings
+from meanband.stats.bands import Band, Decision, Edge, Tolerance, decide, make_band
+from meanband.stats.interval import Interval, mean_interval
+from meanband.stats.notes import assumption_notes, describe
+from meanband.stats.rules import GUARDED
+from meanband.stats.sample import as_sample
+from meanband.stats.uncertainty import InstrumentSpec
 from meanband.units import SECONDS
 
 __all__ = ["Recorder", "Series"]
@@ -164,7 +164,7 @@ class Series:
         ``column`` is a header name or a 0-based index. A bad row raises TrialError with its
         line number, and the series keeps exactly what it held before.
         """
-        from meanband.benchlog import read_column
+        from meanband.collect.benchlog import read_column
 
         values = read_column(path, column, delimiter=delimiter, header=header)
         self.extend(values, unit=unit)
@@ -337,9 +337,9 @@ class Recorder(Series):
         ``trials.compare(parse_v2, parse_v1, at_most=1.05)``: "v2 is at most 5% slower".
 
         Drift of the machine hits both sides of a pair alike and cancels in the ratio, which
-        makes this the robust gate on a noisy CI machine (see ``meanband.comparison``).
+        makes this the robust gate on a noisy CI machine (see ``meanband.collect.paired``).
         """
-        from meanband.comparison import compare_callables
+        from meanband.collect.paired import compare_callables
 
         settings = self.settings.merged(n=n, confidence=confidence)
         result, row, message = compare_callables(

@@ -98,7 +98,7 @@ def _warmup(value: Any) -> int | str:
 
 
 def _method(value: Any) -> str:
-    from meanband.interval import METHODS
+    from meanband.stats.interval import METHODS
 
     if value not in METHODS:
         raise ValueError(f"choose one of {', '.join(sorted(METHODS))}")
@@ -132,7 +132,7 @@ def _is_number(text: str) -> bool:
 
 
 def _clock(value: Any) -> str:
-    from meanband.clock import CLOCKS
+    from meanband.collect.clock import CLOCKS
 
     if value not in CLOCKS:
         raise ValueError(f"choose one of {', '.join(sorted(CLOCKS))}")

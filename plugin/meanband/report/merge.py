@@ -6,11 +6,11 @@ import math
 from collections.abc import Mapping, Sequence
 from typing import Any
 
-from meanband.report_json import ReportError, assemble
+from meanband.store.report_json import ReportError, assemble
 
 __all__ = ["MergeConflict", "merge_reports", "pool_rows"]
 
-#: Note codes that :func:`meanband.explain.assumption_notes` writes; a pool recomputes them.
+#: Note codes that :func:`meanband.stats.notes.assumption_notes` writes; a pool recomputes them.
 _ASSUMPTION_CODES = frozenset({
     "few-trials", "zero-spread", "not-normal", "autocorrelated", "not-normal-harmless",
     "outliers", "bimodal", "log-not-normal",
@@ -97,8 +97,8 @@ def pool_rows(found: Sequence[tuple[str, Mapping[str, Any]]], *, label: str = ""
     features (a baseline comparison, say) were computed from one shard's trials alone: they are
     left out and named in the row's ``pooled.dropped`` and in a note.
     """
-    from meanband.bands import Band, decide
-    from meanband.explain import assumption_notes
+    from meanband.stats.bands import Band, decide
+    from meanband.stats.notes import assumption_notes
 
     first_name, first = found[0]
     where = label or first["nodeid"]

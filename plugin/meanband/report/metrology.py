@@ -5,8 +5,8 @@ from __future__ import annotations
 from collections.abc import Sequence
 from typing import TYPE_CHECKING, Any
 
-from meanband.rules import format_probability
-from meanband.summary import row_name
+from meanband.report.terminal import row_name
+from meanband.stats.rules import format_probability
 from meanband.units import SECONDS, format_value, significant_digits, time_scale
 
 if TYPE_CHECKING:

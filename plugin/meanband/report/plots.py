@@ -12,7 +12,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from meanband.report_json import ReportError
+from meanband.store.report_json import ReportError
 from meanband.units import SECONDS, format_number, time_scale
 
 __all__ = [

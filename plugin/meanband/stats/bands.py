@@ -10,13 +10,13 @@ from typing import Any
 
 import numpy as np
 
-from meanband.diagnostics import Diagnostics, diagnose
 from meanband.errors import TrialError
-from meanband.interval import Interval, mean_interval
-from meanband.planning import trials_needed
-from meanband.rules import GUARDED, RuleOutcome, apply_rule, check_rule
-from meanband.sample import as_sample, check_confidence
-from meanband.uncertainty import (
+from meanband.stats.diagnostics import Diagnostics, diagnose
+from meanband.stats.interval import Interval, mean_interval
+from meanband.stats.planning import trials_needed
+from meanband.stats.rules import GUARDED, RuleOutcome, apply_rule, check_rule
+from meanband.stats.sample import as_sample, check_confidence
+from meanband.stats.uncertainty import (
     InstrumentSpec,
     UncertaintyBudget,
     as_instrument_uncertainty,
@@ -195,7 +195,7 @@ def decide(
     (ILAC-G8:2019; JCGM 106:2012, clause 8).
 
     ``instrument_uncertainty`` (a standard uncertainty in the trials' unit, ``(u, df)`` or an
-    :class:`~meanband.uncertainty.InstrumentUncertainty`) is combined with the Type A
+    :class:`~meanband.stats.uncertainty.InstrumentUncertainty`) is combined with the Type A
     uncertainty of the mean (JCGM 100:2008): the interval becomes mean +/- U. ``rule="simple"``
     compares the mean alone with the band (simple acceptance, no UNDECIDED).
     """

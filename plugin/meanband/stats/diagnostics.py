@@ -10,7 +10,7 @@ from typing import Any
 import numpy as np
 
 from meanband.errors import TrialError
-from meanband.sample import as_sample, deviations, sum_of_products
+from meanband.stats.sample import as_sample, deviations, sum_of_products
 
 __all__ = [
     "BIMODAL_THRESHOLD",

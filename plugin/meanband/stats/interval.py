@@ -10,7 +10,7 @@ from typing import Any
 import numpy as np
 
 from meanband.errors import TrialError
-from meanband.sample import as_sample, check_confidence, location_scale
+from meanband.stats.sample import as_sample, check_confidence, location_scale
 
 __all__ = ["METHODS", "SIDES", "Interval", "critical_t", "mean_interval", "t_interval"]
 
@@ -119,4 +119,4 @@ def _check_side(side: str) -> None:
 
 
 # The other methods register themselves in METHODS; imported last because they use this module.
-from meanband import methods as _methods  # noqa: E402, F401
+from meanband.stats import methods as _methods  # noqa: E402, F401

@@ -2,7 +2,7 @@
 
 Each method takes validated trials, a confidence and a side, and returns an ``Interval`` whose
 ``estimand`` says what it bounds: the arithmetic ``"mean"`` or the ``"geometric mean"``.
-Importing this module registers the methods in ``meanband.interval.METHODS``.
+Importing this module registers the methods in ``meanband.stats.interval.METHODS``.
 """
 
 from __future__ import annotations
@@ -13,8 +13,8 @@ from typing import Any
 import numpy as np
 
 from meanband.errors import TrialError
-from meanband.interval import METHODS, Interval, critical_t
-from meanband.sample import location_scale
+from meanband.stats.interval import METHODS, Interval, critical_t
+from meanband.stats.sample import location_scale
 
 __all__ = [
     "BOOTSTRAP_RESAMPLES",

@@ -6,9 +6,9 @@ import math
 from collections.abc import Collection
 from statistics import NormalDist
 
-from meanband.bands import Band, Decision, Verdict
-from meanband.diagnostics import BIMODAL_THRESHOLD, Diagnostics
-from meanband.rules import format_probability
+from meanband.stats.bands import Band, Decision, Verdict
+from meanband.stats.diagnostics import BIMODAL_THRESHOLD, Diagnostics
+from meanband.stats.rules import format_probability
 from meanband.units import SECONDS, format_value, significant_digits, time_scale
 
 __all__ = [
@@ -32,7 +32,7 @@ def format_interval(
 
 def format_band(band: Band, digits: int = 4) -> str:
     """A band the way a user wrote it: ``<= 3 ms``, ``>= 10 V`` or ``[84.6, 85.4] degC``."""
-    from meanband.summary import format_band as format_edges
+    from meanband.report.terminal import format_band as format_edges
 
     return format_edges(band.low, band.high, band.unit, digits)
 

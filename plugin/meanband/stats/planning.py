@@ -7,7 +7,7 @@ import math
 import numpy as np
 
 from meanband.errors import TrialError
-from meanband.sample import check_confidence
+from meanband.stats.sample import check_confidence
 
 __all__ = ["power_against_edge", "trials_needed"]
 

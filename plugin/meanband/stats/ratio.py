@@ -10,9 +10,9 @@ from typing import Any
 
 import numpy as np
 
-from meanband.bands import Verdict
 from meanband.errors import TrialError
-from meanband.sample import as_sample, check_confidence, location_scale
+from meanband.stats.bands import Verdict
+from meanband.stats.sample import as_sample, check_confidence, location_scale
 
 __all__ = [
     "RATIO_METHODS",

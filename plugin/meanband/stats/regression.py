@@ -9,8 +9,8 @@ from typing import Any
 
 import numpy as np
 
-from meanband.bands import Verdict
-from meanband.ratio import RatioInterval, judge_ratio, ratio_interval
+from meanband.stats.bands import Verdict
+from meanband.stats.ratio import RatioInterval, judge_ratio, ratio_interval
 from meanband.units import SECONDS
 
 __all__ = [
@@ -118,7 +118,7 @@ def _trials_to_decide(
     mean of n trials with sd sqrt(s_c^2 + s_b^2); the count then follows from the noncentral t
     power of planning.trials_needed.
     """
-    from meanband.planning import trials_needed
+    from meanband.stats.planning import trials_needed
 
     if not interval.bounded:
         return None

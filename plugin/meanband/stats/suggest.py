@@ -8,8 +8,8 @@ from dataclasses import dataclass
 from typing import Any
 
 from meanband.errors import TrialError
-from meanband.planning import power_against_edge, trials_needed
-from meanband.sample import check_confidence
+from meanband.stats.planning import power_against_edge, trials_needed
+from meanband.stats.sample import check_confidence
 from meanband.units import SECONDS, format_value
 
 __all__ = [

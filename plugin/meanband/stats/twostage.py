@@ -41,11 +41,11 @@ from typing import Any
 
 import numpy as np
 
-from meanband.bands import Band, Decision, Verdict
-from meanband.diagnostics import diagnose
 from meanband.errors import TrialError
-from meanband.interval import Interval
-from meanband.sample import as_sample, check_confidence, location_scale
+from meanband.stats.bands import Band, Decision, Verdict
+from meanband.stats.diagnostics import diagnose
+from meanband.stats.interval import Interval
+from meanband.stats.sample import as_sample, check_confidence, location_scale
 
 __all__ = [
     "DEFAULT_MAX_N",

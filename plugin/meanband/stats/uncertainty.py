@@ -13,8 +13,8 @@ from typing import Any
 import numpy as np
 
 from meanband.errors import TrialError
-from meanband.interval import SIDES, Interval, critical_t
-from meanband.sample import as_sample, check_confidence, location_scale
+from meanband.stats.interval import SIDES, Interval, critical_t
+from meanband.stats.sample import as_sample, check_confidence, location_scale
 
 __all__ = [
     "COMBINED_METHOD",

@@ -54,7 +54,7 @@ class ReportError(ValueError):
 @cache
 def schema() -> dict[str, Any]:
     """The JSON Schema (draft 2020-12) that every report satisfies; shipped in the package."""
-    text = resources.files("meanband").joinpath("report.schema.json").read_text(encoding="utf-8")
+    text = resources.files("meanband.store").joinpath("report.schema.json").read_text(encoding="utf-8")
     return json.loads(text)
 
 
