@@ -24,7 +24,8 @@ from pathlib import Path
 import numpy as np
 from meanband.report.merge import merge_reports
 from meanband.report.terminal import format_summary
-from meanband.stats.bands import decide, make_band
+from meanband.stats.bands import make_band
+from meanband.stats.decision import decide
 from meanband.stats.notes import assumption_notes
 from meanband.store import report_json
 

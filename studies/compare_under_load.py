@@ -14,8 +14,9 @@ import os
 import sys
 
 import numpy as np
-from meanband.collect.paired import check_ratio, time_pairs
-from meanband.stats.bands import Verdict
+from meanband.collect.paired import time_pairs
+from meanband.stats.ratio import check_ratio
+from meanband.stats.verdict import Verdict
 
 ROUNDS = int(sys.argv[1]) if len(sys.argv) > 1 else 40
 LOAD = int(sys.argv[2]) if len(sys.argv) > 2 else (os.cpu_count() or 2)

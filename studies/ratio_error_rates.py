@@ -12,8 +12,8 @@ import math
 import sys
 
 import numpy as np
-from meanband.stats.bands import Verdict
 from meanband.stats.ratio import judge_ratio, ratio_interval
+from meanband.stats.verdict import Verdict
 
 REPS = int(sys.argv[1]) if len(sys.argv) > 1 else 4000
 LIMIT = 1.05

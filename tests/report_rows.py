@@ -6,7 +6,8 @@ import math
 from typing import Any
 
 import numpy as np
-from meanband.stats.bands import decide, make_band
+from meanband.stats.bands import make_band
+from meanband.stats.decision import decide
 from meanband.stats.notes import assumption_notes
 
 

@@ -10,7 +10,7 @@ from dataclasses import dataclass
 import numpy as np
 import pytest
 from meanband import Band, Decision, TrialError, Verdict, decide, diagnose, make_band, trials_needed
-from meanband.stats.bands import edge_margin
+from meanband.stats.decision import edge_margin
 
 
 @dataclass(frozen=True)

@@ -7,7 +7,8 @@ import math
 import numpy as np
 import pytest
 from meanband import TrialError, Verdict
-from meanband.collect.paired import check_ratio, time_pairs
+from meanband.collect.paired import time_pairs
+from meanband.stats.ratio import check_ratio
 from scipy import stats
 
 
@@ -182,7 +183,7 @@ def test_comparison_row_carries_both_sides(pytester: pytest.Pytester, run_suite)
 
 def test_compare_reads_the_clock_the_settings_name() -> None:
     # The clock module owns the clock: a comparison on the CPU clock says so in its row.
-    from meanband.collect.paired import compare_callables
+    from meanband.record.comparison import compare_callables
 
     def new() -> int:
         return sum(range(200))

@@ -99,7 +99,7 @@ def test_adaptive_count_refuses_instrument_and_simple_rule_clearly(check) -> Non
 
 
 def test_simple_acceptance_keeps_its_count_instead_of_a_power_suggestion() -> None:
-    from meanband.stats.suggest import suggestion_for_row
+    from meanband.record.suggestion import suggestion_for_row
 
     values = RNG.normal(12.039, 0.01, 20)  # mean just inside the upper edge 12.04
     simple = suggestion_for_row(_row(values, rule="simple"))

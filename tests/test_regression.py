@@ -6,15 +6,8 @@ import math
 
 import numpy as np
 import pytest
-from meanband.stats.regression import (
-    CANNOT_TELL,
-    NO_REGRESSION,
-    REGRESSED,
-    Limits,
-    compare_samples,
-    format_limit,
-    format_ratio,
-)
+from meanband.report.baseline import format_limit, format_ratio
+from meanband.stats.regression import CANNOT_TELL, NO_REGRESSION, REGRESSED, Limits, compare_samples
 
 RNG = np.random.default_rng(20261207)
 

@@ -18,7 +18,7 @@ from meanband.stats.diagnostics import (
     drift_test,
     tukey_fences,
 )
-from meanband.stats.interval import METHODS
+from meanband.stats.methods import METHODS
 from meanband.stats.notes import assumption_notes, lognormal_skewness, trials_for_skewness
 from scipy import stats
 

@@ -443,7 +443,7 @@ def test_mixed(trials, fake):
 
 
 def test_timing_lines_show_the_range_when_worker_processes_measured_differently() -> None:
-    from meanband.plugin.timing import timing_lines
+    from meanband.report.timing import timing_lines
 
     def row(test: str, read_cost: float) -> dict:
         timing = {

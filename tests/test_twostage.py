@@ -7,7 +7,7 @@ import math
 import numpy as np
 import pytest
 from meanband.errors import TrialError
-from meanband.stats.bands import Verdict, make_band
+from meanband.stats.bands import make_band
 from meanband.stats.twostage import (
     MIN_SECOND,
     check_max_n,
@@ -18,6 +18,7 @@ from meanband.stats.twostage import (
     stein_interval,
     verdicts,
 )
+from meanband.stats.verdict import Verdict
 from scipy import stats
 
 PILOT = np.array([10.2, 9.8, 10.5, 9.9, 10.1, 10.4, 9.7, 10.0, 10.3, 10.1])

@@ -12,11 +12,14 @@ from typing import TYPE_CHECKING, Any
 if TYPE_CHECKING:
     from meanband.errors import BandViolation, TrialError
     from meanband.record.assertion import assert_mean_within
-    from meanband.stats.bands import Band, Decision, Verdict, decide, make_band
+    from meanband.stats.bands import Band, make_band
+    from meanband.stats.decision import Decision, decide
     from meanband.stats.diagnostics import Diagnostics, NormalityTest, diagnose
-    from meanband.stats.interval import Interval, critical_t, mean_interval
+    from meanband.stats.interval import Interval, critical_t
+    from meanband.stats.methods import mean_interval
     from meanband.stats.planning import trials_needed
     from meanband.stats.uncertainty import InstrumentUncertainty, UncertaintyBudget, uncertainty_budget
+    from meanband.stats.verdict import Verdict
 
 __all__ = [
     "Band",
@@ -44,9 +47,9 @@ __version__ = "0.1.0"
 _HOME = {
     "assert_mean_within": "record.assertion",
     "Band": "stats.bands",
-    "Decision": "stats.bands",
-    "Verdict": "stats.bands",
-    "decide": "stats.bands",
+    "Decision": "stats.decision",
+    "Verdict": "stats.verdict",
+    "decide": "stats.decision",
     "make_band": "stats.bands",
     "Diagnostics": "stats.diagnostics",
     "NormalityTest": "stats.diagnostics",
@@ -55,7 +58,7 @@ _HOME = {
     "TrialError": "errors",
     "Interval": "stats.interval",
     "critical_t": "stats.interval",
-    "mean_interval": "stats.interval",
+    "mean_interval": "stats.methods",
     "trials_needed": "stats.planning",
     "InstrumentUncertainty": "stats.uncertainty",
     "UncertaintyBudget": "stats.uncertainty",

@@ -13,6 +13,7 @@ from pathlib import Path
 from typing import Any
 
 from meanband.errors import TrialError
+from meanband.report.tables import format_table
 from meanband.store.history import DEFAULT_STORE, HistoryStore, RunInfo, StoredCheck, StoreError
 from meanband.units import format_number, format_value
 
@@ -149,15 +150,9 @@ def _show(args: argparse.Namespace) -> int:
 
 
 def _compare(args: argparse.Namespace) -> int:
+    from meanband.report.baseline import format_limit, format_ratio
     from meanband.stats.ratio import parse_fraction
-    from meanband.stats.regression import (
-        REGRESSED,
-        Limits,
-        compare_samples,
-        format_limit,
-        format_ratio,
-        is_timing,
-    )
+    from meanband.stats.regression import REGRESSED, Limits, compare_check
     from meanband.stats.sample import check_confidence
 
     limits = Limits(
@@ -179,22 +174,13 @@ def _compare(args: argparse.Namespace) -> int:
             rows.append([b.nodeid, b.series or "-", "-", _value(b.mean, b.unit), "-", "-",
                          "only in B"])
             continue
-        if b.source == "compare":
+        result = compare_check(
+            b.values, a.values, unit=b.unit, source=b.source, baseline_unit=a.unit,
+            baseline_run=f"run {run_a.id}", confidence=confidence, limits=limits,
+        )
+        if "ratio" not in result:
             rows.append([b.nodeid, b.series or "-", _value(a.mean, a.unit),
-                         _value(b.mean, b.unit), "-", "-", "in-run comparison, its own gate"])
-            continue
-        if a.unit != b.unit:
-            rows.append([b.nodeid, b.series or "-", _value(a.mean, a.unit),
-                         _value(b.mean, b.unit), "-", "-", "not compared: the unit changed"])
-            continue
-        try:
-            result = compare_samples(
-                b.values, a.values, timing=is_timing(b.unit, b.source),
-                confidence=confidence, limits=limits,
-            )
-        except TrialError as exc:
-            rows.append([b.nodeid, b.series or "-", _value(a.mean, a.unit),
-                         _value(b.mean, b.unit), "-", "-", f"not compared: {exc}"])
+                         _value(b.mean, b.unit), "-", "-", f"{result['status']}: {result['reason']}"])
             continue
         regressed += result["status"] == REGRESSED
         rows.append([
@@ -306,11 +292,4 @@ def _bounds(check: StoredCheck) -> str:
 
 def _table(headers: Sequence[str], rows: Sequence[Sequence[str]]) -> str:
     """Left-aligned columns separated by two spaces, with a rule under the header."""
-    widths = [len(h) for h in headers]
-    for row in rows:
-        widths = [max(w, len(cell)) for w, cell in zip(widths, row, strict=True)]
-    lines = ["  ".join(h.ljust(w) for h, w in zip(headers, widths, strict=True)).rstrip()]
-    lines.append("  ".join("-" * w for w in widths))
-    for row in rows:
-        lines.append("  ".join(c.ljust(w) for c, w in zip(row, widths, strict=True)).rstrip())
-    return "\n".join(lines)
+    return "\n".join(format_table(headers, rows, rule=True))

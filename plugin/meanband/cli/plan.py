@@ -9,6 +9,7 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
+from meanband import defaults
 from meanband.errors import TrialError
 
 __all__ = ["load_rows", "register", "rows_from_file", "rows_from_store"]
@@ -154,8 +155,10 @@ def load_rows(args: argparse.Namespace) -> tuple[list[Row], str]:
 
 
 def _plan(args: argparse.Namespace) -> int:
-    from meanband.report.terminal import row_name
-    from meanband.stats.suggest import check_power, suggestion_for_row
+    from meanband.record.suggestion import suggestion_for_row
+    from meanband.report.rows import row_name
+    from meanband.report.tables import format_table
+    from meanband.stats.suggest import check_power
     from meanband.store.planfile import entries_from_rows, write_plan
 
     power = None if args.power is None else check_power(args.power, "--power")
@@ -179,18 +182,14 @@ def _plan(args: argparse.Namespace) -> int:
         lines.append((row_name(row), str(n), shown, suggestion.reason))
 
     powers = {power} if power is not None else {
-        (r.get("settings") or {}).get("power", 0.9) for r in checks}
+        (r.get("settings") or {}).get("power", defaults.POWER) for r in checks}
     single = next(iter(powers)) if len(powers) == 1 else None
     stated = f"{single * 100:g}% power" if single is not None else "each check's power"
     count = f"{len(checks)} check{'' if len(checks) == 1 else 's'}"
     print(f"suggested trial counts ({stated}) from {where}: {count}")
     if lines:
-        widths = [max(len(h), *(len(line[i]) for line in lines))
-                  for i, h in enumerate(("test", "n", "suggest"))]
-        header = ("test", "n", "suggest", "reason")
-        print(_format(header, widths))
-        for line in lines:
-            print(_format(line, widths))
+        for line in format_table(("test", "n", "suggest", "reason"), lines, right={1, 2}):
+            print(line)
     else:
         print("every check's count is about right" if checks else "the run holds no checks")
     if args.write is not None:
@@ -198,10 +197,3 @@ def _plan(args: argparse.Namespace) -> int:
         written = write_plan(args.write, entries, power=single)
         print(f"plan written to {written} ({len(entries)} entr{'y' if len(entries) == 1 else 'ies'})")
     return 0
-
-
-def _format(cells: tuple[str, ...], widths: list[int]) -> str:
-    name, n, suggested, reason = cells
-    return (f"{name.ljust(widths[0])}  {n.rjust(widths[1])}  {suggested.rjust(widths[2])}  "
-            f"{reason}").rstrip()
-

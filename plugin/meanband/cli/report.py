@@ -96,7 +96,6 @@ def run_report(args: argparse.Namespace, out: TextIO | None = None,
                err: TextIO | None = None) -> int:
     """``meanband report ALL.json [-v] [--markdown PATH] [--plots DIR]``."""
     from meanband.report import markdown
-    from meanband.report.metrology import metrology_lines
     from meanband.report.terminal import format_summary
     from meanband.store.report_json import ReportError, load_report
 
@@ -107,8 +106,6 @@ def run_report(args: argparse.Namespace, out: TextIO | None = None,
         return _fail("report", exc, err)
     rows = report["rows"]
     for line in format_summary(rows, args.verbose - args.quiet):
-        print(line, file=out)
-    for line in metrology_lines(rows, args.verbose - args.quiet):
         print(line, file=out)
     try:
         if args.markdown or args.job_summary:

@@ -2,13 +2,14 @@
 
 from __future__ import annotations
 
+import contextlib
 import functools
 import gc
 import inspect
 import math
 import os
 from array import array
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Callable, Iterator, Mapping, Sequence
 from dataclasses import dataclass
 from itertools import repeat
 from typing import Any
@@ -18,15 +19,19 @@ import numpy as np
 from meanband.collect.clock import Clock, ClockInfo, get_clock, measure
 from meanband.errors import TrialError
 from meanband.stats.diagnostics import DriftTest, drift_test
+from meanband.stats.sample import ArrayEquality
 from meanband.units import SECONDS, format_value, parse_duration
 
 __all__ = [
     "DEFAULT_MIN_TRIAL_TIME",
     "Note",
     "Timing",
+    "calibrate",
     "default_min_trial_time",
     "parse_warmup",
+    "quiet_gc",
     "time_calls",
+    "trial_ns",
 ]
 
 #: Floor of the automatic minimum trial time (seconds).
@@ -66,7 +71,7 @@ class Note:
 
 
 @dataclass(frozen=True, eq=False)
-class Timing:
+class Timing(ArrayEquality):
     """The trials of one timing call and how they were taken."""
 
     #: Seconds per call, one value per kept trial, in the order taken.
@@ -217,15 +222,9 @@ def time_calls(
     bound = _bind(fn, args, kwargs)
     runner = _SetupRunner(fn, tuple(args), dict(kwargs or {}), setup) if setup else None
 
-    gc_was_enabled = gc.isenabled()
     start = read()
     deadline = None if time_limit is None else start + int(time_limit * 1e9)
-    try:
-        if not gc_enabled:
-            # The young generations hold what the test just made; a full pass costs tens of
-            # milliseconds in a process with scipy loaded and frees little more.
-            gc.collect(1)
-            gc.disable()
+    with quiet_gc(gc_enabled):
         if loops is None:
             k, calibration = _calibrate(bound, runner, read, min_trial_time * 1e9, deadline)
         else:
@@ -238,9 +237,6 @@ def time_calls(
             taken = _run(bound, k, out, 0, min(min_trials, n), read, None)
             if deadline is None or read() <= deadline:
                 taken = _run(bound, k, out, taken, n, read, deadline)
-    finally:
-        if gc_was_enabled and not gc.isenabled():
-            gc.enable()
 
     per_call = 1e-9 / k
     values = np.frombuffer(out, dtype=np.int64, count=taken) * per_call
@@ -281,6 +277,39 @@ def time_calls(
 
 
 # --- the timed loops -------------------------------------------------------------------------
+
+
+@contextlib.contextmanager
+def quiet_gc(keep_enabled: bool = False) -> Iterator[None]:
+    """Garbage collection off while trials run (unless ``keep_enabled``), restored afterwards
+    even when the timed code raises.
+
+    The young generations are collected first: they hold what the test just made. A full pass
+    costs tens of milliseconds in a process with scipy loaded and frees little more.
+    """
+    was_enabled = gc.isenabled()
+    if not keep_enabled:
+        gc.collect(1)
+        gc.disable()
+    try:
+        yield
+    finally:
+        if was_enabled and not gc.isenabled():
+            gc.enable()
+
+
+def trial_ns(call: Callable[[], Any], k: int, read: Callable[[], int]) -> int:
+    """Nanoseconds of one trial: ``k`` calls of ``call`` between two clock reads."""
+    return _one(call, None, k, read)
+
+
+def calibrate(
+    call: Callable[[], Any], read: Callable[[], int], target_ns: float, *,
+    max_loops: int = MAX_LOOPS,
+) -> int:
+    """Calls per trial so that a trial of ``call`` lasts at least ``target_ns``, at most
+    ``max_loops`` (default ``MAX_LOOPS``; the engine's own calibration, see :func:`time_calls`)."""
+    return _calibrate(call, None, read, target_ns, None, max_loops)[0]
 
 
 def _bind(fn: Callable[..., Any], args: Sequence[Any], kwargs: Mapping[str, Any] | None):
@@ -400,26 +429,30 @@ def _one(call, runner, k, read) -> int:
     return buffer[0]
 
 
-def _calibrate(call, runner, read, target_ns: float, deadline) -> tuple[int, list]:
+def _calibrate(
+    call, runner, read, target_ns: float, deadline, max_loops: int | None = None
+) -> tuple[int, list]:
     """Smallest k found (growing geometrically) whose trial lasts ``target_ns``.
 
     If an earlier step ran more than 10% faster per call (the last one was slowed by an
     interruption), k is raised so that a trial at that speed still lasts ``target_ns``.
     """
+    if max_loops is None:
+        max_loops = MAX_LOOPS
     k = 1
     history: list[tuple[int, int]] = []
     while True:
         elapsed = _one(call, runner, k, read)
         history.append((k, elapsed))
-        if elapsed >= target_ns or k >= MAX_LOOPS:
+        if elapsed >= target_ns or k >= max_loops:
             earlier = min((ns / loops for loops, ns in history[:-1] if ns > 0), default=None)
             if earlier is not None and elapsed / k > _OVERSHOOT * earlier:
-                k = max(k, min(math.ceil(_OVERSHOOT * target_ns / earlier), MAX_LOOPS))
+                k = max(k, min(math.ceil(_OVERSHOOT * target_ns / earlier), max_loops))
             return k, history
         if deadline is not None and read() > deadline:
             return k, history
         growth = _MAX_GROWTH if elapsed <= 0 else min(_OVERSHOOT * target_ns / elapsed, _MAX_GROWTH)
-        k = min(max(math.ceil(k * growth), k + 1), MAX_LOOPS)
+        k = min(max(math.ceil(k * growth), k + 1), max_loops)
 
 
 def _warm_up(call, runner, k, read, count: int, seconds: float, deadline) -> list[int]:

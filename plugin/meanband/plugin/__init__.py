@@ -17,7 +17,7 @@ if TYPE_CHECKING:
 #: Feature plugins, each with its own options in the ``meanband`` group.
 pytest_plugins: list[str] = [
     "meanband.plugin.history", "meanband.plugin.reports", "meanband.plugin.plan",
-    "meanband.report.metrology", "meanband.plugin.timing",
+    "meanband.plugin.timing",
 ]
 
 RECORDER_KEY = pytest.StashKey["Recorder"]()
@@ -180,17 +180,20 @@ class SummaryPlugin:
         self.config.hook.pytest_meanband_session_finish(config=self.config, rows=self.rows)
 
     def pytest_terminal_summary(self, terminalreporter: pytest.TerminalReporter) -> None:
-        if not self.rows:
-            return
         from meanband.report.terminal import format_summary
 
         verbosity = self.config.get_verbosity()
         lines = format_summary(self.rows, verbosity)
+        # Features add what only the live session knows (a run recorded, a plan written, ...)
+        # through one hook; everything that rows alone say is in format_summary.
         for extra in self.config.hook.pytest_meanband_summary_lines(config=self.config, rows=self.rows):
             lines.extend(extra or ())
-        if verbosity < 0:
+        if not lines:
+            return
+        if verbosity < 0 or not self.rows:
             for line in lines:
-                terminalreporter.write_line(line)
+                if line or self.rows:
+                    terminalreporter.write_line(line)
             return
         terminalreporter.write_sep("=", "meanband")
         for line in lines:

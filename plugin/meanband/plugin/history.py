@@ -10,6 +10,8 @@ from typing import TYPE_CHECKING, Any
 
 import pytest
 
+from meanband import defaults
+
 if TYPE_CHECKING:
     from meanband.stats.regression import Limits
     from meanband.store.history import StoredCheck
@@ -164,9 +166,9 @@ class HistoryPlugin:
     def environment(self) -> dict[str, Any]:
         """This run's commit, machine and Python, looked up once."""
         if self._environment is None:
-            from meanband.store.history import describe_environment
+            from meanband.store.environment import capture_environment
 
-            self._environment = describe_environment(self.config.rootpath)
+            self._environment = capture_environment(self.config.rootpath)
         return self._environment
 
     def pytest_sessionstart(self, session: pytest.Session) -> None:
@@ -177,32 +179,19 @@ class HistoryPlugin:
             row["baseline"] = self._compare(row)
 
     def _compare(self, row: dict[str, Any]) -> dict[str, Any]:
-        from meanband.errors import TrialError
-        from meanband.stats.regression import NO_BASELINE, compare_samples, is_timing
+        from meanband.stats.regression import compare_check
 
         run = self.baseline_run
-        about = {"run": run.id, "label": run.label}
-        if row.get("source") == "compare":
-            return {**about, "status": "not compared",
-                    "reason": "an in-run comparison is its own gate"}
-        key = (row.get("nodeid", ""), row.get("series", ""))
-        stored = self.baseline_checks.get(key)
-        if stored is None:
-            return {**about, "status": NO_BASELINE,
-                    "reason": f"run {run.id} has no trials for this check"}
-        if stored.unit != row.get("unit"):
-            return {**about, "status": "not compared",
-                    "reason": f"the unit changed from {stored.unit or 'none'} to "
-                              f"{row.get('unit') or 'none'} since run {run.id}"}
-        confidence = (row.get("settings") or {}).get("confidence", 0.95)
-        try:
-            result = compare_samples(
-                row.get("values") or [], stored.values,
-                timing=is_timing(row.get("unit"), row.get("source")),
-                confidence=confidence, limits=self.limits,
-            )
-        except TrialError as exc:
-            return {**about, "status": "not compared", "reason": str(exc)}
+        about = {"run": run.id, "label": run.label, "started": run.started, "commit": run.commit}
+        stored = self.baseline_checks.get((row.get("nodeid", ""), row.get("series", "")))
+        settings = row.get("settings") or {}
+        result = compare_check(
+            row.get("values") or [], None if stored is None else stored.values,
+            unit=row.get("unit"), source=row.get("source"),
+            baseline_unit=None if stored is None else stored.unit, baseline_run=f"run {run.id}",
+            confidence=settings.get("confidence", defaults.CONFIDENCE), limits=self.limits,
+            power=settings.get("power", defaults.POWER),
+        )
         return {**about, **result}
 
     def pytest_meanband_session_finish(
@@ -238,19 +227,13 @@ class HistoryPlugin:
         self.recorded = (run_id, label)
         return True
 
-    def pytest_terminal_summary(self, terminalreporter: pytest.TerminalReporter) -> None:
-        # With no rows the meanband hooks never run; say so rather than record nothing silently.
-        if self.record is not None and not (self.recorded or self.record_error or self.record_skipped):
-            terminalreporter.write_line(
-                "meanband: no test recorded trials, so there was nothing to record"
-            )
-
     def pytest_meanband_summary_lines(
         self, config: pytest.Config, rows: list[dict[str, Any]]
     ) -> list[str]:
         lines: list[str] = []
+        if not rows and self.record is not None:
+            lines.append("meanband: no test recorded trials, so there was nothing to record")
         if self.baseline_run is not None:
-            lines += baseline_lines(self.baseline_run, rows)
             elsewhere = machine_difference(self.baseline_run, self.environment())
             if elsewhere:
                 lines.append(f"note: {elsewhere}")
@@ -265,80 +248,18 @@ class HistoryPlugin:
         return lines
 
 
-def baseline_lines(run: Any, rows: list[dict[str, Any]]) -> list[str]:
-    """The baseline section of the summary: one line per compared check, then the verdicts."""
-    from meanband.report.terminal import row_name
-    from meanband.stats.regression import (
-        CANNOT_TELL,
-        NO_BASELINE,
-        REGRESSED,
-        format_limit,
-        format_ratio,
-    )
-    from meanband.units import format_value
-
-    label = f" '{run.label}'" if run.label else ""
-    commit = f", commit {run.commit[:10]}" if run.commit else ""
-    lines = ["", f"baseline: run {run.id}{label} of {run.started}{commit}"]
-    table: list[list[str]] = []
-    notes: list[str] = []
-    regressed: list[str] = []
-    levels: set[float] = set()
-    for row in sorted(rows, key=lambda r: (r.get("nodeid", ""), r.get("series", ""))):
-        info = row.get("baseline")
-        if not info:
-            continue
-        name = row_name(row)
-        if "ratio" not in info:
-            if info["status"] == NO_BASELINE:
-                notes.append(f"  {name}: no baseline in run {run.id}; nothing to compare yet")
-            else:
-                notes.append(f"  {name}: not compared: {info.get('reason', '')}")
-            continue
-        unit = row.get("unit")
-        levels.add(info["ratio"]["confidence"])
-        table.append([
-            name, format_value(info["baseline_mean"], unit),
-            format_value(info["current_mean"], unit), format_ratio(info["ratio"]),
-            format_limit(info), info["status"],
-        ])
-        if info["status"] == CANNOT_TELL:
-            more = info.get("suggested_n")
-            notes.append(
-                f"  {name}: cannot tell yet at n={info['n_current']} (baseline "
-                f"n={info['n_baseline']}); "
-                + (f"about {more} trials in both runs would likely decide it" if more else
-                   "the ratio sits on the limit, more trials are unlikely to decide it")
-            )
-        if info.get("note"):
-            notes.append(f"  {name}: {info['note']}")
-        if info["status"] == REGRESSED:
-            regressed.append(name)
-    if table:
-        level = f"{levels.pop() * 100:g}% " if len(levels) == 1 else ""
-        header = ["test", "baseline mean", "mean", f"ratio, {level}interval", "allowed", "verdict"]
-        widths = [max(len(h), *(len(r[i]) for r in table)) for i, h in enumerate(header)]
-        for cells in [header, *table]:
-            lines.append("  ".join(c.ljust(w) for c, w in zip(cells, widths, strict=True)).rstrip())
-    if notes:
-        lines += ["", "baseline notes:", *notes]
-    if regressed:
-        lines += ["", f"meanband: REGRESSION: {len(regressed)} check(s) slower or moved beyond the "
-                  f"allowed change from run {run.id}{label}; the session fails:"]
-        lines += [f"  {name}" for name in regressed]
-    return lines
-
-
 def machine_difference(run: Any, environment: dict[str, Any]) -> str | None:
     """A warning when the baseline ran on another kind of machine or Python: timing ratios then
     compare the machines as well as the code. Host names alone are not compared, since CI
     runners of one kind get a new name each time."""
+    from meanband.store.environment import python_words
+
     then = (run.machine, run.cpus, run.python)
-    now = (environment.get("machine"), environment.get("cpus"), environment.get("python"))
+    now = (environment.get("machine"), environment.get("cpu_count"), python_words(environment))
     if then == now:
         return None
     return (
         f"the baseline ran on {run.host} ({then[0]}, {then[1]} CPUs, {then[2]}), this run on "
-        f"{environment.get('host')} ({now[0]}, {now[1]} CPUs, {now[2]}); timing ratios compare "
-        "the machines as well as the code"
+        f"{environment.get('hostname')} ({now[0]}, {now[1]} CPUs, {now[2]}); timing ratios "
+        "compare the machines as well as the code"
     )

@@ -120,7 +120,7 @@ class PlanPlugin:
     # -- suggestions and the written plan ----------------------------------------------------
 
     def pytest_meanband_result(self, config: pytest.Config, row: dict[str, Any]) -> None:
-        from meanband.stats.suggest import suggestion_for_row
+        from meanband.record.suggestion import suggestion_for_row
 
         suggestion = suggestion_for_row(row)
         if suggestion is None:
@@ -160,6 +160,8 @@ class PlanPlugin:
 
     def pytest_meanband_summary_lines(self, config: pytest.Config, rows: list[dict[str, Any]]
                                       ) -> list[str]:
+        if not rows:  # no meanband section to sit in: each line names meanband itself
+            return [f"meanband {line}" for line in self.lines(rows) if line]
         return self.lines(rows)
 
     def lines(self, rows: list[dict[str, Any]]) -> list[str]:
@@ -190,15 +192,6 @@ class PlanPlugin:
         if not out:
             return []
         return ["", *out] if self.config.get_verbosity() >= 0 else out
-
-    def pytest_terminal_summary(self, terminalreporter: pytest.TerminalReporter) -> None:
-        # With no rows meanband's summary (and its hook) stays silent; plan news still shows.
-        summary = self.config.pluginmanager.get_plugin("meanband-summary")
-        if summary is not None and getattr(summary, "rows", None):
-            return
-        for line in self.lines([]):
-            if line:
-                terminalreporter.write_line(f"meanband {line}")
 
 
 def _summary_text(suggestion: dict[str, Any]) -> str:

@@ -221,7 +221,7 @@ class ReportWriter:
     def _write_report(self, rows: list[dict]) -> None:
         from meanband.store import report_json
         report = report_json.build_report(
-            rows, environment=report_json.environment(),
+            rows, environment=report_json.environment(self.config.rootpath),
             configuration=configuration(self.config), include_trials=self.settings.trials,
         )
         path = report_json.write_report(report, self.settings.report)  # type: ignore[arg-type]

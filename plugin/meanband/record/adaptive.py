@@ -10,7 +10,8 @@ import numpy as np
 
 from meanband.errors import TrialError
 from meanband.record.settings import Settings
-from meanband.stats.bands import Band, Decision, Edge, Tolerance, make_band
+from meanband.stats.bands import Band, Edge, Tolerance, make_band
+from meanband.stats.decision import Decision
 from meanband.stats.notes import assumption_notes
 from meanband.stats.twostage import (
     DEFAULT_MAX_N,

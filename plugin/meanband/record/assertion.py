@@ -6,9 +6,12 @@ from collections.abc import Iterable
 
 import numpy as np
 
+from meanband import defaults
 from meanband.errors import BandViolation
-from meanband.stats.bands import Decision, Edge, Tolerance, decide, make_band
-from meanband.stats.notes import assumption_notes, describe
+from meanband.record.message import describe
+from meanband.stats.bands import Edge, Tolerance, make_band
+from meanband.stats.decision import Decision, decide
+from meanband.stats.notes import assumption_notes
 from meanband.stats.rules import GUARDED
 from meanband.stats.uncertainty import InstrumentSpec
 
@@ -22,7 +25,7 @@ def assert_mean_within(
     *,
     center: Edge = None,
     tolerance: Tolerance = None,
-    confidence: float = 0.95,
+    confidence: float = defaults.CONFIDENCE,
     method: str = "t",
     unit: str | None = None,
     instrument_uncertainty: InstrumentSpec = None,

@@ -12,19 +12,20 @@ from meanband.collect.clock import get_clock
 from meanband.collect.timing import time_calls
 from meanband.errors import BandViolation, TrialError
 from meanband.record import adaptive
+from meanband.record.message import describe
+from meanband.record.row import ResultRow, build_row
 from meanband.record.settings import Settings
-from meanband.stats.bands import Band, Decision, Edge, Tolerance, decide, make_band
-from meanband.stats.interval import Interval, mean_interval
-from meanband.stats.notes import assumption_notes, describe
+from meanband.stats.bands import Band, Edge, Tolerance, make_band
+from meanband.stats.decision import Decision, decide
+from meanband.stats.interval import Interval
+from meanband.stats.methods import mean_interval
+from meanband.stats.notes import assumption_notes
 from meanband.stats.rules import GUARDED
 from meanband.stats.sample import as_sample
 from meanband.stats.uncertainty import InstrumentSpec
 from meanband.units import SECONDS
 
 __all__ = ["Recorder", "Series"]
-
-Row = dict[str, Any]
-
 
 class Series:
     """One named stream of trials in a test, with the checks made on it."""
@@ -40,7 +41,7 @@ class Series:
         self._timing: dict[str, Any] | None = None
         self._timing_notes: list[dict[str, str]] = []
         self._test_timing = SharedTiming()
-        self._rows: list[Row] = []
+        self._rows: list[ResultRow] = []
         self._adaptive: adaptive.AdaptiveRun | None = None  # set by n="auto"
 
     # -- collecting -------------------------------------------------------------------------
@@ -213,6 +214,7 @@ class Series:
         widens the interval to mean +/- U (JCGM 100); ``rule="simple"`` compares the mean alone.
         """
         settings = self.settings.merged(confidence=confidence, method=method)
+        extra: dict[str, Any] = {}
         if self._adaptive is not None:
             if instrument_uncertainty is not None or rule != GUARDED:
                 raise TrialError(
@@ -224,8 +226,7 @@ class Series:
                 settings=settings,
             )
             notes = self._timing_notes + notes
-            row = self._row("check", settings, decision.to_dict(), notes) | extra
-            row["settings"]["n"] = "auto"
+            recorded = {**settings.to_dict(), "n": "auto"}
         else:
             band = make_band(low, high, center=center, tolerance=tolerance, unit=self.unit)
             decision = decide(
@@ -237,11 +238,8 @@ class Series:
                 normality_alpha=settings.normality_alpha, method=settings.method,
                 skip={note["code"] for note in self._timing_notes},
             )
-            row = self._row("check", settings, decision.to_dict(), notes)
-            if decision.uncertainty is not None:
-                row["uncertainty"] = decision.uncertainty.to_dict()
-            if decision.rule is not None:
-                row["rule"] = decision.rule.to_dict()
+            recorded = settings.to_dict()
+        row = self._row(recorded, decision, notes, **extra)
         self._rows.append(row)
         if not decision.passed:
             raise BandViolation(describe(decision, label=self._label(), notes=notes), decision)
@@ -249,31 +247,23 @@ class Series:
 
     # -- reporting --------------------------------------------------------------------------
 
-    def rows(self) -> list[Row]:
+    def rows(self) -> list[ResultRow]:
         """The rows for the summary: one per check, or one "unchecked" row for lone trials."""
         if self._rows:
             return list(self._rows)
         if self._values.size:
-            return [self._row("unchecked", self.settings, None, list(self._timing_notes))]
+            return [self._row(self.settings.to_dict(), None, list(self._timing_notes))]
         return []
 
     def _row(
-        self, kind: str, settings: Settings, decision: dict[str, Any] | None,
-        notes: list[dict[str, str]],
-    ) -> Row:
-        return {
-            "nodeid": self.nodeid,
-            "series": self.name,
-            "kind": kind,
-            "unit": self.unit,
-            "source": self.source,
-            "values": self._values.tolist(),
-            "warmup": self._warmup.tolist(),
-            "decision": decision,
-            "notes": notes,
-            "settings": settings.to_dict(),
-            "timing": None if self._timing is None else dict(self._timing),
-        }
+        self, settings: dict[str, Any], decision: Decision | None, notes: list[dict[str, str]],
+        **extra: Any,
+    ) -> ResultRow:
+        return build_row(
+            nodeid=self.nodeid, series=self.name, unit=self.unit, source=self.source,
+            values=self._values, warmup=self._warmup, decision=decision, notes=notes,
+            settings=settings, timing=self._timing, **extra,
+        )
 
     def _label(self) -> str:
         return self.name
@@ -303,7 +293,7 @@ class Recorder(Series):
         super().__init__("", settings, nodeid)
         self._test_timing = SharedTiming(timing)
         self._series: dict[str, Series] = {}
-        self._comparisons: list[Row] = []
+        self._comparisons: list[ResultRow] = []
         # A plan may give named series counts of their own; unplanned series use other_series.
         self._series_settings = dict(series_settings or {})
         self._other_series = settings if other_series is None else other_series
@@ -339,7 +329,7 @@ class Recorder(Series):
         Drift of the machine hits both sides of a pair alike and cancels in the ratio, which
         makes this the robust gate on a noisy CI machine (see ``meanband.collect.paired``).
         """
-        from meanband.collect.paired import compare_callables
+        from meanband.record.comparison import compare_callables
 
         settings = self.settings.merged(n=n, confidence=confidence)
         result, row, message = compare_callables(
@@ -353,7 +343,7 @@ class Recorder(Series):
             raise BandViolation(message, result)
         return result
 
-    def all_rows(self) -> list[Row]:
+    def all_rows(self) -> list[ResultRow]:
         """Rows of the default series and every named series, in creation order."""
         rows = self.rows()
         for named in self._series.values():

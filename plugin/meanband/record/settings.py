@@ -81,11 +81,12 @@ def _integer(minimum: int) -> Callable[[Any], int]:
 
 
 def _probability(value: Any) -> float:
-    level = float(value)
-    if not (0.0 < level < 1.0) or math.isnan(level):
-        hint = f"; did you mean {level / 100:g}?" if 1.0 < level < 100.0 else ""
-        raise ValueError(f"a number strictly between 0 and 1 is needed{hint}")
-    return level
+    from meanband.stats.sample import check_probability
+
+    try:
+        return check_probability(value, "the value")
+    except TrialError as exc:
+        raise ValueError(str(exc).removeprefix("the value ")) from None
 
 
 def _warmup(value: Any) -> int | str:
@@ -98,7 +99,7 @@ def _warmup(value: Any) -> int | str:
 
 
 def _method(value: Any) -> str:
-    from meanband.stats.interval import METHODS
+    from meanband.stats.methods import METHODS
 
     if value not in METHODS:
         raise ValueError(f"choose one of {', '.join(sorted(METHODS))}")

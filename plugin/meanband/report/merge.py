@@ -97,7 +97,8 @@ def pool_rows(found: Sequence[tuple[str, Mapping[str, Any]]], *, label: str = ""
     features (a baseline comparison, say) were computed from one shard's trials alone: they are
     left out and named in the row's ``pooled.dropped`` and in a note.
     """
-    from meanband.stats.bands import Band, decide
+    from meanband.stats.bands import Band
+    from meanband.stats.decision import decide
     from meanband.stats.notes import assumption_notes
 
     first_name, first = found[0]

@@ -1,34 +1,26 @@
-"""Summary lines on measurement uncertainty and decision rules, for checks that gate hardware."""
+"""The summary section on measurement uncertainty and decision rules, for checks that gate hardware."""
 
 from __future__ import annotations
 
-from collections.abc import Sequence
-from typing import TYPE_CHECKING, Any
+from collections.abc import Mapping, Sequence
+from typing import Any
 
-from meanband.report.terminal import row_name
-from meanband.stats.rules import format_probability
-from meanband.units import SECONDS, format_value, significant_digits, time_scale
-
-if TYPE_CHECKING:
-    import pytest
+from meanband.record.message import budget_words, rule_words
+from meanband.record.row import ResultRow
+from meanband.report.rows import row_name, sorted_rows
+from meanband.units import SECONDS, significant_digits, time_scale
 
 __all__ = ["metrology_lines"]
 
-Row = dict[str, Any]
 
-
-def pytest_meanband_summary_lines(config: pytest.Config, rows: list[Row]) -> list[str]:
-    return metrology_lines(rows, config.get_verbosity())
-
-
-def metrology_lines(rows: Sequence[Row], verbosity: int = 0) -> list[str]:
+def metrology_lines(rows: Sequence[ResultRow], verbosity: int = 0) -> list[str]:
     """One line per check that carries an instrument uncertainty or uses simple acceptance
     (every check at ``verbosity > 0``): U, k, nu_eff, u_A, u_B, the rule and the conformance
-    probability, in the unit of the trials."""
+    probability, in the unit of the trials, in the words of the failure message."""
     if verbosity < 0:
         return []
     out = []
-    for row in sorted(rows, key=lambda r: (r.get("nodeid", ""), r.get("series", ""))):
+    for row in sorted_rows(rows):
         budget, rule = row.get("uncertainty"), row.get("rule")
         if not row.get("decision") or (budget is None and rule is None):
             continue
@@ -39,44 +31,22 @@ def metrology_lines(rows: Sequence[Row], verbosity: int = 0) -> list[str]:
     return ["", "measurement uncertainty and decision rule:", *out] if out else []
 
 
-def _describe(row: Row, budget: dict[str, Any] | None, rule: dict[str, Any] | None) -> str:
+def _describe(
+    row: ResultRow, budget: Mapping[str, Any] | None, rule: Mapping[str, Any] | None
+) -> str:
     unit = row.get("unit")
     parts = []
+    scale = None
     if budget is not None:
         scale = time_scale(budget["mean"]) if unit == SECONDS else None
         digits = min(significant_digits(budget["expanded"], budget["combined"] / 10), 4)
-
-        def fmt(value: float) -> str:
-            return format_value(value, unit, digits, scale=scale)
-
-        text = (f"U = {fmt(budget['expanded'])} (k = {budget['coverage_factor']:.3f}, "
-                f"nu_eff {_df(budget['effective_df'])}; u_A {fmt(budget['type_a'])}")
-        if budget.get("type_b"):
-            text += f", u_B {fmt(budget['type_b'])} (df {_df(budget['type_b_df'])})"
-        parts.append(text + ")")
+        parts.append(budget_words(budget, unit, scale, digits))
     if rule is not None:
-        if rule.get("rule") == "simple":
-            text = "simple acceptance (w = 0)"
-        else:
-            text = "guarded acceptance (w = U)"
-        if rule.get("conformance_probability") is not None:
-            text += f", conformance probability {format_probability(rule['conformance_probability'])}"
-        if rule.get("false_accept_probability") is not None:
-            risk = format_probability(rule["false_accept_probability"])
-            text += f", probability of false acceptance {risk}"
-        if rule.get("false_reject_probability") is not None:
-            risk = format_probability(rule["false_reject_probability"])
-            text += f", probability of false rejection {risk}"
-        parts.append(text)
+        parts.append(rule_words(rule, unit, scale))
     decision = row["decision"]
-    if (decision.get("verdict") == "UNDECIDED" and decision.get("suggested_n") is None
-            and budget is not None and budget.get("type_b")):
+    if (decision is not None and decision.get("verdict") == "UNDECIDED"
+            and decision.get("suggested_n") is None and budget is not None
+            and budget.get("type_b")):
         parts.append("more trials will not decide it: the instrument's own uncertainty leaves "
                      "too little room")
     return "; ".join(parts)
-
-
-def _df(value: float | None) -> str:
-    if value is None:
-        return "inf"
-    return f"{value:.0f}" if value >= 100 else f"{value:.3g}"

@@ -4,15 +4,22 @@ from __future__ import annotations
 
 import math
 from collections import Counter
-from collections.abc import Sequence
-from typing import Any
+from collections.abc import Callable, Sequence
 
-from meanband.units import SECONDS, format_value, significant_digits, time_scale
+from meanband import defaults
+from meanband.record.row import ResultRow
+from meanband.report.baseline import baseline_lines
+from meanband.report.metrology import metrology_lines
+from meanband.report.rows import row_name, sorted_rows
+from meanband.report.tables import format_table
+from meanband.report.timing import timing_lines
+from meanband.stats.verdict import Verdict
+from meanband.units import SECONDS, format_band, format_value, significant_digits, time_scale
 
-__all__ = ["format_summary", "totals_line"]
+__all__ = ["ROW_SECTIONS", "format_summary", "totals_line"]
 
-Row = dict[str, Any]
-_VERDICTS = ("PASS", "FAIL", "UNDECIDED")
+Row = ResultRow
+_VERDICTS = tuple(v.value for v in Verdict)
 
 
 def totals_line(rows: Sequence[Row]) -> str:
@@ -32,17 +39,20 @@ def totals_line(rows: Sequence[Row]) -> str:
     return text
 
 
-def format_summary(rows: Sequence[Row], verbosity: int = 0) -> list[str]:
-    """Summary lines: a table of checks, then notes, suggestions and unchecked trials.
+def format_summary(rows: Sequence[ResultRow], verbosity: int = 0) -> list[str]:
+    """The meanband summary of ``rows``: the one renderer behind the live summary and
+    ``meanband report``.
 
-    ``verbosity < 0`` gives the totals line only; ``verbosity > 0`` adds sd, df and the
-    critical value to the table.
+    The totals line, a table of checks, notes, suggested counts and unchecked trials, then one
+    section per feature that reads rows (``ROW_SECTIONS``: measurement uncertainty, timing,
+    baselines). ``verbosity < 0`` gives the totals line only; ``verbosity > 0`` adds sd, df and
+    the critical value to the table, every check's uncertainty line and the timing section.
     """
     if not rows:
         return []
     if verbosity < 0:
         return [totals_line(rows)]
-    rows = sorted(rows, key=lambda r: (r.get("nodeid", ""), r.get("series", "")))
+    rows = sorted_rows(rows)
     lines = [totals_line(rows)]
     checks = [r for r in rows if r.get("decision")]
     if checks:
@@ -51,27 +61,19 @@ def format_summary(rows: Sequence[Row], verbosity: int = 0) -> list[str]:
     lines.extend(_notes(rows))
     lines.extend(_suggestions(checks))
     lines.extend(_unchecked(rows))
+    for section in ROW_SECTIONS:
+        lines.extend(section(rows, verbosity))
     return lines
 
 
-def format_band(low: float, high: float, unit: str | None, digits: int = 4) -> str:
-    """A band as a user wrote it: ``<= 3 ms``, ``>= 10 V`` or ``[84.6, 85.4] degC``; timing
-    edges get a time unit of their own, so a 3 ms budget never shows as 3000 µs."""
-
-    def fmt(value: float) -> str:
-        return format_value(value, unit, digits, trim=True)
-
-    if math.isfinite(low) and math.isfinite(high):
-        return f"[{fmt(low)}, {fmt(high)}]"
-    if math.isfinite(high):
-        return f"<= {fmt(high)}"
-    return f">= {fmt(low)}"
+def _baseline_section(rows: Sequence[ResultRow], verbosity: int) -> list[str]:
+    return baseline_lines(rows)
 
 
-def row_name(row: Row) -> str:
-    """Test id, with the series in brackets when it has one."""
-    series = row.get("series") or ""
-    return f"{row.get('nodeid', '')}{f' [{series}]' if series else ''}"
+#: Sections that features contribute from rows alone, in the order they are printed.
+ROW_SECTIONS: tuple[Callable[[Sequence[ResultRow], int], list[str]], ...] = (
+    metrology_lines, timing_lines, _baseline_section,
+)
 
 
 def _cells(row: Row, verbosity: int) -> list[str]:
@@ -110,15 +112,7 @@ def _table(cells: list[list[str]], *, verbose: bool) -> list[str]:
     header = ["test", "n", "mean", "interval", "conf", "band", "verdict"]
     if verbose:
         header += ["sd", "df", "t"]
-    widths = [max(len(h), *(len(c[i]) for c in cells)) for i, h in enumerate(header)]
-    numeric = {1, 2}
-
-    def line(values: list[str]) -> str:
-        parts = [v.rjust(w) if i in numeric else v.ljust(w) for i, (v, w) in
-                 enumerate(zip(values, widths, strict=True))]
-        return "  ".join(parts).rstrip()
-
-    return [line(header), *(line(c) for c in cells)]
+    return format_table(header, cells, right={1, 2})
 
 
 def _notes(rows: Sequence[Row]) -> list[str]:
@@ -148,7 +142,7 @@ def _suggestions(checks: Sequence[Row]) -> list[str]:
         elif verdict == "PASS" and suggested is not None and suggested < n:
             out.append(f"  {row_name(row)}: PASS at n={n}; about {suggested} trials would "
                        "still pass")
-    powers = {r.get("settings", {}).get("power", 0.9) for r in checks}
+    powers = {r.get("settings", {}).get("power", defaults.POWER) for r in checks}
     power = f"{powers.pop() * 100:g}% power" if len(powers) == 1 else "stated power"
     return ["", f"suggested trial counts ({power}):", *out] if out else []
 

@@ -1,46 +1,19 @@
-"""Bands, verdicts and the decision of a check: does the interval of the mean lie inside?"""
+"""Bands: the range a mean must lie in, built from edges or from a center and tolerance."""
 
 from __future__ import annotations
 
-import enum
 import math
-from collections.abc import Iterable
 from dataclasses import dataclass
 from typing import Any
 
-import numpy as np
-
 from meanband.errors import TrialError
-from meanband.stats.diagnostics import Diagnostics, diagnose
-from meanband.stats.interval import Interval, mean_interval
-from meanband.stats.planning import trials_needed
-from meanband.stats.rules import GUARDED, RuleOutcome, apply_rule, check_rule
-from meanband.stats.sample import as_sample, check_confidence
-from meanband.stats.uncertainty import (
-    InstrumentSpec,
-    UncertaintyBudget,
-    as_instrument_uncertainty,
-    trials_to_decide,
-    uncertainty_budget,
-)
 from meanband.units import SECONDS, parse_duration
 
-__all__ = ["Band", "Decision", "Verdict", "decide", "make_band"]
+__all__ = ["Band", "Edge", "Tolerance", "make_band"]
 
 Edge = float | int | str | None
 #: A tolerance: symmetric ``0.4``, or asymmetric ``(below, above)`` such as ``(0.3, 0.5)``.
 Tolerance = Edge | tuple[Edge, Edge]
-
-
-class Verdict(str, enum.Enum):
-    """Outcome of a check. FAIL and UNDECIDED both fail the test, with different messages."""
-
-    PASS = "PASS"
-    FAIL = "FAIL"
-    UNDECIDED = "UNDECIDED"
-
-    def __str__(self) -> str:
-        return self.value
 
 
 @dataclass(frozen=True, slots=True)
@@ -138,122 +111,3 @@ def _edge_value(edge: Edge, unit: str | None, name: str) -> float:
     if math.isnan(value) or (name in ("center", "tolerance") and math.isinf(value)):
         raise TrialError(f"{name}= must be a finite number, got {edge!r}")
     return value
-
-
-@dataclass(frozen=True, slots=True)
-class Decision:
-    """The verdict of one check and everything behind it."""
-
-    verdict: Verdict
-    band: Band
-    interval: Interval
-    counter: Interval | None
-    diagnostics: Diagnostics
-    suggested_n: int | None
-    unit: str | None = None
-    #: The uncertainty of the mean (Type A, instrument Type B, k, U); None for methods other
-    #: than the t interval.
-    uncertainty: UncertaintyBudget | None = None
-    #: The decision rule applied and the conformance probability.
-    rule: RuleOutcome | None = None
-
-    @property
-    def passed(self) -> bool:
-        """True for PASS only."""
-        return self.verdict is Verdict.PASS
-
-    def to_dict(self) -> dict[str, Any]:
-        """Builtin types only, safe for JSON and for pytest-xdist's report transport."""
-        return {
-            "verdict": self.verdict.value,
-            "band": self.band.to_dict(),
-            "interval": self.interval.to_dict(),
-            "counter": None if self.counter is None else self.counter.to_dict(),
-            "diagnostics": self.diagnostics.to_dict(),
-            "suggested_n": self.suggested_n,
-            "unit": self.unit,
-        }
-
-
-def decide(
-    values: Iterable[float] | np.ndarray,
-    band: Band,
-    *,
-    confidence: float = 0.95,
-    method: str = "t",
-    power: float = 0.9,
-    alpha: float = 0.05,
-    instrument_uncertainty: InstrumentSpec = None,
-    rule: str = GUARDED,
-) -> Decision:
-    """Decide a check at ``confidence``.
-
-    Two-sided band: the two-sided interval must lie inside (PASS), wholly outside on an edge
-    (FAIL) or straddles an edge (UNDECIDED). A budget (one open edge): the one-sided bound at
-    ``confidence`` must be inside for PASS; the opposite one-sided bound beyond the edge is FAIL.
-    This is guarded acceptance with the guard band equal to the expanded uncertainty
-    (ILAC-G8:2019; JCGM 106:2012, clause 8).
-
-    ``instrument_uncertainty`` (a standard uncertainty in the trials' unit, ``(u, df)`` or an
-    :class:`~meanband.stats.uncertainty.InstrumentUncertainty`) is combined with the Type A
-    uncertainty of the mean (JCGM 100:2008): the interval becomes mean +/- U. ``rule="simple"``
-    compares the mean alone with the band (simple acceptance, no UNDECIDED).
-    """
-    level = check_confidence(confidence)
-    check_rule(rule)
-    instrument = as_instrument_uncertainty(instrument_uncertainty)
-    x = as_sample(values, minimum=2)
-    side = band.side
-    budget: UncertaintyBudget | None = None
-    if method == "t":
-        budget = uncertainty_budget(x, level, side, instrument)
-    elif instrument is not None and instrument.standard > 0:
-        raise TrialError(
-            f"instrument_uncertainty combines with the t interval only (JCGM 100); this check "
-            f"uses method={method!r}: use method='t' or leave instrument_uncertainty out"
-        )
-    combined = budget if budget is not None and budget.has_instrument else None
-    interval = combined.interval() if combined is not None else mean_interval(x, level, side, method)
-    counter: Interval | None = None
-    low, high = interval.low, interval.high
-    if side != "two-sided":
-        opposite = "lower" if side == "upper" else "upper"
-        if combined is not None:
-            counter = combined.interval(opposite)
-        else:
-            counter = mean_interval(x, level, opposite, method)
-        # The bounds that decide a budget: the one-sided bound and its opposite counterpart.
-        if side == "upper":
-            low, high = counter.low, interval.high
-        else:
-            low, high = interval.low, counter.high
-    outcome = apply_rule(
-        rule, mean=interval.mean, low=low, high=high, band_low=band.low, band_high=band.high,
-        standard_uncertainty=None if budget is None else budget.combined,
-        df=None if budget is None else budget.effective_df,
-    )
-    verdict = Verdict(outcome.verdict)
-    diagnostics = diagnose(x, alpha=alpha)
-    suggested = None
-    if verdict is not Verdict.FAIL:
-        margin = edge_margin(interval.mean, band)
-        if combined is not None:
-            suggested = trials_to_decide(
-                interval.sd, margin, instrument, confidence=level, side=side, power=power
-            )
-        else:
-            # sem * sqrt(n) is the sd per trial that the method's interval implies: the plain
-            # sd for independent trials, the long-run sd for batch means of correlated ones.
-            spread = interval.sem * math.sqrt(interval.n)
-            suggested = trials_needed(
-                spread, margin=margin, confidence=level, side=side, power=power
-            )
-    return Decision(
-        verdict, band, interval, counter, diagnostics, suggested, band.unit, budget, outcome
-    )
-
-
-def edge_margin(mean: float, band: Band) -> float:
-    """Distance from the mean to the band edge that decides the check (the nearest one)."""
-    distances = [abs(mean - edge) for edge in (band.low, band.high) if math.isfinite(edge)]
-    return min(distances)

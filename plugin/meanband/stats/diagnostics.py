@@ -10,7 +10,7 @@ from typing import Any
 import numpy as np
 
 from meanband.errors import TrialError
-from meanband.stats.sample import as_sample, deviations, sum_of_products
+from meanband.stats.sample import as_sample, check_probability, deviations, sum_of_products
 
 __all__ = [
     "BIMODAL_THRESHOLD",
@@ -148,8 +148,7 @@ def diagnose(values: Iterable[float] | np.ndarray, *, alpha: float = 0.05) -> Di
     - bimodality: Sarle's coefficient (G1^2 + 1) / (G2 + 3(n-1)^2/((n-2)(n-3))), above 5/9
       suggesting two modes (SAS Institute 1990; Pfister et al. 2013).
     """
-    if not 0.0 < alpha < 1.0:
-        raise TrialError(f"alpha must lie strictly between 0 and 1, got {alpha!r}")
+    alpha = check_probability(alpha, "alpha")
     x = as_sample(values, minimum=1)
     n = x.size
     if n > 1:

@@ -3,16 +3,15 @@
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Iterable
 from dataclasses import asdict, dataclass
 from typing import Any
 
 import numpy as np
 
 from meanband.errors import TrialError
-from meanband.stats.sample import as_sample, check_confidence, location_scale
+from meanband.stats.sample import check_confidence, location_scale
 
-__all__ = ["METHODS", "SIDES", "Interval", "critical_t", "mean_interval", "t_interval"]
+__all__ = ["SIDES", "Interval", "check_side", "critical_t", "t_interval"]
 
 SIDES = ("two-sided", "upper", "lower")
 
@@ -59,7 +58,7 @@ class Interval:
 def critical_t(confidence: float, df: float, side: str = "two-sided") -> float:
     """Student-t critical value: the (1+C)/2 quantile two-sided, the C quantile one-sided."""
     level = check_confidence(confidence)
-    _check_side(side)
+    check_side(side)
     if not df > 0:  # also refuses NaN, for which scipy would quietly return NaN
         raise TrialError(f"degrees of freedom must be positive, got {df!r}; use n - 1 for n trials")
     q = (1.0 + level) / 2.0 if side == "two-sided" else level
@@ -85,38 +84,7 @@ def t_interval(x: np.ndarray, confidence: float, side: str) -> Interval:
     return Interval(mean, low, high, confidence, side, n, df, sd, sem, "t", crit, "mean")
 
 
-IntervalMethod = Callable[[np.ndarray, float, str], Interval]
-
-#: Interval methods by name. Each takes (validated trials, confidence, side).
-METHODS: dict[str, IntervalMethod] = {"t": t_interval}
-
-
-def mean_interval(
-    values: Iterable[float] | np.ndarray,
-    confidence: float = 0.95,
-    side: str = "two-sided",
-    method: str = "t",
-) -> Interval:
-    """Confidence interval of the mean of ``values``.
-
-    With ``side="two-sided"`` the interval covers the true mean with probability ``confidence``;
-    with ``"upper"``/``"lower"`` the single bound does. Zero spread gives ``[mean, mean]``.
-    """
-    level = check_confidence(confidence)
-    _check_side(side)
-    try:
-        compute = METHODS[method]
-    except KeyError:
-        raise TrialError(
-            f"unknown interval method {method!r}; choose one of {', '.join(sorted(METHODS))}"
-        ) from None
-    return compute(as_sample(values, minimum=2), level, side)
-
-
-def _check_side(side: str) -> None:
+def check_side(side: str) -> str:
     if side not in SIDES:
         raise TrialError(f"unknown side {side!r}; choose one of {', '.join(SIDES)}")
-
-
-# The other methods register themselves in METHODS; imported last because they use this module.
-from meanband.stats import methods as _methods  # noqa: E402, F401
+    return side

@@ -2,30 +2,33 @@
 
 Each method takes validated trials, a confidence and a side, and returns an ``Interval`` whose
 ``estimand`` says what it bounds: the arithmetic ``"mean"`` or the ``"geometric mean"``.
-Importing this module registers the methods in ``meanband.stats.interval.METHODS``.
+``METHODS`` holds every method by name, the t interval included; ``mean_interval`` picks one.
 """
 
 from __future__ import annotations
 
 import math
-from typing import Any
+from collections.abc import Callable, Iterable
 
 import numpy as np
 
+from meanband import defaults
 from meanband.errors import TrialError
-from meanband.stats.interval import METHODS, Interval, critical_t
-from meanband.stats.sample import location_scale
+from meanband.stats.interval import Interval, check_side, critical_t, t_interval
+from meanband.stats.sample import as_sample, check_confidence, location_scale
 
 __all__ = [
     "BOOTSTRAP_RESAMPLES",
     "BOOTSTRAP_SEED",
     "MAX_BATCHES",
+    "METHODS",
     "batch_count",
     "batch_means_interval",
     "bca_mean_bounds",
     "bootstrap_interval",
     "cox_interval",
     "log_t_interval",
+    "mean_interval",
 ]
 
 #: Seed of the bootstrap's generator: the same trials always give the same interval.
@@ -234,13 +237,35 @@ def batch_means_interval(x: np.ndarray, confidence: float, side: str) -> Interva
     )
 
 
-def _register(registry: dict[str, Any]) -> None:
-    registry.update({
-        "log-t": log_t_interval,
-        "cox": cox_interval,
-        "bootstrap": bootstrap_interval,
-        "batch-means": batch_means_interval,
-    })
+IntervalMethod = Callable[[np.ndarray, float, str], Interval]
+
+#: Interval methods by name. Each takes (validated trials, confidence, side).
+METHODS: dict[str, IntervalMethod] = {
+    "t": t_interval,
+    "log-t": log_t_interval,
+    "cox": cox_interval,
+    "bootstrap": bootstrap_interval,
+    "batch-means": batch_means_interval,
+}
 
 
-_register(METHODS)
+def mean_interval(
+    values: Iterable[float] | np.ndarray,
+    confidence: float = defaults.CONFIDENCE,
+    side: str = "two-sided",
+    method: str = "t",
+) -> Interval:
+    """Confidence interval of the mean of ``values``.
+
+    With ``side="two-sided"`` the interval covers the true mean with probability ``confidence``;
+    with ``"upper"``/``"lower"`` the single bound does. Zero spread gives ``[mean, mean]``.
+    """
+    level = check_confidence(confidence)
+    check_side(side)
+    try:
+        compute = METHODS[method]
+    except KeyError:
+        raise TrialError(
+            f"unknown interval method {method!r}; choose one of {', '.join(sorted(METHODS))}"
+        ) from None
+    return compute(as_sample(values, minimum=2), level, side)

@@ -6,8 +6,9 @@ import math
 
 import numpy as np
 
+from meanband import defaults
 from meanband.errors import TrialError
-from meanband.stats.sample import check_confidence
+from meanband.stats.sample import check_confidence, check_probability
 
 __all__ = ["power_against_edge", "trials_needed"]
 
@@ -19,9 +20,9 @@ def trials_needed(
     *,
     half_width: float | None = None,
     margin: float | None = None,
-    confidence: float = 0.95,
+    confidence: float = defaults.CONFIDENCE,
     side: str = "two-sided",
-    power: float = 0.9,
+    power: float = defaults.POWER,
     n_max: int = 1_000_000,
 ) -> int | None:
     """Smallest trial count that meets a goal, given a planning standard deviation ``sd``.
@@ -39,8 +40,7 @@ def trials_needed(
     Returns None when no n up to ``n_max`` meets the goal (for instance a zero margin).
     """
     level = check_confidence(confidence)
-    if not (0.0 < power < 1.0):
-        raise TrialError(f"power must lie strictly between 0 and 1, got {power!r}")
+    power = check_probability(power, "power")
     if side not in ("two-sided", "upper", "lower"):
         raise TrialError(f"unknown side {side!r}; choose one of two-sided, upper, lower")
     if not math.isfinite(sd) or sd < 0:

@@ -10,14 +10,17 @@ from typing import Any
 
 import numpy as np
 
+from meanband import defaults
 from meanband.errors import TrialError
-from meanband.stats.bands import Verdict
 from meanband.stats.sample import as_sample, check_confidence, location_scale
+from meanband.stats.verdict import Verdict
 
 __all__ = [
     "RATIO_METHODS",
     "Difference",
+    "RatioCheck",
     "RatioInterval",
+    "check_ratio",
     "judge_ratio",
     "mean_difference",
     "paired_ratio_interval",
@@ -83,7 +86,7 @@ class RatioInterval:
 def mean_difference(
     a: Iterable[float] | np.ndarray,
     b: Iterable[float] | np.ndarray,
-    confidence: float = 0.95,
+    confidence: float = defaults.CONFIDENCE,
     *,
     pooled: bool = False,
 ) -> Difference:
@@ -134,7 +137,7 @@ def _difference(estimate: float, se: float, df: float, level: float, pooled: boo
 def ratio_interval(
     current: Iterable[float] | np.ndarray,
     baseline: Iterable[float] | np.ndarray,
-    confidence: float = 0.95,
+    confidence: float = defaults.CONFIDENCE,
     method: str = "log",
 ) -> RatioInterval:
     """Two-sided interval of the ratio ``current / baseline`` from two independent samples.
@@ -235,7 +238,7 @@ def _fieller(
 def paired_ratio_interval(
     current: Iterable[float] | np.ndarray,
     baseline: Iterable[float] | np.ndarray,
-    confidence: float = 0.95,
+    confidence: float = defaults.CONFIDENCE,
 ) -> RatioInterval:
     """Interval of the ratio from paired trials: Student's t on the log ratios of the pairs.
 
@@ -293,3 +296,51 @@ def parse_fraction(text: str | float, what: str) -> float:
     if not math.isfinite(value) or value < 0.0:
         raise TrialError(f"{what} must be a finite amount >= 0, got {text!r}; write e.g. '5%'")
     return value
+
+
+@dataclass(frozen=True)
+class RatioCheck:
+    """The verdict on ``first / second`` against ``[at_least, at_most]``."""
+
+    verdict: Verdict
+    interval: RatioInterval
+    at_least: float
+    at_most: float
+
+    @property
+    def passed(self) -> bool:
+        """True for PASS only."""
+        return self.verdict is Verdict.PASS
+
+
+def check_ratio(
+    first: np.ndarray,
+    second: np.ndarray,
+    *,
+    at_most: float | None = None,
+    at_least: float | None = None,
+    confidence: float = defaults.CONFIDENCE,
+) -> RatioCheck:
+    """Judge the paired ratio ``first / second``: PASS when its two-sided interval lies in
+    ``[at_least, at_most]``, FAIL when wholly outside, UNDECIDED when it straddles an edge."""
+    if at_most is None and at_least is None:
+        raise TrialError(
+            "a comparison needs a limit: at_most= (e.g. 1.05 for 'at most 5% slower') "
+            "and/or at_least="
+        )
+    high = math.inf if at_most is None else _limit(at_most, "at_most")
+    low = -math.inf if at_least is None else _limit(at_least, "at_least")
+    if low > high:
+        raise TrialError(f"at_least={at_least!r} lies above at_most={at_most!r}; swap them")
+    interval = paired_ratio_interval(first, second, confidence)
+    return RatioCheck(judge_ratio(interval, low, high), interval, low, high)
+
+
+def _limit(value: Any, name: str) -> float:
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        raise TrialError(f"{name} must be a ratio such as 1.05, got {value!r}") from None
+    if not math.isfinite(number) or number <= 0:
+        raise TrialError(f"{name} must be a positive finite ratio such as 1.05, got {value!r}")
+    return number

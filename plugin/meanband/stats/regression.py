@@ -9,21 +9,23 @@ from typing import Any
 
 import numpy as np
 
-from meanband.stats.bands import Verdict
+from meanband import defaults
+from meanband.errors import TrialError
 from meanband.stats.ratio import RatioInterval, judge_ratio, ratio_interval
+from meanband.stats.verdict import Verdict
 from meanband.units import SECONDS
 
 __all__ = [
     "CANNOT_TELL",
     "DEFAULT_MAX_CHANGE",
     "DEFAULT_MAX_INCREASE",
+    "NOT_COMPARED",
     "NO_BASELINE",
     "NO_REGRESSION",
     "REGRESSED",
     "Limits",
+    "compare_check",
     "compare_samples",
-    "format_limit",
-    "format_ratio",
     "is_timing",
 ]
 
@@ -33,9 +35,9 @@ CANNOT_TELL = "cannot tell yet"
 NO_BASELINE = "no baseline"
 
 #: A timing may grow by this fraction of its baseline before it counts as a regression.
-DEFAULT_MAX_INCREASE = 0.05
+DEFAULT_MAX_INCREASE = defaults.MAX_INCREASE
 #: A measured value (not a timing) may move by this fraction either way.
-DEFAULT_MAX_CHANGE = 0.05
+DEFAULT_MAX_CHANGE = defaults.MAX_CHANGE
 
 _WORDS = {Verdict.FAIL: REGRESSED, Verdict.PASS: NO_REGRESSION, Verdict.UNDECIDED: CANNOT_TELL}
 
@@ -64,8 +66,9 @@ def compare_samples(
     baseline: Iterable[float] | np.ndarray,
     *,
     timing: bool,
-    confidence: float = 0.95,
+    confidence: float = defaults.CONFIDENCE,
     limits: Limits | None = None,
+    power: float = defaults.POWER,
 ) -> dict[str, Any]:
     """Compare ``current`` trials with ``baseline`` trials of the same check.
 
@@ -98,7 +101,7 @@ def compare_samples(
         "n_baseline": interval.n_baseline,
     }
     if status == CANNOT_TELL:
-        result["suggested_n"] = _trials_to_decide(xc, xb, interval, (low, high), confidence)
+        result["suggested_n"] = _trials_to_decide(xc, xb, interval, (low, high), confidence, power)
     if timing and not positive:
         result["note"] = (
             "some timings are zero or negative, so they were compared as a ratio of means "
@@ -109,7 +112,7 @@ def compare_samples(
 
 def _trials_to_decide(
     xc: np.ndarray, xb: np.ndarray, interval: RatioInterval, band: tuple[float, float],
-    confidence: float,
+    confidence: float, power: float,
 ) -> int | None:
     """Trials per run (the same in both) that would likely decide an undecided comparison.
 
@@ -133,20 +136,41 @@ def _trials_to_decide(
         margin = min(abs(interval.ratio - e) for e in edges)
     if not (sd > 0 and margin > 0 and math.isfinite(sd)):
         return None
-    return trials_needed(sd, margin=margin, confidence=confidence, side="two-sided")
+    return trials_needed(sd, margin=margin, confidence=confidence, side="two-sided", power=power)
 
 
-def format_limit(comparison: dict[str, Any]) -> str:
-    """The allowed range of a comparison in words: ``<= 1.05x`` or ``0.95x..1.05x``."""
-    high = comparison["limit_high"]
-    low = comparison.get("limit_low")
-    if low is None:
-        return f"<= {high:.4g}x"
-    return f"{low:.4g}x..{high:.4g}x"
+#: Status of a check that was not compared with its baseline, and the words that say why.
+NOT_COMPARED = "not compared"
 
 
-def format_ratio(ratio: dict[str, Any]) -> str:
-    """A ratio interval as ``1.21x [1.15, 1.27]``; unbounded intervals say so."""
-    if not ratio.get("bounded", True):
-        return f"{ratio['ratio']:.3f}x [unbounded]"
-    return f"{ratio['ratio']:.3f}x [{ratio['low']:.3f}, {ratio['high']:.3f}]"
+def compare_check(
+    current: Iterable[float] | np.ndarray,
+    baseline: Iterable[float] | np.ndarray | None,
+    *,
+    unit: str | None,
+    source: str | None,
+    baseline_unit: str | None = None,
+    baseline_run: str = "the baseline run",
+    confidence: float = defaults.CONFIDENCE,
+    limits: Limits | None = None,
+    power: float = defaults.POWER,
+) -> dict[str, Any]:
+    """A check against the same check of a stored run, with the rules for what is not compared.
+
+    ``baseline`` is None when the stored run has no such check. An in-run comparison is its own
+    gate; a check whose unit changed, or whose trials cannot be compared, gets ``not compared``
+    with the reason. Otherwise :func:`compare_samples` decides. Builtin types only.
+    """
+    if source == "compare":
+        return {"status": NOT_COMPARED, "reason": "an in-run comparison is its own gate"}
+    if baseline is None:
+        return {"status": NO_BASELINE, "reason": f"{baseline_run} has no trials for this check"}
+    if baseline_unit != unit:
+        return {"status": NOT_COMPARED,
+                "reason": f"the unit changed from {baseline_unit or 'none'} to {unit or 'none'} "
+                          f"since {baseline_run}"}
+    try:
+        return compare_samples(current, baseline, timing=is_timing(unit, source),
+                               confidence=confidence, limits=limits, power=power)
+    except TrialError as exc:
+        return {"status": NOT_COMPARED, "reason": str(exc)}

@@ -7,6 +7,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from meanband.errors import TrialError
+from meanband.stats.verdict import Verdict
 
 __all__ = [
     "GUARDED",
@@ -16,7 +17,6 @@ __all__ = [
     "apply_rule",
     "check_rule",
     "conformance_probability",
-    "format_probability",
 ]
 
 #: Guarded acceptance, guard band w = U: PASS only when the interval lies inside the band.
@@ -25,7 +25,7 @@ GUARDED = "guarded"
 SIMPLE = "simple"
 RULES = (GUARDED, SIMPLE)
 
-_PASS, _FAIL, _UNDECIDED = "PASS", "FAIL", "UNDECIDED"
+_PASS, _FAIL, _UNDECIDED = Verdict.PASS, Verdict.FAIL, Verdict.UNDECIDED
 
 
 @dataclass(frozen=True, slots=True)
@@ -41,7 +41,7 @@ class RuleOutcome:
     """
 
     rule: str
-    verdict: str
+    verdict: Verdict
     guard_band: float
     acceptance_low: float
     acceptance_high: float
@@ -53,7 +53,7 @@ class RuleOutcome:
         """Builtin types only; an open acceptance edge is written as None."""
         return {
             "rule": self.rule,
-            "verdict": self.verdict,
+            "verdict": self.verdict.value,
             "guard_band": float(self.guard_band),
             "acceptance_low": _finite_or_none(self.acceptance_low),
             "acceptance_high": _finite_or_none(self.acceptance_high),
@@ -169,15 +169,6 @@ def apply_rule(
         false_accept_probability=false_accept,
         false_reject_probability=false_reject,
     )
-
-
-def format_probability(p: float) -> str:
-    """A probability with enough digits to tell 0.9999 from 1 (``1 - 2e-06``)."""
-    if p == 0.0 or p == 1.0:
-        return f"{p:g}"
-    if p > 0.99:
-        return f"1 - {1.0 - p:.2g}"
-    return f"{p:.3g}"
 
 
 def _outside(

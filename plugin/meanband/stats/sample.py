@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections.abc import Iterable, Sequence
 
@@ -9,7 +10,15 @@ import numpy as np
 
 from meanband.errors import TrialError
 
-__all__ = ["as_sample", "check_confidence", "deviations", "location_scale", "sum_of_products"]
+__all__ = [
+    "ArrayEquality",
+    "as_sample",
+    "check_confidence",
+    "check_probability",
+    "deviations",
+    "location_scale",
+    "sum_of_products",
+]
 
 _MAX_LISTED_POSITIONS = 8
 
@@ -45,16 +54,27 @@ def as_sample(values: Iterable[float] | np.ndarray, *, minimum: int = 2) -> np.n
     return x
 
 
-def check_confidence(confidence: float) -> float:
-    """Return ``confidence`` as a float if it lies strictly between 0 and 1."""
+def check_probability(value: object, what: str = "confidence") -> float:
+    """Return ``value`` as a float strictly between 0 and 1, or raise naming ``what``.
+
+    The one validator of levels and powers (confidence, power, test levels), so every one of
+    them refuses the same values with the same words.
+    """
+    if isinstance(value, bool):
+        raise TrialError(f"{what} must be a number between 0 and 1, got {value!r}")
     try:
-        level = float(confidence)
+        level = float(value)  # type: ignore[arg-type]
     except (TypeError, ValueError) as exc:
-        raise TrialError(f"confidence must be a number between 0 and 1, got {confidence!r}") from exc
+        raise TrialError(f"{what} must be a number between 0 and 1, got {value!r}") from exc
     if not (0.0 < level < 1.0) or math.isnan(level):
         hint = f"; did you mean {level / 100:g}?" if 1.0 < level < 100.0 else ""
-        raise TrialError(f"confidence must lie strictly between 0 and 1, got {confidence!r}{hint}")
+        raise TrialError(f"{what} must lie strictly between 0 and 1, got {value!r}{hint}")
     return level
+
+
+def check_confidence(confidence: float) -> float:
+    """Return ``confidence`` as a float if it lies strictly between 0 and 1."""
+    return check_probability(confidence, "confidence")
 
 
 def location_scale(x: np.ndarray) -> tuple[float, float]:
@@ -107,3 +127,31 @@ def sum_of_products(a: np.ndarray, b: np.ndarray) -> float:
 
 #: Values per block in sum_of_products: the buffer (256 KiB) stays in the CPU cache.
 _BLOCK = 1 << 15
+
+
+class ArrayEquality:
+    """``==`` for frozen dataclasses that hold numpy arrays (declare them with ``eq=False``).
+
+    The generated ``__eq__`` compares fields as tuples, which raises "the truth value of an
+    array is ambiguous"; this one compares array fields element-wise (NaN equal to NaN) and the
+    rest as usual. Instances stay unhashable, as mutable arrays make them.
+    """
+
+    __slots__ = ()
+    __hash__ = None  # type: ignore[assignment]
+
+    def __eq__(self, other: object) -> bool:
+        if other.__class__ is not self.__class__:
+            return NotImplemented
+        for field in dataclasses.fields(self):  # type: ignore[arg-type]
+            mine, theirs = getattr(self, field.name), getattr(other, field.name)
+            if isinstance(mine, np.ndarray) or isinstance(theirs, np.ndarray):
+                if not (isinstance(mine, np.ndarray) and isinstance(theirs, np.ndarray)):
+                    return False
+                if mine.shape != theirs.shape or not np.array_equal(
+                    mine, theirs, equal_nan=mine.dtype.kind == "f"
+                ):
+                    return False
+            elif mine != theirs:
+                return False
+        return True

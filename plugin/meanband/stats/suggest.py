@@ -3,13 +3,14 @@
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
 
+from meanband import defaults
 from meanband.errors import TrialError
 from meanband.stats.planning import power_against_edge, trials_needed
-from meanband.stats.sample import check_confidence
+from meanband.stats.sample import check_confidence, check_probability
+from meanband.stats.verdict import Verdict
 from meanband.units import SECONDS, format_value
 
 __all__ = [
@@ -18,12 +19,10 @@ __all__ = [
     "Suggestion",
     "check_power",
     "suggest_trials",
-    "suggestion_for_row",
-    "trial_seconds",
 ]
 
 #: Power asked of a suggested count unless the settings say otherwise.
-DEFAULT_POWER = 0.9
+DEFAULT_POWER = defaults.POWER
 
 #: A cut of fewer than this share of the trials is within the noise of the estimated mean and
 #: sd: suggesting it would churn the plan from run to run, so the count is kept instead.
@@ -66,14 +65,7 @@ class Suggestion:
 
 def check_power(power: Any, where: str = "power") -> float:
     """Return ``power`` as a float strictly between 0 and 1, or raise naming ``where``."""
-    try:
-        value = float(power)
-    except (TypeError, ValueError) as exc:
-        raise TrialError(f"{where} must be a number between 0 and 1, got {power!r}") from exc
-    if not (0.0 < value < 1.0):
-        hint = f"; did you mean {value / 100:g}?" if 1.0 < value < 100.0 else ""
-        raise TrialError(f"{where} must lie strictly between 0 and 1, got {power!r}{hint}")
-    return value
+    return check_probability(power, where)
 
 
 def suggest_trials(
@@ -104,10 +96,11 @@ def suggest_trials(
     """
     level = check_confidence(confidence)
     power = check_power(power)
-    verdict = str(verdict)
-    if verdict not in ("PASS", "FAIL", "UNDECIDED"):
-        raise TrialError(f"unknown verdict {verdict!r}; expected PASS, FAIL or UNDECIDED")
-    if verdict == "FAIL":
+    try:
+        verdict = Verdict(str(verdict))
+    except ValueError:
+        raise TrialError(f"unknown verdict {verdict!r}; expected PASS, FAIL or UNDECIDED") from None
+    if verdict is Verdict.FAIL:
         return None
     if n < 2:
         raise TrialError(f"a suggestion needs the count of a check with at least 2 trials, got {n}")
@@ -145,7 +138,7 @@ def suggest_trials(
         return Suggestion(None, reason, "none", n, power, power_now)
     by_power, needed = needed, max(needed, floor)
 
-    if verdict == "UNDECIDED":
+    if verdict is Verdict.UNDECIDED:
         count = max(needed, n + 1)
         reason = (
             f"UNDECIDED at n={n}; about {count} trials would decide it with {power:.0%} power "
@@ -185,95 +178,3 @@ def _power(margin: float, sd: float, n: int, alpha: float) -> float:
     if sd == 0:
         return 1.0 if margin > 0 else 0.0
     return float(power_against_edge(margin / sd, n, alpha))
-
-
-def trial_seconds(row: Mapping[str, Any]) -> float | None:
-    """Wall-clock seconds one more trial of a timing row costs, or None when unknown.
-
-    The mean seconds per call times the calls per trial (the timing engine's ``k``): the
-    marginal cost of a trial, leaving out fixed costs such as calibration and warm-up that a
-    smaller count does not save. Only timing rows have one: a sample's callable may wait on
-    an instrument whose time the trials do not measure.
-    """
-    if row.get("source") != "time":
-        return None
-    values = row.get("values") or []
-    if not values:
-        return None
-    timing = row.get("timing") or {}
-    calls = timing.get("k") or 1
-    return float(sum(values) / len(values)) * float(calls)
-
-
-def suggestion_for_row(
-    row: Mapping[str, Any], *, power: float | None = None
-) -> Suggestion | None:
-    """The suggestion for one result row (see the row contract), or None.
-
-    None for a series with no check and for a FAIL. A check whose count the two-stage rule
-    chose at run time (``n="auto"``) gets direction ``"auto"`` and no count, with a reason that
-    says what to change when it stayed UNDECIDED. ``power`` overrides the row's own setting.
-    """
-    decision = row.get("decision")
-    if row.get("kind") != "check" or not decision:
-        return None
-    interval = decision["interval"]
-    if interval.get("method") == "two-stage":
-        return _two_stage_suggestion(row, decision)
-    settings = row.get("settings") or {}
-    if power is None:
-        power = settings.get("power", DEFAULT_POWER)
-    if (row.get("rule") or {}).get("rule") == "simple" and decision["verdict"] != "FAIL":
-        # Simple acceptance compares the mean alone: the power of the interval says nothing
-        # about it, so the count is kept (its risk is the rule's false-acceptance probability).
-        n = int(interval["n"])
-        reason = (f"{decision['verdict']} at n={n} under simple acceptance, which compares the "
-                  "mean alone: the count is kept")
-        return Suggestion(n, reason, "keep", n, float(power), None)
-    band = decision["band"]
-    return suggest_trials(
-        verdict=decision["verdict"],
-        mean=float(interval["mean"]),
-        # The spread the decision planned with (bands.decide): sem * sqrt(n) is the sd for the
-        # t interval and the long-run spread for batch means, so both counts agree.
-        sd=float(interval["sem"]) * math.sqrt(int(interval["n"])),
-        n=int(interval["n"]),
-        low=float(band["low"]),
-        high=float(band["high"]),
-        confidence=float(interval["confidence"]),
-        power=float(power) if power is not None else DEFAULT_POWER,
-        min_n=int(settings.get("min_n") or 2),
-        trial_seconds=trial_seconds(row),
-        unit=decision.get("unit") or row.get("unit"),
-        **_instrument_count(row, decision),
-    )
-
-
-def _instrument_count(row: Mapping[str, Any], decision: Mapping[str, Any]) -> dict[str, Any]:
-    """The decision's own count when an instrument uncertainty shares the budget, else nothing."""
-    budget = row.get("uncertainty") or {}
-    if budget.get("type_b"):
-        return {"instrument_count": decision.get("suggested_n")}
-    return {}
-
-
-def _two_stage_suggestion(row: Mapping[str, Any], decision: Mapping[str, Any]) -> Suggestion | None:
-    verdict = decision["verdict"]
-    if verdict == "FAIL":
-        return None
-    stages = row.get("two_stage") or {}
-    n = int(decision["interval"]["n"])
-    pilot, power = stages.get("pilot_n", "?"), float(stages.get("power", DEFAULT_POWER))
-    if verdict == "PASS":
-        reason = f"count chosen at run time by the two-stage rule (pilot {pilot} + {n})"
-    elif stages.get("capped"):
-        reason = (
-            f"UNDECIDED at n={n} after a pilot of {pilot}: the two-stage rule was capped at "
-            f"max_n={stages.get('max_n')}; raise max_n to let it decide"
-        )
-    else:
-        reason = (
-            f"UNDECIDED at n={n} after a pilot of {pilot}: the mean is likely nearer the edge "
-            "than the pilot's margin; a larger pilot= gives a better margin"
-        )
-    return Suggestion(None, reason, "auto", n, power, None)

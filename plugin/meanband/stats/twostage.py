@@ -41,11 +41,20 @@ from typing import Any
 
 import numpy as np
 
+from meanband import defaults
 from meanband.errors import TrialError
-from meanband.stats.bands import Band, Decision, Verdict
+from meanband.stats.bands import Band
+from meanband.stats.decision import Decision
 from meanband.stats.diagnostics import diagnose
 from meanband.stats.interval import Interval
-from meanband.stats.sample import as_sample, check_confidence, location_scale
+from meanband.stats.sample import (
+    ArrayEquality,
+    as_sample,
+    check_confidence,
+    check_probability,
+    location_scale,
+)
+from meanband.stats.verdict import Verdict
 
 __all__ = [
     "DEFAULT_MAX_N",
@@ -184,14 +193,13 @@ def plan_second_stage(
     pilot: Iterable[float] | np.ndarray,
     band: Band,
     *,
-    confidence: float = 0.95,
-    power: float = 0.9,
+    confidence: float = defaults.CONFIDENCE,
+    power: float = defaults.POWER,
     max_n: int = DEFAULT_MAX_N,
 ) -> StagePlan:
     """From the pilot trials, the second-stage count that decides ``band`` at ``power``."""
     level = check_confidence(confidence)
-    if not (0.0 < power < 1.0):
-        raise TrialError(f"power must lie strictly between 0 and 1, got {power!r}")
+    power = check_probability(power, "power")
     x = as_sample(pilot, minimum=2)
     max_n = check_max_n(max_n, x.size)
     mean, sd = location_scale(x)
@@ -255,7 +263,7 @@ def verdicts(
         inside, beyond = upper <= high, lower > high
     else:
         inside, beyond = lower >= low, upper < low
-    out = np.where(inside, "PASS", np.where(beyond, "FAIL", "UNDECIDED"))
+    out = np.where(inside, Verdict.PASS.value, np.where(beyond, Verdict.FAIL.value, Verdict.UNDECIDED.value))
     return np.asarray(out)
 
 
@@ -307,11 +315,14 @@ def decide_two_stage(
         confidence=plan.confidence,
     )
     diagnostics = diagnose(np.concatenate([first, rest]), alpha=alpha)
-    return Decision(Verdict(str(verdict)), band, interval, counter, diagnostics, None, band.unit)
+    return Decision(
+        Verdict(str(verdict)), band, interval, counter, diagnostics, None, band.unit,
+        power=plan.power,
+    )
 
 
-@dataclass(frozen=True)
-class TwoStageRun:
+@dataclass(frozen=True, eq=False)
+class TwoStageRun(ArrayEquality):
     """Trials of both stages and the plan the pilot made."""
 
     pilot: np.ndarray
@@ -329,8 +340,8 @@ def run_two_stage(
     band: Band,
     *,
     pilot_n: int = DEFAULT_PILOT,
-    confidence: float = 0.95,
-    power: float = 0.9,
+    confidence: float = defaults.CONFIDENCE,
+    power: float = defaults.POWER,
     max_n: int = DEFAULT_MAX_N,
 ) -> TwoStageRun:
     """Collect a pilot with ``collect(pilot_n)``, plan, then collect the second stage."""

@@ -12,9 +12,10 @@ from typing import Any
 
 import numpy as np
 
+from meanband import defaults
 from meanband.errors import TrialError
 from meanband.stats.interval import SIDES, Interval, critical_t
-from meanband.stats.sample import as_sample, check_confidence, location_scale
+from meanband.stats.sample import as_sample, check_confidence, check_probability, location_scale
 
 __all__ = [
     "COMBINED_METHOD",
@@ -229,7 +230,7 @@ class UncertaintyBudget:
 
 def uncertainty_budget(
     values: Iterable[float] | np.ndarray,
-    confidence: float = 0.95,
+    confidence: float = defaults.CONFIDENCE,
     side: str = "two-sided",
     instrument: InstrumentSpec = None,
 ) -> UncertaintyBudget:
@@ -266,9 +267,9 @@ def trials_to_decide(
     margin: float,
     instrument: InstrumentSpec,
     *,
-    confidence: float = 0.95,
+    confidence: float = defaults.CONFIDENCE,
     side: str = "two-sided",
-    power: float = 0.9,
+    power: float = defaults.POWER,
     n_max: int = 1_000_000,
 ) -> int | None:
     """Trials that likely decide a check whose mean sits ``margin`` from the deciding edge,
@@ -284,8 +285,7 @@ def trials_to_decide(
 
     level = check_confidence(confidence)
     spec = as_instrument_uncertainty(instrument) or InstrumentUncertainty(0.0)
-    if not (0.0 < power < 1.0):
-        raise TrialError(f"power must lie strictly between 0 and 1, got {power!r}")
+    power = check_probability(power, "power")
     if not (math.isfinite(sd) and sd >= 0):
         raise TrialError(f"the planning standard deviation must be finite and >= 0, got {sd!r}")
     margin = abs(float(margin))

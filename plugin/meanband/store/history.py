@@ -5,9 +5,7 @@ from __future__ import annotations
 import json
 import math
 import os
-import platform
 import sqlite3
-import subprocess
 from collections.abc import Callable, Iterable, Mapping
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
@@ -15,6 +13,11 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
+
+from meanband import defaults
+from meanband.errors import StoreError
+from meanband.stats.sample import ArrayEquality
+from meanband.store.environment import capture_environment, python_words
 
 __all__ = [
     "DEFAULT_STORE",
@@ -24,22 +27,17 @@ __all__ = [
     "RunInfo",
     "StoreError",
     "StoredCheck",
-    "describe_environment",
 ]
 
 #: Where the store lives, relative to pytest's rootdir, when no path is given.
 DEFAULT_STORE = Path(".meanband") / "history.sqlite"
 #: Seconds to wait for another process that holds the store's write lock.
-DEFAULT_TIMEOUT = 10.0
+DEFAULT_TIMEOUT = defaults.STORE_TIMEOUT
 
 _ELSEWHERE = "choose another store path (--meanband-store, or --store for the meanband command)"
 _SQLITE_MAGIC = b"SQLite format 3\x00"
 # Trials are stored as little-endian float64 bytes (numpy tobytes/frombuffer): exact and portable.
 _TRIAL_DTYPE = np.dtype("<f8")
-
-
-class StoreError(Exception):
-    """The history store cannot be used; the message names the file and what to do."""
 
 
 @dataclass(frozen=True, slots=True)
@@ -65,8 +63,8 @@ class RunInfo:
         return {name: getattr(self, name) for name in self.__slots__}  # type: ignore[attr-defined]
 
 
-@dataclass(frozen=True, slots=True)
-class StoredCheck:
+@dataclass(frozen=True, slots=True, eq=False)
+class StoredCheck(ArrayEquality):
     """One check (or unchecked series) of a recorded run, with its raw trials."""
 
     run_id: int
@@ -251,7 +249,7 @@ class HistoryStore:
         If the process dies part way, the transaction is never committed and the store keeps
         exactly the runs it had before.
         """
-        env = dict(environment) if environment is not None else describe_environment(None)
+        env = dict(environment) if environment is not None else capture_environment(None)
         when = started or datetime.now(timezone.utc).isoformat(timespec="seconds")
         conn = self._conn
         with self._translate_errors():
@@ -263,8 +261,8 @@ class HistoryStore:
                     (
                         str(label), when, env.get("commit"), env.get("branch"),
                         None if env.get("dirty") is None else int(bool(env["dirty"])),
-                        str(env.get("host", "")), str(env.get("machine", "")), env.get("cpus"),
-                        str(env.get("system", "")), str(env.get("python", "")),
+                        str(env.get("hostname", "")), str(env.get("machine", "")),
+                        env.get("cpu_count"), str(env.get("platform", "")), python_words(env),
                         str(env.get("meanband", "")),
                     ),
                 )
@@ -468,40 +466,3 @@ def _stored_check(r: tuple[Any, ...]) -> StoredCheck:
     return StoredCheck(
         r[0], r[1], r[2], r[3], r[4], r[5], r[6], r[7], r[8], r[9], r[10], row, values, warmup
     )
-
-
-def describe_environment(rootdir: str | os.PathLike[str] | None) -> dict[str, Any]:
-    """Commit, branch, machine and Python of this run; git is optional."""
-    from meanband import __version__
-
-    env: dict[str, Any] = {
-        "commit": None,
-        "branch": None,
-        "dirty": None,
-        "host": platform.node(),
-        "machine": platform.machine(),
-        "cpus": os.cpu_count(),
-        "system": platform.platform(terse=True),
-        "python": f"{platform.python_implementation()} {platform.python_version()}",
-        "meanband": __version__,
-    }
-    commit = _git(rootdir, "rev-parse", "HEAD")
-    if commit:
-        env["commit"] = commit
-        branch = _git(rootdir, "rev-parse", "--abbrev-ref", "HEAD")
-        env["branch"] = branch if branch and branch != "HEAD" else None
-        status = _git(rootdir, "status", "--porcelain", "--untracked-files=no")
-        env["dirty"] = None if status is None else bool(status)
-    return env
-
-
-def _git(cwd: str | os.PathLike[str] | None, *args: str) -> str | None:
-    """Output of a git command, or None when git is missing or this is not a checkout."""
-    try:
-        done = subprocess.run(
-            ["git", *args], cwd=cwd, capture_output=True, text=True, timeout=10, check=False
-        )
-    except (OSError, subprocess.SubprocessError):
-        return None
-    return done.stdout.strip() if done.returncode == 0 else None
-

@@ -6,13 +6,14 @@ import datetime as _dt
 import json
 import math
 import os
-import platform
-import socket
 from collections.abc import Iterable, Mapping, Sequence
 from functools import cache
-from importlib import metadata, resources
+from importlib import resources
 from pathlib import Path
 from typing import Any
+
+from meanband.errors import ReportError
+from meanband.store.environment import capture_environment
 
 __all__ = [
     "FORMAT",
@@ -44,11 +45,6 @@ _TEXT_KEYS = frozenset({
 })
 #: Row keys holding raw trials: always finite, so they skip the per-number walk.
 _TRIAL_KEYS = ("values", "warmup")
-_PACKAGES = ("pytest-meanband", "pytest", "pluggy", "numpy", "scipy", "pytest-xdist")
-
-
-class ReportError(ValueError):
-    """A report file that cannot be read, or reports that cannot be combined."""
 
 
 @cache
@@ -58,24 +54,9 @@ def schema() -> dict[str, Any]:
     return json.loads(text)
 
 
-def environment() -> dict[str, Any]:
-    """Where the run happened: interpreter, platform, machine, and the versions that matter."""
-    packages: dict[str, str | None] = {}
-    for name in _PACKAGES:
-        try:
-            packages[name] = metadata.version(name)
-        except metadata.PackageNotFoundError:
-            packages[name] = None
-    return {
-        "python": platform.python_version(),
-        "implementation": platform.python_implementation(),
-        "platform": platform.platform(),
-        "machine": platform.machine(),
-        "processor": platform.processor(),
-        "hostname": socket.gethostname(),
-        "cpu_count": os.cpu_count(),
-        "packages": packages,
-    }
+def environment(rootdir: str | os.PathLike[str] | None = None) -> dict[str, Any]:
+    """Where the run happened (see :func:`meanband.store.environment.capture_environment`)."""
+    return capture_environment(rootdir)
 
 
 def now() -> str:
