@@ -346,3 +346,12 @@ def test_environment_without_git(tmp_path: Path, monkeypatch: pytest.MonkeyPatch
     env = describe_environment(tmp_path)
     assert env["commit"] is None and env["branch"] is None and env["dirty"] is None
     assert env["cpu_count"] == os.cpu_count() and env["hostname"]
+
+
+def test_stored_checks_compare_with_equals(tmp_path: Path) -> None:
+    # Before: == on a StoredCheck raised "the truth value of an array is ambiguous".
+    with HistoryStore(tmp_path / "h.sqlite") as store:
+        run_id = store.record_run([make_row("t.py::a"), make_row("t.py::b")], environment=ENV)
+        first, second = store.checks(run_id)
+        again = store.checks(run_id)[0]
+    assert first == again and first != second

@@ -55,7 +55,7 @@ def test_pooling_recomputes_the_decision_from_all_trials():
     rng = np.random.default_rng(11)
     first, second = rng.normal(1.0e-3, 2e-4, 10), rng.normal(1.1e-3, 2e-4, 14)
     rows_a = [make_row("t.py::test_lookup", first, band={"high": "1.2ms"}, unit="s",
-                       baseline={"label": "main"})]
+                       baseline={"run": 1, "label": "main", "status": "no baseline"})]
     rows_b = [make_row("t.py::test_lookup", second, band={"high": "1.2ms"}, unit="s")]
     merged = merge_reports([("a.json", report(rows_a)), ("b.json", report(rows_b))], pool=True)
     (row,) = merged["rows"]

@@ -512,3 +512,13 @@ def test_long_runs_test_drift_on_block_means() -> None:
     trend = _drift(x + np.linspace(0, 1, x.size))
     assert trend is not None and trend.rejects(0.01)
     assert trend.change == pytest.approx(1.0, rel=0.2)
+
+
+def test_timings_compare_with_equals() -> None:
+    # Before: == on the engine's Timing compared identity only; arrays now compare by value.
+    def timed(n: int):
+        fake = FakeClock()
+        return run(fake, fake.work(1_000), n=n, loops=1)
+
+    assert timed(4) == timed(4)
+    assert timed(4) != timed(5)

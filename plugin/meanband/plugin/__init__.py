@@ -8,6 +8,7 @@ from typing import TYPE_CHECKING, Any
 
 import pytest
 
+from meanband.plugin.options import ini_value, option_value
 from meanband.record.settings import SettingError, marker_settings, resolve, validate
 
 if TYPE_CHECKING:
@@ -75,14 +76,12 @@ def _config_layers(config: pytest.Config) -> list[tuple[str, dict[str, Any]]]:
     """Command-line and ini layers, validated now so a bad value is a usage error."""
     option_layer: dict[str, Any] = {}
     ini_layer: dict[str, Any] = {}
-    for name, word, _help, _type in _SETTING_OPTIONS:
-        given = config.getoption(f"meanband_{name}")
+    for name, _word, _help, _type in _SETTING_OPTIONS:
         try:
-            if given is not None:
-                option_layer[name] = validate(name, given, f"option --meanband-{word}")
-            ini_value = config.getini(f"meanband_{name}")
-            if ini_value not in (None, ""):
-                ini_layer[name] = validate(name, ini_value, f"ini key meanband_{name}")
+            for layer, found in ((option_layer, option_value(config, name)),
+                                 (ini_layer, ini_value(config, name))):
+                if found is not None:
+                    layer[name] = validate(name, found.value, found.source)
         except SettingError as exc:
             raise pytest.UsageError(str(exc)) from None
     return [("command line", option_layer), ("ini file", ini_layer)]

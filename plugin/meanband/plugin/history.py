@@ -11,6 +11,7 @@ from typing import TYPE_CHECKING, Any
 import pytest
 
 from meanband import defaults
+from meanband.plugin.options import resolve_path, resolve_value
 
 if TYPE_CHECKING:
     from meanband.stats.regression import Limits
@@ -59,10 +60,9 @@ def pytest_configure(config: pytest.Config) -> None:
     baseline = config.getoption("meanband_baseline")
     if record is None and baseline is None:
         return
-    from meanband.errors import TrialError
-    from meanband.stats.ratio import parse_fraction
-    from meanband.stats.regression import DEFAULT_MAX_CHANGE, DEFAULT_MAX_INCREASE, Limits
-    from meanband.store.history import StoreError
+    from meanband.errors import StoreError
+    from meanband.stats.regression import Limits
+    from meanband.store.history import DEFAULT_STORE
 
     args = [str(a) for a in config.invocation_params.args]
     for option, value in (("--meanband-record", record), ("--meanband-baseline", baseline)):
@@ -74,15 +74,16 @@ def pytest_configure(config: pytest.Config) -> None:
                 f"{option} took {value!r} as its label, but that is a path; write the label "
                 f"with '=' ({option}=LABEL) or put the option after the paths"
             )
-    try:
-        limits = Limits(
-            max_increase=_fraction(config, "max_increase", DEFAULT_MAX_INCREASE, parse_fraction),
-            max_change=_fraction(config, "max_change", DEFAULT_MAX_CHANGE, parse_fraction),
-        )
-        timeout = _timeout(config)
-    except TrialError as exc:
-        raise pytest.UsageError(str(exc)) from None
-    plugin = HistoryPlugin(config, _store_path(config), limits, timeout, record)
+    limits = Limits(
+        max_increase=resolve_value(config, "max_increase", _relative("--meanband-max-increase"),
+                                   defaults.MAX_INCREASE),
+        max_change=resolve_value(config, "max_change", _relative("--meanband-max-change"),
+                                 defaults.MAX_CHANGE),
+    )
+    timeout = resolve_value(config, "store_timeout", _timeout_seconds, defaults.STORE_TIMEOUT)
+    store = resolve_path(config, "store", DEFAULT_STORE)
+    assert store is not None
+    plugin = HistoryPlugin(config, store, limits, timeout, record)
     if baseline is not None:
         try:
             plugin.load_baseline(baseline)
@@ -91,49 +92,21 @@ def pytest_configure(config: pytest.Config) -> None:
     config.pluginmanager.register(plugin, HISTORY_PLUGIN_NAME)
 
 
-def _fraction(config: pytest.Config, name: str, default: float, parse: Any) -> float:
-    word = name.replace("_", "-")
-    given = config.getoption(f"meanband_{name}")
-    if given is not None:
-        return float(parse(given, f"--meanband-{word}"))
-    ini = config.getini(f"meanband_{name}")
-    if ini not in (None, ""):
-        return float(parse(ini, f"ini key meanband_{name}"))
-    return default
+def _relative(option: str) -> Any:
+    """A parser of relative amounts ("5%" or 0.05) whose errors name ``option``."""
+    from meanband.stats.ratio import parse_fraction
+
+    return lambda text: float(parse_fraction(text, option))
 
 
-def _timeout(config: pytest.Config) -> float:
-    from meanband.errors import TrialError
-    from meanband.store.history import DEFAULT_TIMEOUT
-
-    given = config.getoption("meanband_store_timeout")
-    source = "--meanband-store-timeout"
-    if given is None:
-        given = config.getini("meanband_store_timeout") or None
-        source = "ini key meanband_store_timeout"
-    if given is None:
-        return DEFAULT_TIMEOUT
+def _timeout_seconds(given: Any) -> float:
     try:
         seconds = float(given)
     except ValueError:
-        raise TrialError(f"{source}: {given!r} is not a number of seconds") from None
+        raise ValueError(f"{given!r} is not a number of seconds") from None
     if not math.isfinite(seconds) or seconds < 0:
-        raise TrialError(f"{source}: the wait must be 0 or more seconds, got {given!r}")
+        raise ValueError(f"the wait must be 0 or more seconds, got {given!r}")
     return seconds
-
-
-def _store_path(config: pytest.Config) -> Path:
-    """Command line (relative to the invocation directory) > ini (relative to the rootdir) >
-    default under the rootdir."""
-    from meanband.store.history import DEFAULT_STORE
-
-    given = config.getoption("meanband_store")
-    if given:
-        return Path(config.invocation_params.dir, given)
-    ini = config.getini("meanband_store")
-    if ini:
-        return Path(config.rootpath, ini)
-    return config.rootpath / DEFAULT_STORE
 
 
 class HistoryPlugin:

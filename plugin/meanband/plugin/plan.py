@@ -2,10 +2,13 @@
 
 from __future__ import annotations
 
+import os
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 import pytest
+
+from meanband.plugin.options import given, resolve_path
 
 if TYPE_CHECKING:
     from meanband.store.planfile import Plan
@@ -22,7 +25,7 @@ def pytest_addoption(parser: pytest.Parser) -> None:
         "arguments and markers, above the command line and the ini file.",
     )
     parser.addini(
-        "meanband_plan", "Plan file of trial counts per test (TOML), relative to the rootdir.",
+        "meanband_plan", "Plan file of trial counts per test (TOML), relative to the ini file.",
         type="string", default=None,  # type: ignore[arg-type]
     )
     group.addoption(
@@ -34,13 +37,10 @@ def pytest_addoption(parser: pytest.Parser) -> None:
 
 def pytest_configure(config: pytest.Config) -> None:
     plan = None
-    source = config.getoption("meanband_plan")
-    where = "option --meanband-plan"
-    if not source:
-        source = config.getini("meanband_plan") or None
-        where = "ini key meanband_plan"
-        if source:
-            source = str(Path(str(config.rootpath), source))
+    found = given(config, "plan")
+    where = found.source if found is not None else ""
+    path = resolve_path(config, "plan")
+    source = None if path is None else _shown(path)
     if source:
         from meanband.store.planfile import PlanError, read_plan
 
@@ -203,3 +203,11 @@ def _summary_text(suggestion: dict[str, Any]) -> str:
     if direction == "keep" or (direction == "auto" and not reason.startswith("UNDECIDED")):
         return ""
     return reason
+
+
+def _shown(path: Path) -> str:
+    """The path as the user would write it: relative to the current directory where it can be."""
+    try:
+        return os.path.relpath(path)
+    except ValueError:  # another drive on Windows
+        return str(path)

@@ -9,6 +9,8 @@ from typing import Any
 
 import pytest
 
+from meanband.plugin.options import resolve_path
+
 PLUGIN_NAME = "meanband-reports"
 _TRIAL_CHOICES = ("yes", "no")
 
@@ -90,18 +92,6 @@ class ReportSettings:
         return bool(self.report or self.markdown or self.job_summary or self.plots)
 
 
-def _path(config: pytest.Config, option: str, ini: str) -> Path | None:
-    """An option's path is relative to where pytest was invoked; an ini key's to the ini file."""
-    value = config.getoption(option)
-    if value:
-        return Path(config.invocation_params.dir, value)
-    value = config.getini(ini)
-    if value:
-        base = config.inipath.parent if config.inipath else config.rootpath
-        return Path(base, value)
-    return None
-
-
 def _ini_bool(config: pytest.Config, name: str) -> bool:
     try:
         return bool(config.getini(name))
@@ -140,12 +130,12 @@ def resolve(config: pytest.Config) -> ReportSettings:
             f"ini key meanband_plot_checks: {plot_checks!r}; choose all, failed or none"
         )
     return ReportSettings(
-        report=_path(config, "meanband_report", "meanband_report"),
+        report=resolve_path(config, "report"),
         trials=trials,
-        markdown=_path(config, "meanband_markdown", "meanband_markdown"),
+        markdown=resolve_path(config, "markdown"),
         job_summary=job_summary,
         job_summary_var=variable,
-        plots=_path(config, "meanband_plots", "meanband_plots"),
+        plots=resolve_path(config, "plots"),
         plot_formats=formats,
         plot_checks=plot_checks,
     )

@@ -78,10 +78,7 @@ class NoteRecord(_NoteCore, total=False):
     recommend: str
 
 
-class DecisionRecord(TypedDict):
-    """The decision of a check (``Decision.to_dict()`` less its uncertainty and rule, which the
-    row carries under keys of their own)."""
-
+class _DecisionCore(TypedDict):
     verdict: str
     band: BandRecord
     interval: IntervalRecord
@@ -89,18 +86,27 @@ class DecisionRecord(TypedDict):
     diagnostics: dict[str, Any]
     suggested_n: int | None
     unit: str | None
+
+
+class DecisionRecord(_DecisionCore, total=False):
+    """The decision of a check (``Decision.to_dict()`` less its uncertainty and rule, which the
+    row carries under keys of their own); ``power`` is that of ``suggested_n``."""
+
     power: float
 
 
-class SettingsRecord(TypedDict, total=False):
+class _SettingsCore(TypedDict):
+    confidence: float
+    method: str
+
+
+class SettingsRecord(_SettingsCore, total=False):
     """``Settings.to_dict()``; ``n`` is ``"auto"`` for a two-stage count."""
 
     n: int | str
-    confidence: float
     warmup: int | str
     min_n: int
     normality_alpha: float
-    method: str
     power: float
     min_trial_time: float | None
     clock: str
