@@ -2,10 +2,7 @@
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING, Any
-
-if TYPE_CHECKING:
-    from meanband.stats.decision import Decision
+from typing import Any
 
 __all__ = ["BandViolation", "MeanbandError", "ReportError", "StoreError", "TrialError"]
 
@@ -21,9 +18,10 @@ class TrialError(MeanbandError, ValueError):
 class BandViolation(MeanbandError, AssertionError):
     """A check did not pass: the interval of the mean is outside or across its band."""
 
-    def __init__(self, message: str, decision: Decision | Any = None) -> None:
+    def __init__(self, message: str, decision: Any = None) -> None:
         super().__init__(message)
-        #: The :class:`~meanband.stats.decision.Decision` that failed.
+        #: What failed: a :class:`~meanband.stats.decision.Decision`, or the
+        #: :class:`~meanband.stats.ratio.RatioCheck` of an in-run comparison.
         self.decision = decision
 
 

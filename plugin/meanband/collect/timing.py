@@ -34,6 +34,9 @@ __all__ = [
     "trial_ns",
 ]
 
+#: A clock read: integer nanoseconds from a fixed origin.
+Reader = Callable[[], int]
+
 #: Floor of the automatic minimum trial time (seconds).
 DEFAULT_MIN_TRIAL_TIME = 1e-3
 #: The automatic minimum trial time is also at least this many clock reads and clock steps, so
@@ -312,13 +315,18 @@ def calibrate(
     return _calibrate(call, None, read, target_ns, None, max_loops)[0]
 
 
-def _bind(fn: Callable[..., Any], args: Sequence[Any], kwargs: Mapping[str, Any] | None):
+def _bind(
+    fn: Callable[..., Any], args: Sequence[Any], kwargs: Mapping[str, Any] | None
+) -> Callable[[], Any]:
     if not args and not kwargs:
         return fn
     return functools.partial(fn, *args, **(kwargs or {}))
 
 
-def _run(call, k, out, first, stop, read, deadline) -> int:
+def _run(
+    call: Callable[[], Any], k: int, out: array[int], first: int, stop: int, read: Reader,
+    deadline: int | None,
+) -> int:
     """Fill ``out[first:stop]`` with trial durations (ns); return the index after the last one.
 
     Kept as lean as a bare loop of two clock reads around the call: locals only, results into a
@@ -371,13 +379,16 @@ def _drift(values: np.ndarray) -> DriftTest | None:
 class _SetupRunner:
     """Trials with a per-call setup, run before the trial's clock starts."""
 
-    def __init__(self, fn, args: tuple, kwargs: dict, setup: Callable[[], Any]) -> None:
+    def __init__(
+        self, fn: Callable[..., Any], args: tuple[Any, ...], kwargs: dict[str, Any],
+        setup: Callable[[], Any],
+    ) -> None:
         self.fn = fn
         self.args = args
         self.kwargs = kwargs
         self.setup = setup
 
-    def prepare(self, k: int) -> tuple[list, bool]:
+    def prepare(self, k: int) -> tuple[list[Any], bool]:
         setup = self.setup
         inputs = [setup() for _ in repeat(None, k)]
         nones = inputs.count(None)
@@ -388,7 +399,10 @@ class _SetupRunner:
             )
         return inputs, nones == 0
 
-    def run(self, k, out, first, stop, read, deadline, min_trials=0) -> int:
+    def run(
+        self, k: int, out: array[int], first: int, stop: int, read: Reader,
+        deadline: int | None, min_trials: int = 0,
+    ) -> int:
         fn, args, kwargs = self.fn, self.args, self.kwargs
         for i in range(first, stop):
             inputs, given = self.prepare(k)
@@ -415,12 +429,12 @@ class _SetupRunner:
         return stop
 
 
-def _durations(count: int) -> array:
+def _durations(count: int) -> array[int]:
     """A preallocated array of signed 64-bit nanosecond counts: storing into it makes no object."""
     return array("q", bytes(8 * count))
 
 
-def _one(call, runner, k, read) -> int:
+def _one(call: Callable[[], Any], runner: _SetupRunner | None, k: int, read: Reader) -> int:
     buffer = _durations(1)
     if runner is not None:
         runner.run(k, buffer, 0, 1, read, None)
@@ -430,8 +444,9 @@ def _one(call, runner, k, read) -> int:
 
 
 def _calibrate(
-    call, runner, read, target_ns: float, deadline, max_loops: int | None = None
-) -> tuple[int, list]:
+    call: Callable[[], Any], runner: _SetupRunner | None, read: Reader, target_ns: float,
+    deadline: int | None, max_loops: int | None = None,
+) -> tuple[int, list[tuple[int, int]]]:
     """Smallest k found (growing geometrically) whose trial lasts ``target_ns``.
 
     If an earlier step ran more than 10% faster per call (the last one was slowed by an
@@ -455,7 +470,10 @@ def _calibrate(
         k = min(max(math.ceil(k * growth), k + 1), max_loops)
 
 
-def _warm_up(call, runner, k, read, count: int, seconds: float, deadline) -> list[int]:
+def _warm_up(
+    call: Callable[[], Any], runner: _SetupRunner | None, k: int, read: Reader, count: int,
+    seconds: float, deadline: int | None,
+) -> list[int]:
     warm: list[int] = []
     if count:
         durations = _durations(count)

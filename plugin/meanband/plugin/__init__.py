@@ -13,6 +13,7 @@ from meanband.record.settings import SettingError, marker_settings, resolve, val
 
 if TYPE_CHECKING:
     from meanband.record.recorder import Recorder
+    from meanband.record.row import ResultRow
     from meanband.record.settings import Settings
 
 #: Feature plugins, each with its own options in the ``meanband`` group.
@@ -144,9 +145,11 @@ def pytest_runtest_makereport(
     return report
 
 
-def _junit_properties(row: dict[str, Any], index: int | None) -> list[tuple[str, object]]:
+def _junit_properties(row: ResultRow, index: int | None) -> list[tuple[str, object]]:
     """``meanband[series].index.field`` properties; series and index only where needed."""
     decision = row["decision"]
+    if decision is None:
+        return []
     prefix = "meanband"
     if row.get("series"):
         prefix += f"[{row['series']}]"
@@ -167,7 +170,7 @@ class SummaryPlugin:
 
     def __init__(self, config: pytest.Config) -> None:
         self.config = config
-        self.rows: list[dict[str, Any]] = []
+        self.rows: list[ResultRow] = []
 
     def pytest_runtest_logreport(self, report: pytest.TestReport) -> None:
         for row in getattr(report, "meanband_rows", None) or ():

@@ -50,7 +50,7 @@ def pytest_addoption(parser: pytest.Parser) -> None:
     group.addoption("--meanband-store-timeout", dest="meanband_store_timeout", metavar="SECONDS",
                     default=None, help=_HELP["store_timeout"])
     for name in ("store", "max_increase", "max_change", "store_timeout"):
-        parser.addini(f"meanband_{name}", _HELP[name], type="string", default=None)  # type: ignore[arg-type]
+        parser.addini(f"meanband_{name}", _HELP[name], type="string", default=None)
 
 
 def pytest_configure(config: pytest.Config) -> None:

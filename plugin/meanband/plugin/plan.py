@@ -26,7 +26,7 @@ def pytest_addoption(parser: pytest.Parser) -> None:
     )
     parser.addini(
         "meanband_plan", "Plan file of trial counts per test (TOML), relative to the ini file.",
-        type="string", default=None,  # type: ignore[arg-type]
+        type="string", default=None,
     )
     group.addoption(
         "--meanband-write-plan", dest="meanband_write_plan", default=None, metavar="PATH",

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import os
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -10,6 +11,7 @@ from typing import Any
 import pytest
 
 from meanband.plugin.options import resolve_path
+from meanband.record.row import ResultRow
 
 PLUGIN_NAME = "meanband-reports"
 _TRIAL_CHOICES = ("yes", "no")
@@ -188,13 +190,13 @@ class ReportWriter:
         for text, markup in self.messages:  # set off from the summary, as pytest's own files are
             terminalreporter.write_sep("-", text, **markup)
 
-    def pytest_meanband_session_finish(self, config: pytest.Config, rows: list[dict]) -> None:
+    def pytest_meanband_session_finish(self, config: pytest.Config, rows: list[ResultRow]) -> None:
         if hasattr(config, "workerinput"):
             return
         from meanband.store.report_json import ReportError
 
         s = self.settings
-        steps = []
+        steps: list[tuple[str, Callable[[], None]]] = []
         if s.report is not None:
             steps.append(("JSON report", lambda: self._write_report(rows)))
         if s.markdown is not None or s.job_summary:
@@ -208,7 +210,7 @@ class ReportWriter:
                 # Every other file is still written; the failure is shown, never swallowed.
                 self._say(f"meanband: could not write the {what}: {exc}", red=True, bold=True)
 
-    def _write_report(self, rows: list[dict]) -> None:
+    def _write_report(self, rows: list[ResultRow]) -> None:
         from meanband.store import report_json
         report = report_json.build_report(
             rows, environment=report_json.environment(self.config.rootpath),
@@ -217,7 +219,7 @@ class ReportWriter:
         path = report_json.write_report(report, self.settings.report)  # type: ignore[arg-type]
         self._say(f"meanband: wrote JSON report {_shown(path)} ({len(rows)} rows)")
 
-    def _write_markdown(self, rows: list[dict]) -> None:
+    def _write_markdown(self, rows: list[ResultRow]) -> None:
         from meanband.report import markdown
         from meanband.store.report_json import ReportError
 
@@ -234,7 +236,7 @@ class ReportWriter:
                 self._say(f"meanband: appended the summary to {_shown(path)} "
                           f"(from {self.settings.job_summary_var})")
 
-    def _write_plots(self, rows: list[dict]) -> None:
+    def _write_plots(self, rows: list[ResultRow]) -> None:
         from meanband.report import plots
         result = plots.write_plots(rows, self.settings.plots,  # type: ignore[arg-type]
                                    formats=self.settings.plot_formats,

@@ -176,14 +176,14 @@ class Series:
         """The trials recorded so far (warm-up excluded), read-only."""
         view = self._values.view()
         view.flags.writeable = False
-        return view
+        return view  # type: ignore[no-any-return]
 
     @property
     def warmup_values(self) -> np.ndarray:
         """Warm-up trials: timed, kept for charts, left out of the statistics."""
         view = self._warmup.view()
         view.flags.writeable = False
-        return view
+        return view  # type: ignore[no-any-return]
 
     # -- analysing and checking -------------------------------------------------------------
 

@@ -12,9 +12,9 @@ from __future__ import annotations
 from collections.abc import Mapping, Sequence
 from typing import TYPE_CHECKING, Any, TypedDict
 
-import numpy as np
-
 if TYPE_CHECKING:
+    import numpy as np
+
     from meanband.stats.decision import Decision
 
 __all__ = [
@@ -349,4 +349,6 @@ def build_row(
 
 def _floats(values: Sequence[float] | np.ndarray) -> list[float]:
     """Builtin floats: a numpy scalar would break pytest-xdist's report transport."""
-    return np.asarray(values, dtype=np.float64).tolist()  # type: ignore[no-any-return]
+    import numpy  # not at module level: the plugin imports this module and must stay cheap
+
+    return numpy.asarray(values, dtype=numpy.float64).tolist()  # type: ignore[no-any-return]

@@ -8,9 +8,8 @@ from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
-from meanband.report.terminal import format_band
 from meanband.store.report_json import ReportError, totals
-from meanband.units import SECONDS, format_value, significant_digits, time_scale
+from meanband.units import SECONDS, format_band, format_value, significant_digits, time_scale
 
 __all__ = ["DEFAULT_SUMMARY_VARIABLE", "append_job_summary", "format_markdown", "write_markdown"]
 

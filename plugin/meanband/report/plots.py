@@ -185,7 +185,8 @@ def _label(row: Mapping[str, Any], width: int = 56) -> str:
     text = row["nodeid"].rsplit("/", 1)[-1]
     if row["series"]:
         text += f" [{row['series']}]"
-    return text if len(text) <= width else "…" + text[-(width - 1):]
+    shown: str = text if len(text) <= width else "…" + text[-(width - 1):]
+    return shown
 
 
 def interval_chart_pages(

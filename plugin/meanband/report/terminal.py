@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import math
 from collections import Counter
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Mapping, Sequence
+from typing import Any
 
 from meanband import defaults
 from meanband.record.row import ResultRow
@@ -18,7 +19,7 @@ from meanband.units import SECONDS, format_band, format_value, significant_digit
 
 __all__ = ["ROW_SECTIONS", "format_summary", "totals_line"]
 
-Row = ResultRow
+Row = Mapping[str, Any]
 _VERDICTS = tuple(v.value for v in Verdict)
 
 

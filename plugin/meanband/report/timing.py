@@ -18,8 +18,7 @@ def timing_lines(rows: Sequence[ResultRow], verbosity: int = 1) -> list[str]:
     # Rows the engine timed; other features (e.g. in-run comparisons) keep their own details.
     timed = [
         r for r in rows
-        if r.get("source") == "time" and isinstance(r.get("timing"), dict)
-        and "resolution_ns" in r["timing"]
+        if r.get("source") == "time" and "resolution_ns" in (r.get("timing") or {})
     ]
     if not timed:
         return []
@@ -30,7 +29,7 @@ def timing_lines(rows: Sequence[ResultRow], verbosity: int = 1) -> list[str]:
     lines = ["", "timing clocks (measured once per test process):"]
     clocks: dict[tuple[str, str], list[tuple[float, float]]] = {}
     for row in timed:
-        t = row["timing"]
+        t = row["timing"] or {}
         clocks.setdefault((t.get("clock", "?"), t.get("source", "?")), []).append(
             (float(t.get("resolution_ns", 0.0)), float(t.get("read_cost_ns", 0.0)))
         )
@@ -48,7 +47,7 @@ def timing_lines(rows: Sequence[ResultRow], verbosity: int = 1) -> list[str]:
         if row_name(row) in seen:
             continue
         seen.add(row_name(row))
-        t = row["timing"]
+        t = row["timing"] or {}
         k = int(t.get("k", 1))
         values = row.get("values") or []
         trial = sorted(values)[len(values) // 2] * k if values else float("nan")

@@ -378,4 +378,5 @@ def _evenly_spaced(n: int, limit: int) -> np.ndarray:
     if n <= limit:
         return np.arange(n)
     # Spacing above 1, so the rounded positions are distinct.
-    return np.linspace(0, n - 1, limit).round().astype(np.intp)
+    spaced: np.ndarray = np.linspace(0, n - 1, limit).round().astype(np.intp)
+    return spaced

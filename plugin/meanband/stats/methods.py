@@ -62,7 +62,8 @@ def _positive(x: np.ndarray, method: str) -> np.ndarray:
             f"{bad.size} of {x.size} are zero or negative (0-based positions {shown}"
             f"{' ...' if bad.size > 8 else ''}); use method='bootstrap' for such data"
         )
-    return np.log(x)
+    logs: np.ndarray = np.log(x)
+    return logs
 
 
 def log_t_interval(x: np.ndarray, confidence: float, side: str) -> Interval:
@@ -153,7 +154,8 @@ def bca_mean_bounds(
 
     def adjusted(z: float) -> np.ndarray:
         num = z0 + z
-        return ndtr(z0 + num / (1.0 - accel * num))
+        level: np.ndarray = ndtr(z0 + num / (1.0 - accel * num))
+        return level
 
     theta_b.sort(axis=1)
     low = _linear_quantile(theta_b, adjusted(z_alpha))
@@ -174,7 +176,8 @@ def _linear_quantile(sorted_rows: np.ndarray, prob: np.ndarray) -> np.ndarray:
     weight = position - below
     rows = np.arange(sorted_rows.shape[0])
     lower_value = sorted_rows[rows, below]
-    return lower_value + weight * (sorted_rows[rows, above] - lower_value)
+    value: np.ndarray = lower_value + weight * (sorted_rows[rows, above] - lower_value)
+    return value
 
 
 def bootstrap_interval(

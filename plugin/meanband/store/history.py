@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import math
 import os
@@ -60,7 +61,7 @@ class RunInfo:
 
     def to_dict(self) -> dict[str, Any]:
         """Builtin types only."""
-        return {name: getattr(self, name) for name in self.__slots__}  # type: ignore[attr-defined]
+        return {field.name: getattr(self, field.name) for field in dataclasses.fields(self)}
 
 
 @dataclass(frozen=True, slots=True, eq=False)

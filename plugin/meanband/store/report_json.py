@@ -51,7 +51,8 @@ _TRIAL_KEYS = ("values", "warmup")
 def schema() -> dict[str, Any]:
     """The JSON Schema (draft 2020-12) that every report satisfies; shipped in the package."""
     text = resources.files("meanband.store").joinpath("report.schema.json").read_text(encoding="utf-8")
-    return json.loads(text)
+    document: dict[str, Any] = json.loads(text)
+    return document
 
 
 def environment(rootdir: str | os.PathLike[str] | None = None) -> dict[str, Any]:
@@ -199,7 +200,7 @@ def loads(text: str, *, source: str = "<report>") -> dict[str, Any]:
         raise ReportError(f"{source}: not a JSON report: {exc}") from exc
     validate_report(document, source=source)
     document["rows"] = decode_rows(document["rows"])
-    return document
+    return document  # type: ignore[no-any-return]
 
 
 def load_report(path: str | os.PathLike[str]) -> dict[str, Any]:
