@@ -12,14 +12,14 @@ from meanband.collect.clock import get_clock
 from meanband.collect.timing import time_calls
 from meanband.errors import BandViolation, TrialError
 from meanband.record import adaptive
+from meanband.record.check import decide_with_notes
 from meanband.record.message import describe
 from meanband.record.row import ResultRow, build_row
 from meanband.record.settings import Settings
 from meanband.stats.bands import Band, Edge, Tolerance, make_band
-from meanband.stats.decision import Decision, decide
+from meanband.stats.decision import Decision
 from meanband.stats.interval import Interval
 from meanband.stats.methods import mean_interval
-from meanband.stats.notes import assumption_notes
 from meanband.stats.rules import GUARDED
 from meanband.stats.sample import as_sample
 from meanband.stats.uncertainty import InstrumentSpec
@@ -229,15 +229,12 @@ class Series:
             recorded = {**settings.to_dict(), "n": "auto"}
         else:
             band = make_band(low, high, center=center, tolerance=tolerance, unit=self.unit)
-            decision = decide(
-                self._values, band, confidence=settings.confidence, method=settings.method,
-                power=settings.power, instrument_uncertainty=instrument_uncertainty, rule=rule,
-            )
-            notes = self._timing_notes + assumption_notes(
-                decision.diagnostics, min_n=settings.min_n,
-                normality_alpha=settings.normality_alpha, method=settings.method,
+            decision, notes = decide_with_notes(
+                self._values, band, settings.to_dict(),
+                instrument_uncertainty=instrument_uncertainty, rule=rule,
                 skip={note["code"] for note in self._timing_notes},
             )
+            notes = self._timing_notes + notes
             recorded = settings.to_dict()
         row = self._row(recorded, decision, notes, **extra)
         self._rows.append(row)

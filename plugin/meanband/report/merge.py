@@ -10,11 +10,6 @@ from meanband.store.report_json import ReportError, assemble
 
 __all__ = ["MergeConflict", "merge_reports", "pool_rows"]
 
-#: Note codes that :func:`meanband.stats.notes.assumption_notes` writes; a pool recomputes them.
-_ASSUMPTION_CODES = frozenset({
-    "few-trials", "zero-spread", "not-normal", "autocorrelated", "not-normal-harmless",
-    "outliers", "bimodal", "log-not-normal",
-})
 #: Row keys a pool rebuilds or carries over; any other key was computed from one shard's trials.
 _CORE_KEYS = frozenset({
     "nodeid", "series", "kind", "unit", "source", "values", "warmup", "decision", "notes",
@@ -84,11 +79,6 @@ def merge_reports(
     )
 
 
-def _settings_value(settings: Mapping[str, Any], key: str, default: Any) -> Any:
-    value = settings.get(key)
-    return default if value is None else value
-
-
 def pool_rows(found: Sequence[tuple[str, Mapping[str, Any]]], *, label: str = "") -> dict[str, Any]:
     """One row from the rows of the same check in several reports, with the trials pooled.
 
@@ -97,9 +87,10 @@ def pool_rows(found: Sequence[tuple[str, Mapping[str, Any]]], *, label: str = ""
     features (a baseline comparison, say) were computed from one shard's trials alone: they are
     left out and named in the row's ``pooled.dropped`` and in a note.
     """
+    from meanband.record.check import decide_with_notes
+    from meanband.record.row import decision_record
     from meanband.stats.bands import Band
-    from meanband.stats.decision import decide
-    from meanband.stats.notes import assumption_notes
+    from meanband.stats.notes import ASSUMPTION_CODES
 
     first_name, first = found[0]
     where = label or first["nodeid"]
@@ -136,32 +127,23 @@ def pool_rows(found: Sequence[tuple[str, Mapping[str, Any]]], *, label: str = ""
     dropped = sorted({key for _, row in found for key in row if key not in _CORE_KEYS})
     settings = first["settings"]
     notes: list[dict[str, str]] = []
-    decision = None
+    decision: Any = None
+    uncertainty: Any = None
+    rule: Any = None
     if first["kind"] == "check":
         band_dict = first["decision"]["band"]
-        result = decide(
-            values,
-            Band(float(band_dict["low"]), float(band_dict["high"]), band_dict["unit"]),
-            confidence=settings["confidence"],
-            method=settings["method"],
-            power=_settings_value(settings, "power", 0.9),
-            instrument_uncertainty=_instrument(first),
-            rule=_rule(first),
-        )
-        decision = result.to_dict()
-        notes = assumption_notes(
-            result.diagnostics,
-            min_n=_settings_value(settings, "min_n", 10),
-            normality_alpha=_settings_value(settings, "normality_alpha", 0.05),
-            method=settings["method"],
+        result, notes = decide_with_notes(
+            values, Band(float(band_dict["low"]), float(band_dict["high"]), band_dict["unit"]),
+            settings, instrument_uncertainty=_instrument(first), rule=_rule(first),
             # Pooled shards are not one series in time order: a trend across them is no drift.
             skip={"drift"},
         )
+        decision, uncertainty, rule = decision_record(result)
     seen = {(note["code"], note["text"]) for note in notes}
     for _, row in found:
         for note in row["notes"]:
             pair = (note["code"], note["text"])
-            if note["code"] in _ASSUMPTION_CODES or note["code"] == "pooled" or pair in seen:
+            if note["code"] in ASSUMPTION_CODES or note["code"] == "pooled" or pair in seen:
                 continue
             seen.add(pair)
             notes.append(dict(note))
@@ -174,11 +156,11 @@ def pool_rows(found: Sequence[tuple[str, Mapping[str, Any]]], *, label: str = ""
     row.update(values=values, warmup=warmup, decision=decision, notes=notes,
                pooled={"runs": runs, "counts": counts, "dropped": dropped})
     if decision is not None:  # recomputed with the pooled trials, like the decision
-        for key, value in (("uncertainty", result.uncertainty), ("rule", result.rule)):
+        for key, value in (("uncertainty", uncertainty), ("rule", rule)):
             if value is None:
                 row.pop(key, None)
             else:
-                row[key] = value.to_dict()
+                row[key] = value
     return row
 
 

@@ -9,6 +9,7 @@ from statistics import NormalDist
 from meanband.stats.diagnostics import BIMODAL_THRESHOLD, Diagnostics
 
 __all__ = [
+    "ASSUMPTION_CODES",
     "COCHRAN_FACTOR",
     "assumption_notes",
     "judged_skewness",
@@ -16,6 +17,12 @@ __all__ = [
     "trials_for_skewness",
 ]
 
+
+#: Codes of the notes that :func:`assumption_notes` writes (a pool of runs recomputes them).
+ASSUMPTION_CODES = frozenset({
+    "few-trials", "zero-spread", "not-normal", "not-normal-harmless", "log-not-normal",
+    "outliers", "bimodal", "autocorrelated", "drift",
+})
 
 #: Cochran's rule: the normal approximation to the mean holds when n > 25 * G1^2 (Cochran 1977,
 #: Sampling Techniques, 3rd ed., section 2.15; rule and section number from memory).
