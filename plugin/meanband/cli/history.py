@@ -12,6 +12,7 @@ from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any
 
+from meanband import defaults
 from meanband.errors import TrialError
 from meanband.report.tables import format_table
 from meanband.store.history import DEFAULT_STORE, HistoryStore, RunInfo, StoredCheck, StoreError
@@ -51,16 +52,16 @@ def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) ->
     compare.add_argument("run_a", metavar="RUN_A", help="The baseline run. " + _RUN_HELP)
     compare.add_argument("run_b", metavar="RUN_B", help="The run to judge. " + _RUN_HELP)
     compare.add_argument(
-        "--max-increase", default="5%",
+        "--max-increase", default=f"{defaults.MAX_INCREASE:.0%}",
         help="How much slower a timing may get before it counts as regressed (default 5%%)",
     )
     compare.add_argument(
-        "--max-change", default="5%",
+        "--max-change", default=f"{defaults.MAX_CHANGE:.0%}",
         help="How far a measured value may move either way (default 5%%)",
     )
     compare.add_argument(
-        "--confidence", type=float, default=0.95,
-        help="Confidence of the two-sided ratio interval (default 0.95)",
+        "--confidence", type=float, default=defaults.CONFIDENCE,
+        help=f"Confidence of the two-sided ratio interval (default {defaults.CONFIDENCE})",
     )
     _store_option(compare)
     compare.set_defaults(handler=_guarded(_compare))

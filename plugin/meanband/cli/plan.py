@@ -49,7 +49,8 @@ def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) ->
     )
     plan.add_argument(
         "--power", type=float, default=None,
-        help="Power of the suggested counts (default: each check's own setting, else 0.9)",
+        help=f"Power of the suggested counts (default: each check's own setting, else "
+        f"{defaults.POWER})",
     )
     plan.add_argument("--write", metavar="PLAN", type=Path, default=None,
                       help="Also write the suggestions to this plan file (TOML)")

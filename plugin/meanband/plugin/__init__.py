@@ -8,6 +8,7 @@ from typing import TYPE_CHECKING, Any
 
 import pytest
 
+from meanband import defaults
 from meanband.plugin.options import ini_value, option_value
 from meanband.record.settings import SettingError, marker_settings, resolve, validate
 
@@ -28,15 +29,18 @@ SUMMARY_PLUGIN_NAME = "meanband-summary"
 
 #: (setting, option word, help text, ini type); option --meanband-<word>, ini meanband_<name>.
 _SETTING_OPTIONS = (
-    ("n", "n", "Default number of trials per collection call (default 30).", "string"),
-    ("confidence", "confidence", "Confidence level of the intervals (default 0.95).", "string"),
-    ("min_n", "min-n", "Warn when a check has fewer trials than this (default 10).", "string"),
-    ("normality_alpha", "normality-alpha",
-     "Level of the normality test behind the 'normality doubtful' note (default 0.05).", "string"),
+    ("n", "n", f"Default number of trials per collection call (default {defaults.N}).", "string"),
+    ("confidence", "confidence",
+     f"Confidence level of the intervals (default {defaults.CONFIDENCE}).", "string"),
+    ("min_n", "min-n", f"Warn when a check has fewer trials than this (default {defaults.MIN_N}).",
+     "string"),
+    ("normality_alpha", "normality-alpha", "Level of the normality test behind the 'normality "
+     f"doubtful' note (default {defaults.NORMALITY_ALPHA}).", "string"),
     ("warmup", "warmup", "Default warm-up before timed trials: a count or a duration such as "
      "'200ms' (default 0).", "string"),
-    ("method", "method", "Default interval method (default 't').", "string"),
-    ("power", "power", "Power at which trial counts are suggested (default 0.9).", "string"),
+    ("method", "method", f"Default interval method (default '{defaults.METHOD}').", "string"),
+    ("power", "power", f"Power at which trial counts are suggested (default {defaults.POWER}).",
+     "string"),
     ("min_trial_time", "min-trial-time", "Shortest timed trial, e.g. '5ms'; calibration runs "
      "enough calls per trial to fill it (default: 1 ms or 1000 clock reads).", "string"),
     ("clock", "clock", "Clock of timed trials: 'wall' (elapsed) or 'cpu' (this process's CPU "

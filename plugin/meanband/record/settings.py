@@ -7,6 +7,7 @@ from collections.abc import Callable, Iterable, Mapping
 from dataclasses import dataclass, fields, replace
 from typing import Any
 
+from meanband import defaults
 from meanband.errors import TrialError
 
 __all__ = ["DEFAULTS", "SettingError", "Settings", "marker_settings", "resolve", "validate"]
@@ -20,19 +21,19 @@ class SettingError(TrialError):
 class Settings:
     """Everything a check needs to know beyond its trials and band."""
 
-    n: int = 30
-    confidence: float = 0.95
-    warmup: int | str = 0
-    min_n: int = 10
-    normality_alpha: float = 0.05
-    method: str = "t"
-    power: float = 0.9
+    n: int = defaults.N
+    confidence: float = defaults.CONFIDENCE
+    warmup: int | str = defaults.WARMUP
+    min_n: int = defaults.MIN_N
+    normality_alpha: float = defaults.NORMALITY_ALPHA
+    method: str = defaults.METHOD
+    power: float = defaults.POWER
     #: Timing engine (see docs/timing.md): seconds a trial lasts at least (None: automatic),
     #: the clock ("wall" or "cpu"), whether garbage collection stays on during trials, and a
     #: per-test limit in seconds on the time spent timing (None: no limit).
     min_trial_time: float | None = None
-    clock: str = "wall"
-    gc: bool = False
+    clock: str = defaults.CLOCK
+    gc: bool = defaults.GC
     time_limit: float | None = None
 
     def merged(self, **overrides: Any) -> Settings:
