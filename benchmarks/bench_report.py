@@ -22,11 +22,12 @@ import time
 from pathlib import Path
 
 import numpy as np
-from meanband import report_json
-from meanband.bands import decide, make_band
-from meanband.explain import assumption_notes
-from meanband.merge import merge_reports
-from meanband.summary import format_summary
+from meanband.report.merge import merge_reports
+from meanband.report.terminal import format_summary
+from meanband.stats.bands import make_band
+from meanband.stats.decision import decide
+from meanband.stats.notes import assumption_notes
+from meanband.store import report_json
 
 TEMPLATES = 40  # distinct decisions; rows reuse them with their own trials
 

@@ -35,8 +35,8 @@ import time
 import timeit
 from array import array
 
-from meanband.clock import measure
-from meanband.timing import time_calls
+from meanband.collect.clock import measure
+from meanband.collect.timing import time_calls
 
 OVERHEAD_TARGET = 1.15
 EFFICIENCY_TARGET = 0.8

@@ -13,8 +13,8 @@ import sys
 import tempfile
 from pathlib import Path
 
-from meanband.plots import slugs, write_plots
-from meanband.report_json import load_report
+from meanband.report.plots import slugs, write_plots
+from meanband.store.report_json import load_report
 
 ROOT = Path(__file__).resolve().parent.parent
 TARGET = ROOT / "docs" / "img"

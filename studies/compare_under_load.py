@@ -1,6 +1,6 @@
 """Does the interleaved comparison still see a 10% difference while the machine is busy?
 
-Times two busy loops of about 50 µs (the second 10% longer) with meanband.comparison, ROUNDS
+Times two busy loops of about 50 µs (the second 10% longer) with meanband.collect.paired, ROUNDS
 times, with LOAD processes spinning on the CPUs meanwhile, and counts how often the verdicts
 come out right: "longer / shorter at most 1.02x" must FAIL and "shorter / longer at most 0.98x"
 must PASS. Prints the miss count and the spread of the intervals.
@@ -14,8 +14,9 @@ import os
 import sys
 
 import numpy as np
-from meanband.bands import Verdict
-from meanband.comparison import check_ratio, time_pairs
+from meanband.collect.paired import time_pairs
+from meanband.stats.ratio import check_ratio
+from meanband.stats.verdict import Verdict
 
 ROUNDS = int(sys.argv[1]) if len(sys.argv) > 1 else 40
 LOAD = int(sys.argv[2]) if len(sys.argv) > 2 else (os.cpu_count() or 2)

@@ -7,7 +7,7 @@ computed, vectorised over the repetitions. Reported per cell:
 - two-sided coverage of the method's estimand (the mean; the geometric mean for log-t);
 - the false-pass rate of the upper bound: the share of samples whose upper bound lies below the
   true mean, i.e. a budget set at the true mean would wrongly pass (nominal 5%);
-- what the notes recommend (``meanband.explain.assumption_notes`` on ``meanband.diagnose``), how
+- what the notes recommend (``meanband.stats.notes.assumption_notes`` on ``meanband.diagnose``), how
   often, and the coverage of following the notes sample by sample ("notes").
 
 Run: ``python studies/coverage.py`` (a few minutes on 2 cores). Writes docs/coverage.md and
@@ -29,8 +29,8 @@ from pathlib import Path
 
 import numpy as np
 from meanband import diagnose
-from meanband.explain import assumption_notes
-from meanband.methods import batch_count, bca_mean_bounds
+from meanband.stats.methods import batch_count, bca_mean_bounds
+from meanband.stats.notes import assumption_notes
 from scipy.stats import t as student_t
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -100,7 +100,7 @@ def _t_bounds(center: np.ndarray, se: np.ndarray, df: float, side: str) -> tuple
 
 
 def bounds(method: str, x: np.ndarray, side: str, rng: np.random.Generator) -> tuple:
-    """(low, high) arrays of one method for every row of x; mirrors meanband.methods."""
+    """(low, high) arrays of one method for every row of x; mirrors meanband.stats.methods."""
     reps, n = x.shape
     if method == "t":
         return _t_bounds(x.mean(1), x.std(1, ddof=1) / math.sqrt(n), n - 1, side)

@@ -4,7 +4,7 @@ For a one-sided upper limit at confidence C, guarded acceptance (w = U) should P
 at most 1 - C of the time, and simple acceptance about half of the time. The instrument's
 calibration error is drawn from N(0, u_B) once per simulated unit; the stated u_B may itself
 carry nu_B degrees of freedom. The budget (u_A, u_c, Welch-Satterthwaite nu_eff, one-sided
-k) is written out vectorised here, the same formulas as meanband.uncertainty, whose tests check
+k) is written out vectorised here, the same formulas as meanband.stats.uncertainty, whose tests check
 them one by one. Run: python studies/false_pass_at_the_edge.py
 """
 

@@ -1,7 +1,7 @@
 """How often a baseline comparison says "regressed": false alarms at the limit, and power.
 
 For each scenario, draws seeded baseline and current samples, computes the 95% ratio interval
-(meanband.ratio.ratio_interval) and counts how often it lies wholly above the limit. When the
+(meanband.stats.ratio.ratio_interval) and counts how often it lies wholly above the limit. When the
 true ratio sits exactly on the limit the stated rate is at most (1 - 0.95) / 2 = 2.5%.
 Run: .venv/bin/python studies/ratio_error_rates.py [reps]
 """
@@ -12,8 +12,8 @@ import math
 import sys
 
 import numpy as np
-from meanband.bands import Verdict
-from meanband.ratio import judge_ratio, ratio_interval
+from meanband.stats.ratio import judge_ratio, ratio_interval
+from meanband.stats.verdict import Verdict
 
 REPS = int(sys.argv[1]) if len(sys.argv) > 1 else 4000
 LIMIT = 1.05

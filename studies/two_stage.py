@@ -23,8 +23,8 @@ import argparse
 import math
 
 import numpy as np
-from meanband.planning import power_against_edge
-from meanband.twostage import DEFAULT_PILOT, second_stage_counts, verdicts
+from meanband.stats.planning import power_against_edge
+from meanband.stats.twostage import DEFAULT_PILOT, second_stage_counts, verdicts
 from scipy import stats
 
 EDGE = 3.0  # ms

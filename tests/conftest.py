@@ -7,7 +7,7 @@ from pathlib import Path
 # In-process pytester runs drop modules first imported inside them; numpy's and scipy's
 # C extensions cannot load twice, so the meanband stack is imported once, here.
 import meanband.plugin
-import meanband.recorder  # noqa: F401
+import meanband.record.recorder  # noqa: F401
 import numpy  # noqa: F401
 import pytest
 import scipy.stats  # noqa: F401

@@ -6,8 +6,9 @@ import math
 from typing import Any
 
 import numpy as np
-from meanband.bands import decide, make_band
-from meanband.explain import assumption_notes
+from meanband.stats.bands import make_band
+from meanband.stats.decision import decide
+from meanband.stats.notes import assumption_notes
 
 
 def make_row(

@@ -1,4 +1,4 @@
-"""Tests for meanband.bands: bands, and the PASS / FAIL / UNDECIDED verdict of a check."""
+"""Tests for meanband.stats.bands: bands, and the PASS / FAIL / UNDECIDED verdict of a check."""
 
 from __future__ import annotations
 
@@ -10,7 +10,7 @@ from dataclasses import dataclass
 import numpy as np
 import pytest
 from meanband import Band, Decision, TrialError, Verdict, decide, diagnose, make_band, trials_needed
-from meanband.bands import edge_margin
+from meanband.stats.decision import edge_margin
 
 
 @dataclass(frozen=True)

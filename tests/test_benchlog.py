@@ -7,7 +7,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 from meanband import TrialError
-from meanband.benchlog import read_column
+from meanband.collect.benchlog import read_column
 
 CSV_LOG = """\
 # rig 3, channel map v2

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import pytest
-from meanband.clock import CLOCKS, Clock, get_clock, measure
+from meanband.collect.clock import CLOCKS, Clock, get_clock, measure
 from meanband.errors import TrialError
 
 

@@ -7,7 +7,8 @@ import math
 import numpy as np
 import pytest
 from meanband import TrialError, Verdict
-from meanband.comparison import check_ratio, time_pairs
+from meanband.collect.paired import time_pairs
+from meanband.stats.ratio import check_ratio
 from scipy import stats
 
 
@@ -182,7 +183,7 @@ def test_comparison_row_carries_both_sides(pytester: pytest.Pytester, run_suite)
 
 def test_compare_reads_the_clock_the_settings_name() -> None:
     # The clock module owns the clock: a comparison on the CPU clock says so in its row.
-    from meanband.comparison import compare_callables
+    from meanband.record.comparison import compare_callables
 
     def new() -> int:
         return sum(range(200))
@@ -198,3 +199,12 @@ def test_compare_reads_the_clock_the_settings_name() -> None:
         assert row["timing"]["clock"] == name
     with pytest.raises(TrialError, match="unknown clock 'sundial'"):
         compare_callables(new, old, n=4, at_most=2.0, at_least=None, confidence=0.95, clock="sundial")
+
+
+def test_paired_times_compare_with_equals() -> None:
+    # Before: == on PairedTimes raised "the truth value of an array is ambiguous".
+    machine = FakeMachine()
+    new, old = machine.work("new", 1_000), machine.work("old", 2_000)
+    times = time_pairs(new, old, 4, repeats=1, warmup=0, seed=1, clock=machine.clock)
+    assert times == times and times != time_pairs(new, old, 5, repeats=1, warmup=0, seed=1,
+                                                   clock=machine.clock)

@@ -1,4 +1,4 @@
-"""Tests for meanband.diagnostics: normality, lag-1 autocorrelation, effective n, skewness."""
+"""Tests for meanband.stats.diagnostics: normality, lag-1 autocorrelation, effective n, skewness."""
 
 from __future__ import annotations
 
@@ -9,7 +9,7 @@ import warnings
 import numpy as np
 import pytest
 from meanband import Diagnostics, NormalityTest, TrialError, diagnose
-from meanband.diagnostics import SHAPIRO_MAX_N, dagostino_pearson, lag1_autocorrelation
+from meanband.stats.diagnostics import SHAPIRO_MAX_N, dagostino_pearson, lag1_autocorrelation
 from reference_data import DATA, STRD_NAMES, STRD_RTOL, load_values, strd_certified
 
 

@@ -14,12 +14,14 @@ from typing import Any
 
 import numpy as np
 import pytest
-from meanband import history
-from meanband.history import HistoryStore, StoreError, describe_environment
+from meanband.store import history
+from meanband.store.environment import capture_environment as describe_environment
+from meanband.store.history import HistoryStore, StoreError
 
 RNG = np.random.default_rng(20261206)
-ENV = {"commit": "0123456789abcdef", "branch": "main", "dirty": False, "host": "bench-7",
-       "machine": "x86_64", "cpus": 2, "system": "Linux", "python": "CPython 3.11",
+ENV = {"commit": "0123456789abcdef", "branch": "main", "dirty": False, "hostname": "bench-7",
+       "machine": "x86_64", "cpu_count": 2, "platform": "Linux", "implementation": "CPython",
+       "python": "3.11",
        "meanband": "0.1.0"}
 # Child processes import meanband from this checkout, not whatever else is installed.
 PLUGIN_DIR = str(Path(__file__).resolve().parents[1] / "plugin")
@@ -251,10 +253,10 @@ _SLOW_SAVER = textwrap.dedent(
     """
     import sys, time
     sys.path.insert(0, {plugin!r})
-    from meanband.history import HistoryStore
+    from meanband.store.history import HistoryStore
 
     path, label, pause, go = sys.argv[1], sys.argv[2], float(sys.argv[3]), sys.argv[4]
-    env = {{"host": "child", "machine": "m", "system": "s", "python": "p", "meanband": "0"}}
+    env = {{"hostname": "child", "machine": "m", "platform": "s", "python": "p", "meanband": "0"}}
 
     def rows():
         for i in range(5):
@@ -336,11 +338,20 @@ def test_environment_inside_a_git_checkout(tmp_path: Path) -> None:
     assert (env["commit"], env["branch"], env["dirty"]) == (head, "trunk", False)
     (tmp_path / "f.txt").write_text("changed")
     assert describe_environment(tmp_path)["dirty"] is True
-    assert env["python"].split()[1] == ".".join(map(str, sys.version_info[:3]))
+    assert env["python"] == ".".join(map(str, sys.version_info[:3]))
 
 
 def test_environment_without_git(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     monkeypatch.setenv("PATH", str(tmp_path))  # no git on the path
     env = describe_environment(tmp_path)
     assert env["commit"] is None and env["branch"] is None and env["dirty"] is None
-    assert env["cpus"] == os.cpu_count() and env["host"]
+    assert env["cpu_count"] == os.cpu_count() and env["hostname"]
+
+
+def test_stored_checks_compare_with_equals(tmp_path: Path) -> None:
+    # Before: == on a StoredCheck raised "the truth value of an array is ambiguous".
+    with HistoryStore(tmp_path / "h.sqlite") as store:
+        run_id = store.record_run([make_row("t.py::a"), make_row("t.py::b")], environment=ENV)
+        first, second = store.checks(run_id)
+        again = store.checks(run_id)[0]
+    assert first == again and first != second

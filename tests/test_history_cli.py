@@ -16,11 +16,12 @@ from typing import Any
 import numpy as np
 import pytest
 from meanband.cli import main
-from meanband.history import HistoryStore
+from meanband.store.history import HistoryStore
 from scipy import stats
 
-ENV = {"commit": "feedfacecafe0123", "branch": "main", "dirty": True, "host": "bench-7",
-       "machine": "x86_64", "cpus": 2, "system": "Linux", "python": "CPython 3.11",
+ENV = {"commit": "feedfacecafe0123", "branch": "main", "dirty": True, "hostname": "bench-7",
+       "machine": "x86_64", "cpu_count": 2, "platform": "Linux", "implementation": "CPython",
+       "python": "3.11",
        "meanband": "0.1.0"}
 PLUGIN_DIR = str(Path(__file__).resolve().parents[1] / "plugin")
 
@@ -195,4 +196,4 @@ def test_compare_leaves_in_run_comparisons_alone(tmp_path: Path, capsys: pytest.
         s.record_run([row], label="a", environment=ENV)
         s.record_run([{**row, "values": [1.5, 1.6, 1.55]}], label="b", environment=ENV)
     code, out, _ = run(capsys, "history", "compare", "a", "b", "--store", str(path))
-    assert code == 0 and out.rstrip().endswith("in-run comparison, its own gate")
+    assert code == 0 and out.rstrip().endswith("not compared: an in-run comparison is its own gate")

@@ -8,7 +8,7 @@ import re
 
 import numpy as np
 import pytest
-from meanband.history import HistoryStore
+from meanband.store.history import HistoryStore
 from scipy import stats
 
 SUITE = """

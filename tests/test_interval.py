@@ -1,4 +1,4 @@
-"""Tests for meanband.interval: the Student-t interval of the mean and its critical values."""
+"""Tests for meanband.stats.interval: the Student-t interval of the mean and its critical values."""
 
 from __future__ import annotations
 
@@ -13,7 +13,8 @@ import pytest
 from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 from meanband import Interval, TrialError, critical_t, mean_interval
-from meanband.interval import METHODS, SIDES
+from meanband.stats.interval import SIDES
+from meanband.stats.methods import METHODS
 from reference_data import STRD_NAMES, STRD_RTOL, load_values, strd_certified
 
 LEVELS = (0.5, 0.8, 0.9, 0.95, 0.975, 0.99, 0.999)

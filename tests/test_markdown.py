@@ -6,8 +6,8 @@ import re
 
 import numpy as np
 import pytest
-from meanband.markdown import append_job_summary, format_markdown, write_markdown
-from meanband.report_json import ReportError
+from meanband.report.markdown import append_job_summary, format_markdown, write_markdown
+from meanband.store.report_json import ReportError
 from report_rows import make_row, sample_rows
 
 

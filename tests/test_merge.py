@@ -4,9 +4,9 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from meanband import report_json
-from meanband.merge import MergeConflict, merge_reports
-from meanband.report_json import ReportError
+from meanband.report.merge import MergeConflict, merge_reports
+from meanband.store import report_json
+from meanband.store.report_json import ReportError
 from report_rows import make_row, sample_rows
 
 
@@ -55,7 +55,7 @@ def test_pooling_recomputes_the_decision_from_all_trials():
     rng = np.random.default_rng(11)
     first, second = rng.normal(1.0e-3, 2e-4, 10), rng.normal(1.1e-3, 2e-4, 14)
     rows_a = [make_row("t.py::test_lookup", first, band={"high": "1.2ms"}, unit="s",
-                       baseline={"label": "main"})]
+                       baseline={"run": 1, "label": "main", "status": "no baseline"})]
     rows_b = [make_row("t.py::test_lookup", second, band={"high": "1.2ms"}, unit="s")]
     merged = merge_reports([("a.json", report(rows_a)), ("b.json", report(rows_b))], pool=True)
     (row,) = merged["rows"]

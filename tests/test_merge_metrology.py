@@ -6,13 +6,13 @@ import math
 
 import numpy as np
 import pytest
-from meanband import report_json
 from meanband.errors import BandViolation
-from meanband.merge import merge_reports
-from meanband.recorder import Recorder
-from meanband.report_json import ReportError
-from meanband.settings import resolve
-from meanband.uncertainty import uncertainty_budget
+from meanband.record.recorder import Recorder
+from meanband.record.settings import resolve
+from meanband.report.merge import merge_reports
+from meanband.stats.uncertainty import uncertainty_budget
+from meanband.store import report_json
+from meanband.store.report_json import ReportError
 
 RNG = np.random.default_rng(417)
 
@@ -99,7 +99,7 @@ def test_adaptive_count_refuses_instrument_and_simple_rule_clearly(check) -> Non
 
 
 def test_simple_acceptance_keeps_its_count_instead_of_a_power_suggestion() -> None:
-    from meanband.suggest import suggestion_for_row
+    from meanband.record.suggestion import suggestion_for_row
 
     values = RNG.normal(12.039, 0.01, 20)  # mean just inside the upper edge 12.04
     simple = suggestion_for_row(_row(values, rule="simple"))

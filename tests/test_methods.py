@@ -11,9 +11,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from meanband import TrialError, mean_interval
-from meanband.interval import METHODS
-from meanband.methods import (
+from meanband.stats.methods import (
     BOOTSTRAP_SEED,
+    METHODS,
     batch_count,
     bca_mean_bounds,
 )

@@ -8,8 +8,8 @@ import math
 import numpy as np
 import pytest
 from meanband import mean_interval
-from meanband.rules import conformance_probability
-from meanband.uncertainty import uncertainty_budget
+from meanband.stats.rules import conformance_probability
+from meanband.stats.uncertainty import uncertainty_budget
 
 RNG = np.random.default_rng(8080)
 

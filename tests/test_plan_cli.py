@@ -9,7 +9,7 @@ import sys
 import numpy as np
 import pytest
 from meanband.cli import main
-from meanband.planfile import read_plan
+from meanband.store.planfile import read_plan
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -145,7 +145,8 @@ def test_bad_power_is_a_usage_error(rows_file, capsys):
 
 
 def test_all_lists_counts_that_are_about_right(tmp_path, capsys):
-    from meanband.bands import decide, make_band
+    from meanband.stats.bands import make_band
+    from meanband.stats.decision import decide
 
     z = np.random.default_rng(4).standard_normal(12)
     values = (1.0 + 0.1 * (z - z.mean()) / z.std(ddof=1)).tolist()  # mean 1, sd 0.1 exactly

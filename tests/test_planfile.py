@@ -5,7 +5,7 @@ from __future__ import annotations
 import sys
 
 import pytest
-from meanband.planfile import (
+from meanband.store.planfile import (
     FORMAT_VERSION,
     PlanEntry,
     PlanError,

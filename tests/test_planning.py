@@ -1,4 +1,4 @@
-"""Tests for meanband.planning: trial counts for a half-width goal or a decisive verdict."""
+"""Tests for meanband.stats.planning: trial counts for a half-width goal or a decisive verdict."""
 
 from __future__ import annotations
 
@@ -7,7 +7,7 @@ import math
 import numpy as np
 import pytest
 from meanband import TrialError, trials_needed
-from meanband.planning import power_against_edge
+from meanband.stats.planning import power_against_edge
 
 EFFECTS = (0.1, 0.2, 0.35, 0.5, 0.8, 1.0, 1.5)
 LEVELS = (0.9, 0.95, 0.99)

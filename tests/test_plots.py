@@ -7,8 +7,8 @@ import xml.etree.ElementTree as ET
 
 import numpy as np
 import pytest
-from meanband import plots
-from meanband.report_json import ReportError
+from meanband.report import plots
+from meanband.store.report_json import ReportError
 from report_rows import make_row, sample_rows
 
 pytest.importorskip("matplotlib")
@@ -151,8 +151,8 @@ def test_missing_matplotlib_says_how_to_install(monkeypatch):
 
 
 def test_a_pooled_run_chart_marks_where_each_run_ends(tmp_path):
-    from meanband import report_json
-    from meanband.merge import merge_reports
+    from meanband.report.merge import merge_reports
+    from meanband.store import report_json
 
     rng = np.random.default_rng(13)
     shards = []

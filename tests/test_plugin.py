@@ -499,3 +499,15 @@ def pytest_meanband_session_finish(config, rows):
     result = run_suite("-s")
     result.stdout.fnmatch_lines(["*FINISH 0*"])
     assert "= meanband =" not in result.stdout.str()
+
+
+def test_the_failure_message_states_the_power_in_use(run_suite, pytester):
+    # Before: the message always said "90% power", whatever --meanband-power was.
+    pytester.makepyfile(test_msg=_suite({"STRADDLE": STRADDLE}, """
+def test_it(trials):
+    trials.extend(STRADDLE, unit="degC")
+    trials.check(center=85.0, tolerance=0.4)
+"""))
+    result = run_suite("--meanband-power", "0.8")
+    result.stdout.fnmatch_lines(["*to decide  about * trials would likely decide it (80% power,*"])
+    assert "90% power" not in result.stdout.str()

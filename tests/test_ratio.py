@@ -10,7 +10,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from meanband import TrialError, Verdict
-from meanband.ratio import (
+from meanband.stats.ratio import (
     judge_ratio,
     mean_difference,
     paired_ratio_interval,

@@ -6,15 +6,8 @@ import math
 
 import numpy as np
 import pytest
-from meanband.regression import (
-    CANNOT_TELL,
-    NO_REGRESSION,
-    REGRESSED,
-    Limits,
-    compare_samples,
-    format_limit,
-    format_ratio,
-)
+from meanband.report.baseline import format_limit, format_ratio
+from meanband.stats.regression import CANNOT_TELL, NO_REGRESSION, REGRESSED, Limits, compare_samples
 
 RNG = np.random.default_rng(20261207)
 
@@ -77,3 +70,16 @@ def test_bad_trials_raise() -> None:
 
     with pytest.raises(TrialError, match="at least 2"):
         compare_samples([1.0], [1.0, 2.0], timing=True)
+
+
+def test_cannot_tell_counts_follow_the_stated_power() -> None:
+    # Before: the "cannot tell yet" count ignored the power setting (always 90%).
+    rng = np.random.default_rng(12)
+    base = rng.lognormal(0.0, 0.05, 12)
+    now = rng.lognormal(0.045, 0.05, 12)
+    counts = {}
+    for power in (0.5, 0.9, 0.99):
+        result = compare_samples(now, base, timing=True, power=power)
+        assert result["status"] == CANNOT_TELL
+        counts[power] = result["suggested_n"]
+    assert counts[0.5] < counts[0.9] < counts[0.99]

@@ -7,8 +7,8 @@ import json
 import jsonschema
 import numpy as np
 import pytest
-from meanband import report_json
 from meanband.cli import main as console
+from meanband.store import report_json
 
 pytest.importorskip("matplotlib")
 # Loaded once here: in-process inner runs would otherwise import matplotlib's C parts again.
@@ -277,3 +277,33 @@ def test_bad_boolean_in_the_ini_file_names_the_key(run_suite, pytester):
     result = run_suite("--meanband-report", "r.json")
     assert result.ret == pytest.ExitCode.USAGE_ERROR
     result.stderr.fnmatch_lines(["*ini key meanband_report_trials: invalid truth value 'maybe'*"])
+
+
+# Invented scenario: a kiln controller's setpoint parser, timed, and a thermocouple log with an
+# instrument uncertainty: the timing and metrology sections both appear at -v.
+TIMED_SUITE = """
+def parse_setpoint():
+    return float("640.25")
+
+def test_parse_setpoint(trials):
+    trials.time(parse_setpoint, n=12)
+    trials.check(high="5ms")
+
+def test_zone(trials):
+    trials.extend([640.1, 640.3, 639.9, 640.2, 640.0, 640.4], unit="degC")
+    trials.check(center=640.0, tolerance=2.0, instrument_uncertainty=0.05)
+"""
+
+
+@pytest.mark.parametrize("workers", [[], ["-n", "2"]], ids=["serial", "xdist"])
+def test_report_verbose_prints_every_section_the_live_verbose_summary_printed(
+        run_suite, pytester, capsys, workers):
+    # Before: `meanband report -v` dropped the timing section that the live -v summary printed.
+    pytester.makepyfile(test_kiln_timing=TIMED_SUITE)
+    result = run_suite("--meanband-report", "out/timed.json", "-v", *workers)
+    result.assert_outcomes(passed=2)
+    live = summary_block(result.outlines)
+    assert "timed series:" in live and "measurement uncertainty and decision rule:" in live
+    capsys.readouterr()
+    assert console(["report", str(pytester.path / "out" / "timed.json"), "-v"]) == 0
+    assert capsys.readouterr().out.splitlines() == live

@@ -10,7 +10,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from meanband import diagnose
-from meanband.diagnostics import (
+from meanband.stats.diagnostics import (
     DRIFT_MAX_N,
     Diagnostics,
     NormalityTest,
@@ -18,8 +18,8 @@ from meanband.diagnostics import (
     drift_test,
     tukey_fences,
 )
-from meanband.explain import assumption_notes, lognormal_skewness, trials_for_skewness
-from meanband.interval import METHODS
+from meanband.stats.methods import METHODS
+from meanband.stats.notes import assumption_notes, lognormal_skewness, trials_for_skewness
 from scipy import stats
 
 SEEDS = range(40)

@@ -9,9 +9,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from meanband import BandViolation, TrialError, Verdict, assert_mean_within, decide, make_band
-from meanband.interval import METHODS
-from meanband.rules import apply_rule, check_rule, conformance_probability
-from meanband.uncertainty import uncertainty_budget
+from meanband.stats.methods import METHODS
+from meanband.stats.rules import apply_rule, check_rule, conformance_probability
+from meanband.stats.uncertainty import uncertainty_budget
 
 
 def _phi(z: float) -> float:

@@ -1,4 +1,4 @@
-"""Tests for meanband.sample: validation of trials and the stable mean and sd."""
+"""Tests for meanband.stats.sample: validation of trials and the stable mean and sd."""
 
 from __future__ import annotations
 
@@ -11,7 +11,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from meanband import TrialError
-from meanband.sample import (
+from meanband.stats.sample import (
     as_sample,
     check_confidence,
     deviations,

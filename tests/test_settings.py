@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import pytest
-from meanband.settings import DEFAULTS, SettingError, marker_settings, resolve, validate
+from meanband.record.settings import DEFAULTS, SettingError, marker_settings, resolve, validate
 
 
 def test_defaults_are_the_documented_ones():
@@ -42,7 +42,7 @@ def test_strings_from_option_and_ini_are_converted():
         ("n", True, "not a boolean"),
         ("confidence", 0.0, "strictly between 0 and 1"),
         ("confidence", 95, "did you mean 0.95?"),
-        ("confidence", "abc", "could not convert"),
+        ("confidence", "abc", "a number between 0 and 1"),
         ("power", 1.0, "strictly between 0 and 1"),
         ("warmup", -1, "whole number >= 0"),
         ("warmup", "5 fortnights", "cannot read '5 fortnights' as a duration"),

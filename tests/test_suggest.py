@@ -8,15 +8,11 @@ import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
-from meanband.bands import decide, make_band
 from meanband.errors import TrialError
-from meanband.suggest import (
-    MIN_SAVING,
-    check_power,
-    suggest_trials,
-    suggestion_for_row,
-    trial_seconds,
-)
+from meanband.record.suggestion import suggestion_for_row, trial_seconds
+from meanband.stats.bands import make_band
+from meanband.stats.decision import decide
+from meanband.stats.suggest import MIN_SAVING, check_power, suggest_trials
 
 
 def _statsmodels_n(effect: float, alpha: float, power: float) -> int:
@@ -188,7 +184,7 @@ def test_suggestions_go_the_right_way_and_are_minimal(seed, n, shift, two_sided)
     # Properties, with the power recomputed by planning.power_against_edge (noncentral t):
     # UNDECIDED asks for more; a smaller PASS count still reaches the power and one trial
     # fewer would not (unless min_n set it); FAIL asks for nothing.
-    from meanband.planning import power_against_edge
+    from meanband.stats.planning import power_against_edge
 
     values = np.random.default_rng(seed).normal(shift, 1.0, n)
     band = make_band(-4.0, 0.0) if two_sided else make_band(high=0.0)
@@ -218,8 +214,9 @@ def test_instrument_uncertainty_can_forbid_a_count_the_t_test_alone_would_promis
     """With a large Type B part, no n shrinks U below the margin: the suggestion must say so
     (JCGM 100 G.4.1: u_c^2 = s^2/n + u_B^2 never falls below u_B^2), not quote a t-test count."""
     import numpy as np
-    from meanband.bands import decide, make_band
-    from meanband.suggest import suggestion_for_row
+    from meanband.record.suggestion import suggestion_for_row
+    from meanband.stats.bands import make_band
+    from meanband.stats.decision import decide
 
     rng = np.random.default_rng(4)
     z = rng.normal(size=40)

@@ -3,8 +3,9 @@
 from __future__ import annotations
 
 import numpy as np
-from meanband.bands import decide, make_band
-from meanband.summary import format_summary, totals_line
+from meanband.report.terminal import format_summary, totals_line
+from meanband.stats.bands import make_band
+from meanband.stats.decision import decide
 
 
 def _row(nodeid, values, band, unit=None, series="", notes=()):

@@ -7,17 +7,17 @@ import itertools
 import json
 import math
 
-import meanband.timing as timing_module
+import meanband.collect.timing as timing_module
 import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
-from meanband.clock import Clock, ClockInfo
-from meanband.errors import TrialError
-from meanband.timing import (
+from meanband.collect.clock import Clock, ClockInfo
+from meanband.collect.timing import (
     parse_warmup,
     time_calls,
 )
+from meanband.errors import TrialError
 
 READ_COST = 50  # ns that one read of the fake clock takes
 NO_ENV: dict[str, str] = {}
@@ -504,7 +504,7 @@ def test_the_real_clock_times_a_call() -> None:
 def test_long_runs_test_drift_on_block_means() -> None:
     # The engine's drift test reads at most DRIFT_MAX_POINTS points, so its cost does not grow
     # with n, and still finds a trend hidden in the jitter of single trials.
-    from meanband.timing import DRIFT_MAX_POINTS, _drift
+    from meanband.collect.timing import DRIFT_MAX_POINTS, _drift
 
     x = np.random.default_rng(3).normal(size=5 * DRIFT_MAX_POINTS)
     flat = _drift(x)
@@ -512,3 +512,13 @@ def test_long_runs_test_drift_on_block_means() -> None:
     trend = _drift(x + np.linspace(0, 1, x.size))
     assert trend is not None and trend.rejects(0.01)
     assert trend.change == pytest.approx(1.0, rel=0.2)
+
+
+def test_timings_compare_with_equals() -> None:
+    # Before: == on the engine's Timing compared identity only; arrays now compare by value.
+    def timed(n: int):
+        fake = FakeClock()
+        return run(fake, fake.work(1_000), n=n, loops=1)
+
+    assert timed(4) == timed(4)
+    assert timed(4) != timed(5)

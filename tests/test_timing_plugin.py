@@ -15,7 +15,7 @@ import json
 import numpy as np
 import pytest
 
-import meanband.clock as clock_module
+import meanband.collect.clock as clock_module
 
 READ = 50
 
@@ -443,7 +443,7 @@ def test_mixed(trials, fake):
 
 
 def test_timing_lines_show_the_range_when_worker_processes_measured_differently() -> None:
-    from meanband.timing_plugin import timing_lines
+    from meanband.report.timing import timing_lines
 
     def row(test: str, read_cost: float) -> dict:
         timing = {

@@ -6,9 +6,9 @@ import math
 
 import numpy as np
 import pytest
-from meanband.bands import Verdict, make_band
 from meanband.errors import TrialError
-from meanband.twostage import (
+from meanband.stats.bands import make_band
+from meanband.stats.twostage import (
     MIN_SECOND,
     check_max_n,
     decide_two_stage,
@@ -18,6 +18,7 @@ from meanband.twostage import (
     stein_interval,
     verdicts,
 )
+from meanband.stats.verdict import Verdict
 from scipy import stats
 
 PILOT = np.array([10.2, 9.8, 10.5, 9.9, 10.1, 10.4, 9.7, 10.0, 10.3, 10.1])
@@ -196,3 +197,12 @@ def test_run_two_stage_refuses_a_bad_pilot(pilot):
 def test_run_two_stage_refuses_bad_trials_from_the_collector():
     with pytest.raises(TrialError, match="NaN or infinite"):
         run_two_stage(lambda k: np.full(k, np.nan), make_band(high=2.0))
+
+
+def test_runs_holding_arrays_compare_with_equals() -> None:
+    # Before: == raised "the truth value of an array is ambiguous" on these frozen dataclasses.
+    band = make_band(high=2.0)
+    run = run_two_stage(lambda k: np.linspace(1.0, 1.2, k), band, pilot_n=5, max_n=20)
+    same = run_two_stage(lambda k: np.linspace(1.0, 1.2, k), band, pilot_n=5, max_n=20)
+    other = run_two_stage(lambda k: np.linspace(1.0, 1.3, k), band, pilot_n=5, max_n=20)
+    assert run == same and run != other and (run == "run") is False

@@ -10,7 +10,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from meanband import BandViolation, TrialError, assert_mean_within, mean_interval
-from meanband.uncertainty import (
+from meanband.stats.uncertainty import (
     COMBINED_METHOD,
     InstrumentUncertainty,
     as_instrument_uncertainty,

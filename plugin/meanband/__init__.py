@@ -10,13 +10,16 @@ import importlib
 from typing import TYPE_CHECKING, Any
 
 if TYPE_CHECKING:
-    from meanband.assertion import assert_mean_within
-    from meanband.bands import Band, Decision, Verdict, decide, make_band
-    from meanband.diagnostics import Diagnostics, NormalityTest, diagnose
     from meanband.errors import BandViolation, TrialError
-    from meanband.interval import Interval, critical_t, mean_interval
-    from meanband.planning import trials_needed
-    from meanband.uncertainty import InstrumentUncertainty, UncertaintyBudget, uncertainty_budget
+    from meanband.record.assertion import assert_mean_within
+    from meanband.stats.bands import Band, make_band
+    from meanband.stats.decision import Decision, decide
+    from meanband.stats.diagnostics import Diagnostics, NormalityTest, diagnose
+    from meanband.stats.interval import Interval, critical_t
+    from meanband.stats.methods import mean_interval
+    from meanband.stats.planning import trials_needed
+    from meanband.stats.uncertainty import InstrumentUncertainty, UncertaintyBudget, uncertainty_budget
+    from meanband.stats.verdict import Verdict
 
 __all__ = [
     "Band",
@@ -42,24 +45,24 @@ __all__ = [
 __version__ = "0.1.0"
 
 _HOME = {
-    "assert_mean_within": "assertion",
-    "Band": "bands",
-    "Decision": "bands",
-    "Verdict": "bands",
-    "decide": "bands",
-    "make_band": "bands",
-    "Diagnostics": "diagnostics",
-    "NormalityTest": "diagnostics",
-    "diagnose": "diagnostics",
+    "assert_mean_within": "record.assertion",
+    "Band": "stats.bands",
+    "Decision": "stats.decision",
+    "Verdict": "stats.verdict",
+    "decide": "stats.decision",
+    "make_band": "stats.bands",
+    "Diagnostics": "stats.diagnostics",
+    "NormalityTest": "stats.diagnostics",
+    "diagnose": "stats.diagnostics",
     "BandViolation": "errors",
     "TrialError": "errors",
-    "Interval": "interval",
-    "critical_t": "interval",
-    "mean_interval": "interval",
-    "trials_needed": "planning",
-    "InstrumentUncertainty": "uncertainty",
-    "UncertaintyBudget": "uncertainty",
-    "uncertainty_budget": "uncertainty",
+    "Interval": "stats.interval",
+    "critical_t": "stats.interval",
+    "mean_interval": "stats.methods",
+    "trials_needed": "stats.planning",
+    "InstrumentUncertainty": "stats.uncertainty",
+    "UncertaintyBudget": "stats.uncertainty",
+    "uncertainty_budget": "stats.uncertainty",
 }
 
 

@@ -1,23 +1,33 @@
-"""Exceptions a user of meanband can catch."""
+"""Exceptions a user of meanband can catch; every one derives from :class:`MeanbandError`."""
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
-if TYPE_CHECKING:
-    from meanband.bands import Decision
-
-__all__ = ["BandViolation", "TrialError"]
+__all__ = ["BandViolation", "MeanbandError", "ReportError", "StoreError", "TrialError"]
 
 
-class TrialError(ValueError):
+class MeanbandError(Exception):
+    """Root of meanband's exceptions: ``except MeanbandError`` catches every one of them."""
+
+
+class TrialError(MeanbandError, ValueError):
     """Bad trials or bad arguments: the message says what was wrong and what to do."""
 
 
-class BandViolation(AssertionError):
+class BandViolation(MeanbandError, AssertionError):
     """A check did not pass: the interval of the mean is outside or across its band."""
 
-    def __init__(self, message: str, decision: Decision | Any = None) -> None:
+    def __init__(self, message: str, decision: Any = None) -> None:
         super().__init__(message)
-        #: The :class:`~meanband.bands.Decision` that failed.
+        #: What failed: a :class:`~meanband.stats.decision.Decision`, or the
+        #: :class:`~meanband.stats.ratio.RatioCheck` of an in-run comparison.
         self.decision = decision
+
+
+class ReportError(MeanbandError, ValueError):
+    """A report file that cannot be read or written, or reports that cannot be combined."""
+
+
+class StoreError(MeanbandError):
+    """The history store cannot be used; the message names the file and what to do."""

@@ -1,4 +1,5 @@
-"""Duration strings in, readable numbers with units out."""
+"""Numbers with units, read and written: duration strings in, readable values, bands and
+probabilities out."""
 
 from __future__ import annotations
 
@@ -9,7 +10,11 @@ from meanband.errors import TrialError
 
 __all__ = [
     "SECONDS",
+    "format_band",
+    "format_bound",
+    "format_df",
     "format_number",
+    "format_probability",
     "format_value",
     "parse_duration",
     "significant_digits",
@@ -99,3 +104,40 @@ def time_scale(value: float) -> float:
         if magnitude >= factor:
             return factor
     return 1e-9
+
+
+def format_bound(value: float, unit: str | None, digits: int = 4, *, scale: float | None = None) -> str:
+    """``value`` with its unit, or ``-inf``/``inf``/``nan`` for the ends a bound may leave open."""
+    if not math.isfinite(value):
+        return "nan" if math.isnan(value) else ("-inf" if value < 0 else "inf")
+    return format_value(value, unit, digits, scale=scale)
+
+
+def format_band(low: float, high: float, unit: str | None, digits: int = 4) -> str:
+    """A band as a user wrote it: ``<= 3 ms``, ``>= 10 V`` or ``[84.6, 85.4] degC``; timing
+    edges get a time unit of their own, so a 3 ms budget never shows as 3000 µs."""
+
+    def fmt(value: float) -> str:
+        return format_value(value, unit, digits, trim=True)
+
+    if math.isfinite(low) and math.isfinite(high):
+        return f"[{fmt(low)}, {fmt(high)}]"
+    if math.isfinite(high):
+        return f"<= {fmt(high)}"
+    return f">= {fmt(low)}"
+
+
+def format_probability(p: float) -> str:
+    """A probability with enough digits to tell 0.9999 from 1 (``1 - 2e-06``)."""
+    if p == 0.0 or p == 1.0:
+        return f"{p:g}"
+    if p > 0.99:
+        return f"1 - {1.0 - p:.2g}"
+    return f"{p:.3g}"
+
+
+def format_df(df: float | None) -> str:
+    """Degrees of freedom: ``inf`` (or None) for infinitely many, whole above 100, else 3 digits."""
+    if df is None or math.isinf(df):
+        return "inf"
+    return f"{df:.0f}" if df >= 100 else f"{df:.3g}"

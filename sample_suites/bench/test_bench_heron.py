@@ -15,7 +15,7 @@ from bench_rig import (
     LoopCalibrator,
 )
 from meanband import BandViolation, assert_mean_within
-from meanband.benchlog import read_column
+from meanband.collect.benchlog import read_column
 
 
 @pytest.mark.meanband(n=30)
@@ -65,6 +65,6 @@ def test_loop_output_with_handheld_meter(trials):
 
 
 def test_rail_log_without_fixture():
-    """The stand-alone assertion on a log read with meanband.benchlog.read_column."""
+    """The stand-alone assertion on a log read with meanband.collect.benchlog.read_column."""
     volts = read_column(LOGS / "rail_5v_unit0417.txt", 1)
     assert_mean_within(volts, low=4.90, unit="V", instrument_uncertainty=(0.002, 8))

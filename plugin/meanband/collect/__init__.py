@@ -1,0 +1,1 @@
+"""Collecting trials: the clock, the timing engine, paired timing and bench logs."""

@@ -1,0 +1,88 @@
+"""Paired timing: two callables timed in interleaved pairs, in a random order within each pair.
+
+On a shared CI machine the speed of the whole machine drifts (frequency scaling, neighbours,
+thermal limits) by more than the effects worth gating on. Timing the two callables next to each
+other exposes both to the same drift, which cancels in the ratio of each pair. The trials run on
+the timing engine's own loop, calibration and garbage-collection handling (``timing.py``).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from meanband.collect.clock import get_clock
+from meanband.collect.timing import calibrate, quiet_gc, trial_ns
+from meanband.errors import TrialError
+from meanband.stats.sample import ArrayEquality
+
+__all__ = ["MAX_BATCH", "MIN_MEASUREMENT", "PairedTimes", "time_pairs"]
+
+#: Each timed measurement lasts at least this long (calls are batched to reach it), so the
+#: clock's resolution and the cost of reading it stay small next to what is measured.
+MIN_MEASUREMENT = 20e-6
+#: Most calls one measurement batches: enough for any callable Python can call (a call costs
+#: tens of nanoseconds), few enough that a clock standing still cannot stall calibration.
+MAX_BATCH = 100_000
+
+
+@dataclass(frozen=True, eq=False)
+class PairedTimes(ArrayEquality):
+    """Seconds per call of two callables, pair by pair (each side's quickest round), and
+    whether ``first`` ran first in the pair's first round."""
+
+    first: np.ndarray
+    second: np.ndarray
+    first_went_first: np.ndarray
+    batch: int
+
+
+def time_pairs(
+    first: Callable[[], Any],
+    second: Callable[[], Any],
+    n: int,
+    *,
+    repeats: int = 5,
+    warmup: int = 2,
+    seed: int | None = None,
+    clock: Callable[[], int] | None = None,
+) -> PairedTimes:
+    """Time ``n`` pairs; each pair is ``repeats`` rounds of one call batch of each callable, in
+    a random order per round, and keeps each side's quickest round.
+
+    Interference from the rest of the machine (preemption, interrupts) only ever adds time, so
+    the quickest of a few adjacent rounds is the pair's undisturbed time and one descheduling
+    cannot throw a pair off (common practice in timing, from memory). Calls are batched (the
+    same batch size for both, calibrated by the timing engine) so each measurement lasts at least
+    ``MIN_MEASUREMENT``; ``warmup`` pairs run first and are dropped. Garbage collection is off
+    while timing. ``clock`` reads integer nanoseconds; by default the wall clock.
+    """
+    read = get_clock("wall").read if clock is None else clock
+    for value, what, least in ((n, "n", 2), (repeats, "repeats", 1), (warmup, "warmup", 0)):
+        if isinstance(value, bool) or not isinstance(value, int) or value < least:
+            raise TrialError(f"a comparison needs {what} >= {least} (a whole number), got {value!r}")
+    rng = np.random.default_rng(seed)
+    total = n + warmup
+    order = rng.random((total, repeats)) < 0.5
+    a = np.empty((total, repeats))
+    b = np.empty((total, repeats))
+    with quiet_gc():
+        target = MIN_MEASUREMENT * 1e9
+        batch = max(calibrate(first, read, target, max_loops=MAX_BATCH),
+                    calibrate(second, read, target, max_loops=MAX_BATCH))
+        for i in range(total):
+            for j in range(repeats):
+                if order[i, j]:
+                    a[i, j] = trial_ns(first, batch, read)
+                    b[i, j] = trial_ns(second, batch, read)
+                else:
+                    b[i, j] = trial_ns(second, batch, read)
+                    a[i, j] = trial_ns(first, batch, read)
+    scale = 1e-9 / batch
+    return PairedTimes(
+        a[warmup:].min(axis=1) * scale, b[warmup:].min(axis=1) * scale,
+        order[warmup:, 0].copy(), batch,
+    )

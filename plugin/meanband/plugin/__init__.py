@@ -1,0 +1,206 @@
+"""The pytest plugin: options, the ``meanband`` marker, the ``trials`` fixture and the summary."""
+
+from __future__ import annotations
+
+from collections import Counter
+from collections.abc import Generator
+from typing import TYPE_CHECKING, Any
+
+import pytest
+
+from meanband import defaults
+from meanband.plugin.options import ini_value, option_value
+from meanband.record.settings import SettingError, marker_settings, resolve, validate
+
+if TYPE_CHECKING:
+    from meanband.record.recorder import Recorder
+    from meanband.record.row import ResultRow
+    from meanband.record.settings import Settings
+
+#: Feature plugins, each with its own options in the ``meanband`` group.
+pytest_plugins: list[str] = [
+    "meanband.plugin.history", "meanband.plugin.reports", "meanband.plugin.plan",
+    "meanband.plugin.timing",
+]
+
+RECORDER_KEY = pytest.StashKey["Recorder"]()
+CONFIG_LAYERS_KEY = pytest.StashKey[list[tuple[str, dict[str, Any]]]]()
+SUMMARY_PLUGIN_NAME = "meanband-summary"
+
+#: (setting, option word, help text, ini type); option --meanband-<word>, ini meanband_<name>.
+_SETTING_OPTIONS = (
+    ("n", "n", f"Default number of trials per collection call (default {defaults.N}).", "string"),
+    ("confidence", "confidence",
+     f"Confidence level of the intervals (default {defaults.CONFIDENCE}).", "string"),
+    ("min_n", "min-n", f"Warn when a check has fewer trials than this (default {defaults.MIN_N}).",
+     "string"),
+    ("normality_alpha", "normality-alpha", "Level of the normality test behind the 'normality "
+     f"doubtful' note (default {defaults.NORMALITY_ALPHA}).", "string"),
+    ("warmup", "warmup", "Default warm-up before timed trials: a count or a duration such as "
+     "'200ms' (default 0).", "string"),
+    ("method", "method", f"Default interval method (default '{defaults.METHOD}').", "string"),
+    ("power", "power", f"Power at which trial counts are suggested (default {defaults.POWER}).",
+     "string"),
+    ("min_trial_time", "min-trial-time", "Shortest timed trial, e.g. '5ms'; calibration runs "
+     "enough calls per trial to fill it (default: 1 ms or 1000 clock reads).", "string"),
+    ("clock", "clock", "Clock of timed trials: 'wall' (elapsed) or 'cpu' (this process's CPU "
+     "time) (default wall).", "string"),
+    ("gc", "gc", "Keep garbage collection on during timed trials: on or off (default off).",
+     "string"),
+    ("time_limit", "time-limit", "Most time a test may spend timing, e.g. '2s'; trials stop "
+     "early with a note (default: no limit).", "string"),
+)
+
+
+def pytest_addhooks(pluginmanager: pytest.PytestPluginManager) -> None:
+    from meanband.plugin import hookspecs
+    pluginmanager.add_hookspecs(hookspecs)
+
+
+def pytest_addoption(parser: pytest.Parser) -> None:
+    group = parser.getgroup("meanband", "meanband: confidence intervals of the mean as test gates")
+    for name, word, help_text, ini_type in _SETTING_OPTIONS:
+        group.addoption(f"--meanband-{word}", dest=f"meanband_{name}", default=None,
+                        metavar="VALUE", help=help_text)
+        parser.addini(f"meanband_{name}", help_text, type=ini_type, default=None)  # type: ignore[arg-type]
+
+
+def pytest_configure(config: pytest.Config) -> None:
+    config.addinivalue_line(
+        "markers",
+        "meanband(n=None, confidence=None, warmup=None, min_n=None, normality_alpha=None, "
+        "method=None, power=None, min_trial_time=None, clock=None, gc=None, time_limit=None): "
+        "settings for the test's `trials` fixture.",
+    )
+    config.stash[CONFIG_LAYERS_KEY] = _config_layers(config)
+    if not hasattr(config, "workerinput"):
+        config.pluginmanager.register(SummaryPlugin(config), SUMMARY_PLUGIN_NAME)
+
+
+def _config_layers(config: pytest.Config) -> list[tuple[str, dict[str, Any]]]:
+    """Command-line and ini layers, validated now so a bad value is a usage error."""
+    option_layer: dict[str, Any] = {}
+    ini_layer: dict[str, Any] = {}
+    for name, _word, _help, _type in _SETTING_OPTIONS:
+        try:
+            for layer, found in ((option_layer, option_value(config, name)),
+                                 (ini_layer, ini_value(config, name))):
+                if found is not None:
+                    layer[name] = validate(name, found.value, found.source)
+        except SettingError as exc:
+            raise pytest.UsageError(str(exc)) from None
+    return [("command line", option_layer), ("ini file", ini_layer)]
+
+
+@pytest.fixture
+def trials(request: pytest.FixtureRequest) -> Recorder:
+    """Collect repeated trials and check that the interval of their mean lies in a band."""
+    from meanband.plugin.timing import timing_session
+    from meanband.record.recorder import Recorder
+
+    item = request.node
+    config = request.config
+    layers: list[tuple[str, dict[str, Any]]] = []
+    for marker in reversed(list(item.iter_markers("meanband"))):
+        where = f"marker @pytest.mark.meanband on {item.nodeid}"
+        if marker.args:
+            raise SettingError(f"{where}: give settings as keywords, e.g. meanband(n=40)")
+        try:
+            layers.insert(0, (where, marker_settings(**marker.kwargs)))
+        except TypeError as exc:
+            raise SettingError(f"{where}: {exc}") from None
+    plan = dict(config.hook.pytest_meanband_item_settings(item=item) or {})
+    series_plans = plan.pop("series", None) or {}
+    tail: list[tuple[str, dict[str, Any]]] = config.stash[CONFIG_LAYERS_KEY]
+
+    def with_plan(source: str, values: dict[str, Any]) -> Settings:
+        return resolve([*layers, *([(source, values)] if values else []), *tail])
+
+    recorder = Recorder(
+        with_plan(f"plan entry for {item.nodeid}", plan), item.nodeid,
+        series_settings={
+            name: with_plan(f"plan entry for {item.nodeid} [{name}]", dict(values))
+            for name, values in series_plans.items()
+        },
+        other_series=with_plan("", {}),
+        timing=timing_session(config),
+    )
+    item.stash[RECORDER_KEY] = recorder
+    return recorder
+
+
+@pytest.hookimpl(wrapper=True)
+def pytest_runtest_makereport(
+    item: pytest.Item, call: pytest.CallInfo[None]
+) -> Generator[None, pytest.TestReport, pytest.TestReport]:
+    recorder = item.stash.get(RECORDER_KEY, None) if call.when == "call" else None
+    rows = recorder.all_rows() if recorder is not None else []
+    checks_per_series = Counter(r["series"] for r in rows if r.get("decision"))
+    seen: Counter[str] = Counter()
+    for row in rows:
+        if row.get("decision"):
+            index = seen[row["series"]]
+            seen[row["series"]] += 1
+            numbered = checks_per_series[row["series"]] > 1
+            item.user_properties.extend(_junit_properties(row, index if numbered else None))
+    report = yield
+    if rows:
+        report.meanband_rows = rows  # type: ignore[attr-defined]
+    return report
+
+
+def _junit_properties(row: ResultRow, index: int | None) -> list[tuple[str, object]]:
+    """``meanband[series].index.field`` properties; series and index only where needed."""
+    decision = row["decision"]
+    if decision is None:
+        return []
+    prefix = "meanband"
+    if row.get("series"):
+        prefix += f"[{row['series']}]"
+    if index is not None:
+        prefix += f".{index}"
+    interval = decision["interval"]
+    return [
+        (f"{prefix}.n", interval["n"]),
+        (f"{prefix}.mean", interval["mean"]),
+        (f"{prefix}.low", interval["low"]),
+        (f"{prefix}.high", interval["high"]),
+        (f"{prefix}.verdict", decision["verdict"]),
+    ]
+
+
+class SummaryPlugin:
+    """Collects result rows on the controller and prints the summary at the end."""
+
+    def __init__(self, config: pytest.Config) -> None:
+        self.config = config
+        self.rows: list[ResultRow] = []
+
+    def pytest_runtest_logreport(self, report: pytest.TestReport) -> None:
+        for row in getattr(report, "meanband_rows", None) or ():
+            self.config.hook.pytest_meanband_result(config=self.config, row=row)
+            self.rows.append(row)
+
+    def pytest_sessionfinish(self, session: pytest.Session) -> None:
+        # Called even with no rows: a shard that ran no checks still writes its (empty) files.
+        self.config.hook.pytest_meanband_session_finish(config=self.config, rows=self.rows)
+
+    def pytest_terminal_summary(self, terminalreporter: pytest.TerminalReporter) -> None:
+        from meanband.report.terminal import format_summary
+
+        verbosity = self.config.get_verbosity()
+        lines = format_summary(self.rows, verbosity)
+        # Features add what only the live session knows (a run recorded, a plan written, ...)
+        # through one hook; everything that rows alone say is in format_summary.
+        for extra in self.config.hook.pytest_meanband_summary_lines(config=self.config, rows=self.rows):
+            lines.extend(extra or ())
+        if not lines:
+            return
+        if verbosity < 0 or not self.rows:
+            for line in lines:
+                if line or self.rows:
+                    terminalreporter.write_line(line)
+            return
+        terminalreporter.write_sep("=", "meanband")
+        for line in lines:
+            terminalreporter.write_line(line)

@@ -1,0 +1,1 @@
+"""Recording checks: the result row, the recorder behind the ``trials`` fixture, its settings."""

@@ -1,0 +1,116 @@
+"""The words of a check: the failure message, and the metrology wording the summary shares."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from typing import Any
+
+from meanband.stats.decision import Decision
+from meanband.stats.verdict import Verdict
+from meanband.units import (
+    SECONDS,
+    format_band,
+    format_bound,
+    format_df,
+    format_probability,
+    significant_digits,
+    time_scale,
+)
+
+__all__ = ["budget_words", "describe", "rule_words"]
+
+_SIDE_WORDS = {"two-sided": "two-sided", "upper": "upper bound", "lower": "lower bound"}
+_HEADS = {
+    Verdict.PASS: "the interval of the mean lies inside the band",
+    Verdict.FAIL: "the mean is confidently outside the band",
+    Verdict.UNDECIDED: "the interval straddles a band edge: not enough evidence either way",
+}
+_SIMPLE_HEADS = {
+    Verdict.PASS: "the mean lies inside the band (simple acceptance, no guard band)",
+    Verdict.FAIL: "the mean lies outside the band (simple acceptance, no guard band)",
+}
+
+
+def budget_words(
+    budget: Mapping[str, Any], unit: str | None, scale: float | None = None, digits: int = 4
+) -> str:
+    """The uncertainty budget of a mean in one phrase: U with k and nu_eff, then u_A, u_B, u_c.
+
+    ``budget`` is an ``UncertaintyBudget.to_dict()``; an infinite df is None there.
+    """
+
+    def fmt(value: float) -> str:
+        return format_bound(value, unit, digits, scale=scale)
+
+    text = (f"U = {fmt(budget['expanded'])} (k = {budget['coverage_factor']:.3f}, "
+            f"nu_eff {format_df(budget['effective_df'])}); u_A {fmt(budget['type_a'])} "
+            f"(df {format_df(budget['type_a_df'])})")
+    if budget.get("type_b"):
+        text += f", u_B {fmt(budget['type_b'])} (df {format_df(budget['type_b_df'])})"
+    return text + f", u_c {fmt(budget['combined'])}"
+
+
+def rule_words(rule: Mapping[str, Any], unit: str | None, scale: float | None = None) -> str:
+    """The decision rule and its probabilities in one phrase (``RuleOutcome.to_dict()``)."""
+    if rule.get("rule") == "simple":
+        text = "simple acceptance (w = 0): the mean alone is compared with the band"
+    else:
+        guard = format_bound(float(rule.get("guard_band", 0.0)), unit, scale=scale)
+        text = f"guarded acceptance (guard band w = U = {guard})"
+    for key, words in (("conformance_probability", "conformance probability"),
+                       ("false_accept_probability", "probability of false acceptance"),
+                       ("false_reject_probability", "probability of false rejection")):
+        if rule.get(key) is not None:
+            text += f"; {words} {format_probability(rule[key])}"
+    return text
+
+
+def describe(
+    decision: Decision, *, label: str = "", notes: Sequence[Mapping[str, str]] | None = None
+) -> str:
+    """The failure message: n, mean, interval, band, verdict and diagnostics in one block."""
+    iv, d, unit = decision.interval, decision.diagnostics, decision.unit
+    scale = time_scale(iv.mean) if unit == SECONDS else None
+    digits = significant_digits(iv.mean, iv.sem)
+    head = _HEADS[decision.verdict]
+    if decision.rule is not None and decision.rule.rule == "simple":
+        head = _SIMPLE_HEADS.get(decision.verdict, head)
+    budget = decision.uncertainty
+    sd_df = budget.type_a_df if budget is not None else iv.df  # nu_eff is the interval's df
+    lines = [
+        f"meanband {decision.verdict.value}{' [' + label + ']' if label else ''}: {head}",
+        f"  n          {iv.n}",
+        f"  mean       {format_bound(iv.mean, unit, digits, scale=scale)}",
+        f"  interval   [{format_bound(iv.low, unit, digits, scale=scale)}, "
+        f"{format_bound(iv.high, unit, digits, scale=scale)}] "
+        f"({iv.confidence * 100:g}% {_SIDE_WORDS[iv.side]}, {iv.method}; about the {iv.estimand})",
+        f"  band       {format_band(decision.band.low, decision.band.high, decision.band.unit, digits)}",
+        f"  verdict    {decision.verdict.value}",
+        f"  sd         {format_bound(iv.sd, unit, scale=scale)} (df {sd_df:g})",
+    ]
+    if budget is not None and budget.has_instrument:
+        lines.append(f"  U          {budget_words(budget.to_dict(), unit, scale)}")
+    if decision.rule is not None:
+        lines.append(f"  rule       {rule_words(decision.rule.to_dict(), unit, scale)}")
+    normality = d.normality
+    if normality.testable:
+        lines.append(f"  normality  {normality.method} W/stat = {normality.statistic:.4g}, "
+                     f"p = {normality.pvalue:.3g}")
+    else:
+        lines.append(f"  normality  not testable ({normality.reason})")
+    if not math.isnan(d.lag1):
+        lines.append(f"  lag-1 r    {d.lag1:.3f} (effective n about {d.effective_n:.0f})")
+    if decision.verdict is Verdict.UNDECIDED:
+        if decision.suggested_n is None and budget is not None and budget.has_instrument:
+            lines.append("  to decide  more trials will not decide it: the instrument's own "
+                         "uncertainty leaves too little room; a better calibrated instrument may")
+        elif decision.suggested_n is None:
+            lines.append("  to decide  the mean sits on the edge: no number of trials is likely "
+                         "to decide")
+        else:
+            lines.append(f"  to decide  about {decision.suggested_n} trials would likely decide it "
+                         f"({decision.power:.0%} power, from this mean and sd)")
+    for note in notes or []:
+        lines.append(f"  note       {note['text']}")
+    return "\n".join(lines)

@@ -1,0 +1,374 @@
+"""The object the ``trials`` fixture hands a test: collect trials, then check their mean."""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Callable, Iterable
+from typing import Any
+
+import numpy as np
+
+from meanband.collect.clock import get_clock
+from meanband.collect.timing import time_calls
+from meanband.errors import BandViolation, TrialError
+from meanband.record import adaptive
+from meanband.record.check import decide_with_notes
+from meanband.record.message import describe
+from meanband.record.row import ResultRow, build_row
+from meanband.record.settings import Settings
+from meanband.stats.bands import Band, Edge, Tolerance, make_band
+from meanband.stats.decision import Decision
+from meanband.stats.interval import Interval
+from meanband.stats.methods import mean_interval
+from meanband.stats.rules import GUARDED
+from meanband.stats.sample import as_sample
+from meanband.stats.uncertainty import InstrumentSpec
+from meanband.units import SECONDS
+
+__all__ = ["Recorder", "Series"]
+
+class Series:
+    """One named stream of trials in a test, with the checks made on it."""
+
+    def __init__(self, name: str, settings: Settings, nodeid: str = "") -> None:
+        self.name = name
+        self.settings = settings
+        self.nodeid = nodeid
+        self.unit: str | None = None
+        self.source: str | None = None
+        self._values = np.empty(0, dtype=np.float64)
+        self._warmup = np.empty(0, dtype=np.float64)
+        self._timing: dict[str, Any] | None = None
+        self._timing_notes: list[dict[str, str]] = []
+        self._test_timing = SharedTiming()
+        self._rows: list[ResultRow] = []
+        self._adaptive: adaptive.AdaptiveRun | None = None  # set by n="auto"
+
+    # -- collecting -------------------------------------------------------------------------
+
+    def time(
+        self, fn: Callable[..., Any], *args: Any, n: int | str | None = None,
+        warmup: int | str | None = None, setup: Callable[[], Any] | None = None,
+        max_n: int | None = None, band: dict[str, Edge] | Band | None = None,
+        pilot: int | None = None, **kwargs: Any,
+    ) -> np.ndarray:
+        """Run ``n`` timed trials of ``fn(*args, **kwargs)``; each value is seconds per call.
+
+        Each trial makes k calls, k calibrated so a trial lasts the minimum trial time.
+        ``setup`` runs before every call, outside the timed region; a value it returns (not
+        None) is passed to ``fn`` as the first argument. See docs/timing.md.
+        ``n="auto"`` picks the count by Stein's two-stage rule for ``band`` (``adaptive.py``).
+        """
+        if n == "auto":
+            settings = self.settings.merged(warmup=warmup)
+            self._claim(SECONDS, "time")
+            warm = [settings.warmup]
+
+            def collect(count: int) -> np.ndarray:
+                if count == 0:
+                    return np.empty(0, dtype=np.float64)
+                values = self._timed(
+                    fn, args, kwargs, settings, count, warm.pop() if warm else 0, setup
+                )
+                if values.size < count:
+                    raise TrialError(
+                        f"the time limit stopped n='auto' after {values.size} of the {count} "
+                        "trials its two-stage rule asks for; raise --meanband-time-limit or set "
+                        "a fixed n for this test"
+                    )
+                return values
+
+            return self._auto(collect, settings, max_n=max_n, band=band, pilot=pilot)
+        adaptive.refuse_options(max_n, band, pilot)
+        settings = self.settings.merged(n=n, warmup=warmup)
+        self._claim(SECONDS, "time")
+        values = self._timed(fn, args, kwargs, settings, settings.n, settings.warmup, setup)
+        self._append(values)
+        return values
+
+    def _timed(
+        self, fn: Callable[..., Any], args: tuple[Any, ...], kwargs: dict[str, Any],
+        settings: Settings, n: int, warmup: int | str, setup: Callable[[], Any] | None,
+    ) -> np.ndarray:
+        """One run of the timing engine; keeps its warm-up, details and notes on the series."""
+        shared = self._test_timing
+        clock = get_clock(settings.clock)
+        run = time_calls(
+            fn, args, kwargs, n=n, warmup=warmup, setup=setup, clock=clock,
+            clock_info=shared.clock_info(clock), min_trial_time=settings.min_trial_time,
+            time_limit=shared.time_left(settings.time_limit), gc_enabled=settings.gc,
+            environ=shared.environ,
+        )
+        shared.spent += run.elapsed
+        self._warmup = np.concatenate([self._warmup, run.warmup])
+        calls = 1 if self._timing is None else int(self._timing.get("calls", 1)) + 1
+        self._timing = {**run.to_dict(), "calls": calls}
+        for note in run.notes:
+            if note.to_dict() not in self._timing_notes:
+                self._timing_notes.append(note.to_dict())
+        return run.values
+
+    def sample(
+        self, fn: Callable[..., Any], *args: Any, n: int | str | None = None,
+        unit: str | None = None, max_n: int | None = None,
+        band: dict[str, Edge] | Band | None = None, pilot: int | None = None, **kwargs: Any,
+    ) -> np.ndarray:
+        """Record ``n`` values returned by ``fn(*args, **kwargs)``, in ``unit``.
+
+        ``n="auto"`` picks the count by Stein's two-stage rule for ``band`` (``adaptive.py``).
+        """
+
+        def collect(count: int) -> np.ndarray:
+            collected = [fn(*args, **kwargs) for _ in range(count)]
+            try:
+                return as_sample(collected, minimum=1)
+            except TrialError as exc:
+                raise TrialError(f"{_callable_name(fn)} returned bad values: {exc}") from None
+
+        if n == "auto":
+            self._claim(unit, "sample")
+            return self._auto(collect, self.settings, max_n=max_n, band=band, pilot=pilot)
+        adaptive.refuse_options(max_n, band, pilot)
+        settings = self.settings.merged(n=n)
+        self._claim(unit, "sample")
+        values = collect(settings.n)
+        self._append(values)
+        return values
+
+    def _auto(
+        self, take: Callable[[int], np.ndarray], settings: Settings, *, max_n: int | None,
+        band: dict[str, Edge] | Band | None, pilot: int | None,
+    ) -> np.ndarray:
+        self._adaptive = adaptive.collect(
+            take, held=self._values.size, label=self._label(), unit=self.unit, band=band,
+            settings=settings, max_n=max_n, pilot=pilot,
+        )
+        self._append(self._adaptive.values)
+        return self._adaptive.values
+
+    def add(self, value: float, *, unit: str | None = None) -> None:
+        """Record one value measured elsewhere."""
+        self.extend([value], unit=unit)
+
+    def extend(self, values: Iterable[float] | np.ndarray, *, unit: str | None = None) -> None:
+        """Record values measured elsewhere; nothing is recorded if any value is bad."""
+        clean = as_sample(values, minimum=0)
+        self._claim(unit, "values")
+        self._append(clean)
+
+    def extend_from(
+        self, path: str | os.PathLike[str], column: str | int | None = None, *,
+        unit: str | None = None, delimiter: str | None = None, header: bool | None = None,
+    ) -> np.ndarray:
+        """Record one column of a bench log (CSV or whitespace-separated; ``#`` comments).
+
+        ``column`` is a header name or a 0-based index. A bad row raises TrialError with its
+        line number, and the series keeps exactly what it held before.
+        """
+        from meanband.collect.benchlog import read_column
+
+        values = read_column(path, column, delimiter=delimiter, header=header)
+        self.extend(values, unit=unit)
+        return values
+
+    @property
+    def values(self) -> np.ndarray:
+        """The trials recorded so far (warm-up excluded), read-only."""
+        view = self._values.view()
+        view.flags.writeable = False
+        return view  # type: ignore[no-any-return]
+
+    @property
+    def warmup_values(self) -> np.ndarray:
+        """Warm-up trials: timed, kept for charts, left out of the statistics."""
+        view = self._warmup.view()
+        view.flags.writeable = False
+        return view  # type: ignore[no-any-return]
+
+    # -- analysing and checking -------------------------------------------------------------
+
+    def interval(
+        self, confidence: float | None = None, side: str = "two-sided", method: str | None = None
+    ) -> Interval:
+        """The confidence interval of the mean of the trials so far."""
+        settings = self.settings.merged(confidence=confidence, method=method)
+        return mean_interval(self._values, settings.confidence, side, settings.method)
+
+    def check(
+        self,
+        low: Edge = None,
+        high: Edge = None,
+        *,
+        center: Edge = None,
+        tolerance: Tolerance = None,
+        confidence: float | None = None,
+        method: str | None = None,
+        instrument_uncertainty: InstrumentSpec = None,
+        rule: str = GUARDED,
+    ) -> Decision:
+        """Pass only if the interval of the mean lies inside the band; raise BandViolation if not.
+
+        Two edges: the two-sided interval must lie inside. One edge (a budget): the one-sided
+        bound must lie on the right side of it. ``tolerance=(below, above)`` is asymmetric.
+        ``instrument_uncertainty`` (standard uncertainty in the trials' unit, or ``(u, df)``)
+        widens the interval to mean +/- U (JCGM 100); ``rule="simple"`` compares the mean alone.
+        """
+        settings = self.settings.merged(confidence=confidence, method=method)
+        extra: dict[str, Any] = {}
+        if self._adaptive is not None:
+            if instrument_uncertainty is not None or rule != GUARDED:
+                raise TrialError(
+                    "instrument_uncertainty= and rule= cannot be used with n='auto': the "
+                    "two-stage verdict uses Stein's interval; collect a fixed n for this check"
+                )
+            decision, notes, extra = self._adaptive.check(
+                low, high, center, tolerance, held=self._values.size, unit=self.unit,
+                settings=settings,
+            )
+            notes = self._timing_notes + notes
+            recorded = {**settings.to_dict(), "n": "auto"}
+        else:
+            band = make_band(low, high, center=center, tolerance=tolerance, unit=self.unit)
+            decision, notes = decide_with_notes(
+                self._values, band, settings.to_dict(),
+                instrument_uncertainty=instrument_uncertainty, rule=rule,
+                skip={note["code"] for note in self._timing_notes},
+            )
+            notes = self._timing_notes + notes
+            recorded = settings.to_dict()
+        row = self._row(recorded, decision, notes, **extra)
+        self._rows.append(row)
+        if not decision.passed:
+            raise BandViolation(describe(decision, label=self._label(), notes=notes), decision)
+        return decision
+
+    # -- reporting --------------------------------------------------------------------------
+
+    def rows(self) -> list[ResultRow]:
+        """The rows for the summary: one per check, or one "unchecked" row for lone trials."""
+        if self._rows:
+            return list(self._rows)
+        if self._values.size:
+            return [self._row(self.settings.to_dict(), None, list(self._timing_notes))]
+        return []
+
+    def _row(
+        self, settings: dict[str, Any], decision: Decision | None, notes: list[dict[str, str]],
+        **extra: Any,
+    ) -> ResultRow:
+        return build_row(
+            nodeid=self.nodeid, series=self.name, unit=self.unit, source=self.source,
+            values=self._values, warmup=self._warmup, decision=decision, notes=notes,
+            settings=settings, timing=self._timing, **extra,
+        )
+
+    def _label(self) -> str:
+        return self.name
+
+    def _claim(self, unit: str | None, source: str) -> None:
+        """Keep one unit per series: mixing seconds with volts would make a meaningless mean."""
+        if not self._values.size:
+            self.unit, self.source = unit, source
+        elif unit is not None and unit != self.unit:
+            raise TrialError(
+                f"series {self.name or '(default)'} holds trials in {self.unit or 'no unit'}; "
+                f"cannot add trials in {unit}. Use trials.series('other') for another quantity"
+            )
+
+    def _append(self, values: np.ndarray) -> None:
+        self._values = np.concatenate([self._values, values])
+
+
+class Recorder(Series):
+    """The ``trials`` fixture: the default series, plus named ones from :meth:`series`."""
+
+    def __init__(
+        self, settings: Settings, nodeid: str = "", *,
+        series_settings: dict[str, Settings] | None = None, other_series: Settings | None = None,
+        timing: Any = None,
+    ) -> None:
+        super().__init__("", settings, nodeid)
+        self._test_timing = SharedTiming(timing)
+        self._series: dict[str, Series] = {}
+        self._comparisons: list[ResultRow] = []
+        # A plan may give named series counts of their own; unplanned series use other_series.
+        self._series_settings = dict(series_settings or {})
+        self._other_series = settings if other_series is None else other_series
+
+    def series(self, name: str) -> Series:
+        """The series called ``name`` (created on first use), e.g. ``trials.series("cold")``."""
+        if not isinstance(name, str) or not name:
+            raise TrialError(f"a series needs a non-empty name, got {name!r}")
+        if name not in self._series:
+            settings = self._series_settings.get(name, self._other_series)
+            self._series[name] = Series(name, settings, self.nodeid)
+            self._series[name]._test_timing = self._test_timing
+        return self._series[name]
+
+    def compare(
+        self,
+        new: Callable[[], Any],
+        old: Callable[[], Any],
+        *,
+        at_most: float | None = None,
+        at_least: float | None = None,
+        n: int | None = None,
+        confidence: float | None = None,
+        repeats: int = 5,
+        warmup: int = 2,
+        seed: int | None = None,
+        name: str | None = None,
+    ) -> Any:
+        """Time ``new`` and ``old`` in interleaved pairs (random order within each pair) and
+        pass only if the interval of the time ratio new/old lies inside the limits, e.g.
+        ``trials.compare(parse_v2, parse_v1, at_most=1.05)``: "v2 is at most 5% slower".
+
+        Drift of the machine hits both sides of a pair alike and cancels in the ratio, which
+        makes this the robust gate on a noisy CI machine (see ``meanband.collect.paired``).
+        """
+        from meanband.record.comparison import compare_callables
+
+        settings = self.settings.merged(n=n, confidence=confidence)
+        result, row, message = compare_callables(
+            new, old, n=settings.n, at_most=at_most, at_least=at_least,
+            confidence=settings.confidence, power=settings.power, repeats=repeats, warmup=warmup,
+            seed=seed, clock=settings.clock,
+            name=name, nodeid=self.nodeid, settings=settings.to_dict(),
+        )
+        self._comparisons.append(row)
+        if not result.passed:
+            raise BandViolation(message, result)
+        return result
+
+    def all_rows(self) -> list[ResultRow]:
+        """Rows of the default series and every named series, in creation order."""
+        rows = self.rows()
+        for named in self._series.values():
+            rows.extend(named.rows())
+        rows.extend(self._comparisons)
+        return rows
+
+
+class SharedTiming:
+    """What the series of one test share when timing: the session's clock measurements and
+    worker identity (a ``timing_plugin.TimingSession``, or None outside pytest) and the time
+    spent so far against the per-test time limit."""
+
+    def __init__(self, session: Any = None) -> None:
+        self.session = session
+        self.spent = 0.0
+
+    def clock_info(self, clock: Any) -> Any:
+        return None if self.session is None else self.session.clock_info(clock)
+
+    @property
+    def environ(self) -> dict[str, str] | None:
+        return None if self.session is None else self.session.environ
+
+    def time_left(self, limit: float | None) -> float | None:
+        """Seconds left of ``limit``; once spent, a sliver, so the engine takes its minimum."""
+        return None if limit is None else max(limit - self.spent, 1e-9)
+
+
+def _callable_name(fn: Callable[..., Any]) -> str:
+    return getattr(fn, "__qualname__", None) or repr(fn)

@@ -1,0 +1,104 @@
+"""The suggested trial count of a result row: the row's figures handed to ``stats.suggest``."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from typing import Any
+
+from meanband import defaults
+from meanband.stats.suggest import Suggestion, suggest_trials
+
+__all__ = ["suggestion_for_row", "trial_seconds"]
+
+
+def trial_seconds(row: Mapping[str, Any]) -> float | None:
+    """Wall-clock seconds one more trial of a timing row costs, or None when unknown.
+
+    The mean seconds per call times the calls per trial (the timing engine's ``k``): the
+    marginal cost of a trial, leaving out fixed costs such as calibration and warm-up that a
+    smaller count does not save. Only timing rows have one: a sample's callable may wait on
+    an instrument whose time the trials do not measure.
+    """
+    if row.get("source") != "time":
+        return None
+    values = row.get("values") or []
+    if not values:
+        return None
+    timing = row.get("timing") or {}
+    calls = timing.get("k") or 1
+    return float(sum(values) / len(values)) * float(calls)
+
+
+def suggestion_for_row(
+    row: Mapping[str, Any], *, power: float | None = None
+) -> Suggestion | None:
+    """The suggestion for one result row (see the row contract), or None.
+
+    None for a series with no check and for a FAIL. A check whose count the two-stage rule
+    chose at run time (``n="auto"``) gets direction ``"auto"`` and no count, with a reason that
+    says what to change when it stayed UNDECIDED. ``power`` overrides the row's own setting.
+    """
+    decision = row.get("decision")
+    if row.get("kind") != "check" or not decision:
+        return None
+    interval = decision["interval"]
+    if interval.get("method") == "two-stage":
+        return _two_stage_suggestion(row, decision)
+    settings = row.get("settings") or {}
+    if power is None:
+        power = settings.get("power", defaults.POWER)
+    if (row.get("rule") or {}).get("rule") == "simple" and decision["verdict"] != "FAIL":
+        # Simple acceptance compares the mean alone: the power of the interval says nothing
+        # about it, so the count is kept (its risk is the rule's false-acceptance probability).
+        n = int(interval["n"])
+        reason = (f"{decision['verdict']} at n={n} under simple acceptance, which compares the "
+                  "mean alone: the count is kept")
+        return Suggestion(n, reason, "keep", n, float(power), None)
+    band = decision["band"]
+    return suggest_trials(
+        verdict=decision["verdict"],
+        mean=float(interval["mean"]),
+        # The spread the decision planned with (bands.decide): sem * sqrt(n) is the sd for the
+        # t interval and the long-run spread for batch means, so both counts agree.
+        sd=float(interval["sem"]) * math.sqrt(int(interval["n"])),
+        n=int(interval["n"]),
+        low=float(band["low"]),
+        high=float(band["high"]),
+        confidence=float(interval["confidence"]),
+        power=float(power) if power is not None else defaults.POWER,
+        min_n=int(settings.get("min_n") or 2),
+        trial_seconds=trial_seconds(row),
+        unit=decision.get("unit") or row.get("unit"),
+        **_instrument_count(row, decision),
+    )
+
+
+def _instrument_count(row: Mapping[str, Any], decision: Mapping[str, Any]) -> dict[str, Any]:
+    """The decision's own count when an instrument uncertainty shares the budget, else nothing."""
+    budget = row.get("uncertainty") or {}
+    if budget.get("type_b"):
+        return {"instrument_count": decision.get("suggested_n")}
+    return {}
+
+
+def _two_stage_suggestion(row: Mapping[str, Any], decision: Mapping[str, Any]) -> Suggestion | None:
+    verdict = decision["verdict"]
+    if verdict == "FAIL":
+        return None
+    stages = row.get("two_stage") or {}
+    n = int(decision["interval"]["n"])
+    pilot, power = stages.get("pilot_n", "?"), float(stages.get("power", defaults.POWER))
+    if verdict == "PASS":
+        reason = f"count chosen at run time by the two-stage rule (pilot {pilot} + {n})"
+    elif stages.get("capped"):
+        reason = (
+            f"UNDECIDED at n={n} after a pilot of {pilot}: the two-stage rule was capped at "
+            f"max_n={stages.get('max_n')}; raise max_n to let it decide"
+        )
+    else:
+        reason = (
+            f"UNDECIDED at n={n} after a pilot of {pilot}: the mean is likely nearer the edge "
+            "than the pilot's margin; a larger pilot= gives a better margin"
+        )
+    return Suggestion(None, reason, "auto", n, power, None)

@@ -1,0 +1,52 @@
+"""The summary section on measurement uncertainty and decision rules, for checks that gate hardware."""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from typing import Any
+
+from meanband.record.message import budget_words, rule_words
+from meanband.record.row import ResultRow
+from meanband.report.rows import row_name, sorted_rows
+from meanband.units import SECONDS, significant_digits, time_scale
+
+__all__ = ["metrology_lines"]
+
+
+def metrology_lines(rows: Sequence[ResultRow], verbosity: int = 0) -> list[str]:
+    """One line per check that carries an instrument uncertainty or uses simple acceptance
+    (every check at ``verbosity > 0``): U, k, nu_eff, u_A, u_B, the rule and the conformance
+    probability, in the unit of the trials, in the words of the failure message."""
+    if verbosity < 0:
+        return []
+    out = []
+    for row in sorted_rows(rows):
+        budget, rule = row.get("uncertainty"), row.get("rule")
+        if not row.get("decision") or (budget is None and rule is None):
+            continue
+        instrument = bool(budget and budget.get("type_b"))
+        simple = bool(rule and rule.get("rule") == "simple")
+        if instrument or simple or verbosity > 0:
+            out.append(f"  {row_name(row)}: {_describe(row, budget, rule)}")
+    return ["", "measurement uncertainty and decision rule:", *out] if out else []
+
+
+def _describe(
+    row: ResultRow, budget: Mapping[str, Any] | None, rule: Mapping[str, Any] | None
+) -> str:
+    unit = row.get("unit")
+    parts = []
+    scale = None
+    if budget is not None:
+        scale = time_scale(budget["mean"]) if unit == SECONDS else None
+        digits = min(significant_digits(budget["expanded"], budget["combined"] / 10), 4)
+        parts.append(budget_words(budget, unit, scale, digits))
+    if rule is not None:
+        parts.append(rule_words(rule, unit, scale))
+    decision = row["decision"]
+    if (decision is not None and decision.get("verdict") == "UNDECIDED"
+            and decision.get("suggested_n") is None and budget is not None
+            and budget.get("type_b")):
+        parts.append("more trials will not decide it: the instrument's own uncertainty leaves "
+                     "too little room")
+    return "; ".join(parts)

@@ -1,0 +1,1 @@
+"""The statistics core: arrays in, frozen dataclasses out; never imports pytest."""

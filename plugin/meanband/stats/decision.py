@@ -1,0 +1,155 @@
+"""The decision of a check: does the interval of the mean lie inside its band?"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from meanband import defaults
+from meanband.errors import TrialError
+from meanband.stats.bands import Band
+from meanband.stats.diagnostics import Diagnostics, diagnose
+from meanband.stats.interval import Interval
+from meanband.stats.methods import mean_interval
+from meanband.stats.planning import trials_needed
+from meanband.stats.rules import GUARDED, RuleOutcome, apply_rule, check_rule
+from meanband.stats.sample import as_sample, check_confidence, check_probability
+from meanband.stats.uncertainty import (
+    InstrumentSpec,
+    UncertaintyBudget,
+    as_instrument_uncertainty,
+    trials_to_decide,
+    uncertainty_budget,
+)
+from meanband.stats.verdict import Verdict
+
+__all__ = ["Decision", "decide", "edge_margin"]
+
+
+@dataclass(frozen=True, slots=True)
+class Decision:
+    """The verdict of one check and everything behind it."""
+
+    verdict: Verdict
+    band: Band
+    interval: Interval
+    counter: Interval | None
+    diagnostics: Diagnostics
+    suggested_n: int | None
+    unit: str | None = None
+    #: The uncertainty of the mean (Type A, instrument Type B, k, U); None for methods other
+    #: than the t interval.
+    uncertainty: UncertaintyBudget | None = None
+    #: The decision rule applied and the conformance probability.
+    rule: RuleOutcome | None = None
+    #: The power at which ``suggested_n`` was planned.
+    power: float = defaults.POWER
+
+    @property
+    def passed(self) -> bool:
+        """True for PASS only."""
+        return self.verdict is Verdict.PASS
+
+    def to_dict(self) -> dict[str, Any]:
+        """Builtin types only, safe for JSON and for pytest-xdist's report transport."""
+        return {
+            "verdict": self.verdict.value,
+            "band": self.band.to_dict(),
+            "interval": self.interval.to_dict(),
+            "counter": None if self.counter is None else self.counter.to_dict(),
+            "diagnostics": self.diagnostics.to_dict(),
+            "suggested_n": self.suggested_n,
+            "unit": self.unit,
+            "power": float(self.power),
+            "uncertainty": None if self.uncertainty is None else self.uncertainty.to_dict(),
+            "rule": None if self.rule is None else self.rule.to_dict(),
+        }
+
+
+def decide(
+    values: Iterable[float] | np.ndarray,
+    band: Band,
+    *,
+    confidence: float = defaults.CONFIDENCE,
+    method: str = defaults.METHOD,
+    power: float = defaults.POWER,
+    alpha: float = defaults.NORMALITY_ALPHA,
+    instrument_uncertainty: InstrumentSpec = None,
+    rule: str = GUARDED,
+) -> Decision:
+    """Decide a check at ``confidence``.
+
+    Two-sided band: the two-sided interval must lie inside (PASS), wholly outside on an edge
+    (FAIL) or straddles an edge (UNDECIDED). A budget (one open edge): the one-sided bound at
+    ``confidence`` must be inside for PASS; the opposite one-sided bound beyond the edge is FAIL.
+    This is guarded acceptance with the guard band equal to the expanded uncertainty
+    (ILAC-G8:2019; JCGM 106:2012, clause 8).
+
+    ``instrument_uncertainty`` (a standard uncertainty in the trials' unit, ``(u, df)`` or an
+    :class:`~meanband.stats.uncertainty.InstrumentUncertainty`) is combined with the Type A
+    uncertainty of the mean (JCGM 100:2008): the interval becomes mean +/- U. ``rule="simple"``
+    compares the mean alone with the band (simple acceptance, no UNDECIDED).
+    """
+    level = check_confidence(confidence)
+    power = check_probability(power, "power")
+    check_rule(rule)
+    instrument = as_instrument_uncertainty(instrument_uncertainty)
+    x = as_sample(values, minimum=2)
+    side = band.side
+    budget: UncertaintyBudget | None = None
+    if method == "t":
+        budget = uncertainty_budget(x, level, side, instrument)
+    elif instrument is not None and instrument.standard > 0:
+        raise TrialError(
+            f"instrument_uncertainty combines with the t interval only (JCGM 100); this check "
+            f"uses method={method!r}: use method='t' or leave instrument_uncertainty out"
+        )
+    combined = budget if budget is not None and budget.has_instrument else None
+    interval = combined.interval() if combined is not None else mean_interval(x, level, side, method)
+    counter: Interval | None = None
+    low, high = interval.low, interval.high
+    if side != "two-sided":
+        opposite = "lower" if side == "upper" else "upper"
+        if combined is not None:
+            counter = combined.interval(opposite)
+        else:
+            counter = mean_interval(x, level, opposite, method)
+        # The bounds that decide a budget: the one-sided bound and its opposite counterpart.
+        if side == "upper":
+            low, high = counter.low, interval.high
+        else:
+            low, high = interval.low, counter.high
+    outcome = apply_rule(
+        rule, mean=interval.mean, low=low, high=high, band_low=band.low, band_high=band.high,
+        standard_uncertainty=None if budget is None else budget.combined,
+        df=None if budget is None else budget.effective_df,
+    )
+    verdict = Verdict(outcome.verdict)
+    diagnostics = diagnose(x, alpha=alpha)
+    suggested = None
+    if verdict is not Verdict.FAIL:
+        margin = edge_margin(interval.mean, band)
+        if combined is not None:
+            suggested = trials_to_decide(
+                interval.sd, margin, instrument, confidence=level, side=side, power=power
+            )
+        else:
+            # sem * sqrt(n) is the sd per trial that the method's interval implies: the plain
+            # sd for independent trials, the long-run sd for batch means of correlated ones.
+            spread = interval.sem * math.sqrt(interval.n)
+            suggested = trials_needed(
+                spread, margin=margin, confidence=level, side=side, power=power
+            )
+    return Decision(
+        verdict, band, interval, counter, diagnostics, suggested, band.unit, budget, outcome, power
+    )
+
+
+def edge_margin(mean: float, band: Band) -> float:
+    """Distance from the mean to the band edge that decides the check (the nearest one)."""
+    distances = [abs(mean - edge) for edge in (band.low, band.high) if math.isfinite(edge)]
+    return min(distances)

@@ -1,0 +1,103 @@
+"""How many trials a goal needs: a target half-width, or a decisive verdict at a stated power."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from meanband import defaults
+from meanband.errors import TrialError
+from meanband.stats.sample import check_confidence, check_probability
+
+__all__ = ["power_against_edge", "trials_needed"]
+
+_N_MIN = 2
+
+
+def trials_needed(
+    sd: float,
+    *,
+    half_width: float | None = None,
+    margin: float | None = None,
+    confidence: float = defaults.CONFIDENCE,
+    side: str = "two-sided",
+    power: float = defaults.POWER,
+    n_max: int = 1_000_000,
+) -> int | None:
+    """Smallest trial count that meets a goal, given a planning standard deviation ``sd``.
+
+    Give exactly one goal:
+
+    - ``half_width``: the interval's half-width t(n-1) * sd / sqrt(n) is at most this; t's
+      dependence on n is solved exactly by search, not by plugging in z;
+    - ``margin``: the distance between the mean (from a pilot) and a band edge; returns the n
+      at which a one-sided t test at the edge rejects with probability ``power`` when the true
+      mean sits ``margin`` away, from the noncentral t distribution. The test's level is
+      1 - confidence for a one-sided budget (``side="upper"``/``"lower"``) and
+      (1 - confidence) / 2 per edge for a two-sided band.
+
+    Returns None when no n up to ``n_max`` meets the goal (for instance a zero margin).
+    """
+    level = check_confidence(confidence)
+    power = check_probability(power, "power")
+    if side not in ("two-sided", "upper", "lower"):
+        raise TrialError(f"unknown side {side!r}; choose one of two-sided, upper, lower")
+    if not math.isfinite(sd) or sd < 0:
+        raise TrialError(f"the planning standard deviation must be finite and >= 0, got {sd!r}")
+    if (half_width is None) == (margin is None):
+        raise TrialError("give exactly one goal: half_width=... or margin=...")
+    if half_width is not None:
+        if not (half_width > 0 and math.isfinite(half_width)):
+            raise TrialError(f"half_width must be a positive number, got {half_width!r}")
+        if sd == 0:
+            return _N_MIN
+        return _smallest_n(lambda n: _half_width(sd, n, level, side) <= half_width, n_max)
+    assert margin is not None
+    if not math.isfinite(margin):
+        raise TrialError(f"margin must be a finite number, got {margin!r}")
+    margin = abs(margin)
+    if margin == 0:
+        return None
+    if sd == 0:
+        return _N_MIN
+    alpha = (1.0 - level) / 2.0 if side == "two-sided" else 1.0 - level
+    return _smallest_n(lambda n: power_against_edge(margin / sd, n, alpha) >= power, n_max)
+
+
+def power_against_edge(effect: float | np.ndarray, n: int | np.ndarray, alpha: float) -> np.ndarray:
+    """Power of the one-sided one-sample t test at level ``alpha`` for effect size margin/sd."""
+    from scipy.stats import nct
+    from scipy.stats import t as student_t
+
+    n_arr = np.asarray(n, dtype=np.float64)
+    df = n_arr - 1.0
+    critical = student_t.ppf(1.0 - alpha, df)
+    return np.asarray(nct.sf(critical, df, np.asarray(effect) * np.sqrt(n_arr)))
+
+
+def _half_width(sd: float, n: int | np.ndarray, level: float, side: str) -> np.ndarray:
+    from scipy.stats import t as student_t
+
+    q = (1.0 + level) / 2.0 if side == "two-sided" else level
+    n_arr = np.asarray(n, dtype=np.float64)
+    return np.asarray(student_t.ppf(q, n_arr - 1.0) * sd / np.sqrt(n_arr))
+
+
+def _smallest_n(meets, n_max: int) -> int | None:  # type: ignore[no-untyped-def]
+    """Smallest n in [2, n_max] for which the monotone predicate ``meets`` holds."""
+    if bool(meets(_N_MIN)):
+        return _N_MIN
+    high = _N_MIN
+    while not bool(meets(high)):
+        if high >= n_max:
+            return None
+        high = min(high * 2, n_max)
+    low = high // 2  # meets(low) is False
+    while high - low > 1:
+        mid = (low + high) // 2
+        if bool(meets(mid)):
+            high = mid
+        else:
+            low = mid
+    return high

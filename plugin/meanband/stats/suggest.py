@@ -1,0 +1,180 @@
+"""Suggested trial counts: how many trials each check needs to decide at a stated power."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any
+
+from meanband import defaults
+from meanband.errors import TrialError
+from meanband.stats.planning import power_against_edge, trials_needed
+from meanband.stats.sample import check_confidence, check_probability
+from meanband.stats.verdict import Verdict
+from meanband.units import SECONDS, format_value
+
+__all__ = [
+    "DEFAULT_POWER",
+    "MIN_SAVING",
+    "Suggestion",
+    "check_power",
+    "suggest_trials",
+]
+
+#: Power asked of a suggested count unless the settings say otherwise.
+DEFAULT_POWER = defaults.POWER
+
+#: A cut of fewer than this share of the trials is within the noise of the estimated mean and
+#: sd: suggesting it would churn the plan from run to run, so the count is kept instead.
+MIN_SAVING = 0.1
+
+_N_CEILING = 100_000
+
+
+@dataclass(frozen=True, slots=True)
+class Suggestion:
+    """A trial count for one check and why.
+
+    ``direction`` is ``"more"``, ``"fewer"`` or ``"keep"`` (a count), ``"none"`` when no count
+    decides the check, or ``"auto"`` when the two-stage rule chose it (``n`` is None then).
+    ``power_now`` is the power of the current count.
+    """
+
+    n: int | None
+    reason: str
+    direction: str
+    current_n: int
+    power: float
+    power_now: float | None
+    saves_seconds: float | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        """Builtin types only (the row crosses from xdist workers); no key for a missing saving."""
+        out: dict[str, Any] = {
+            "n": self.n,
+            "reason": self.reason,
+            "direction": self.direction,
+            "current_n": self.current_n,
+            "power": float(self.power),
+            "power_now": None if self.power_now is None else float(self.power_now),
+        }
+        if self.saves_seconds is not None:
+            out["saves_seconds"] = float(self.saves_seconds)
+        return out
+
+
+def check_power(power: Any, where: str = "power") -> float:
+    """Return ``power`` as a float strictly between 0 and 1, or raise naming ``where``."""
+    return check_probability(power, where)
+
+
+def suggest_trials(
+    *,
+    verdict: str,
+    mean: float,
+    sd: float,
+    n: int,
+    low: float,
+    high: float,
+    confidence: float,
+    power: float = DEFAULT_POWER,
+    min_n: int = 2,
+    trial_seconds: float | None = None,
+    unit: str | None = None,
+    instrument_count: int | str | None = "none given",
+) -> Suggestion | None:
+    """The count that decides a check at ``power``, from its mean, sd and band.
+
+    The count is the one-sample t test's at the edge nearest the mean, with the effect
+    (mean - edge) / sd taken from this run (noncentral t; see ``planning.trials_needed``). A
+    FAIL gets no suggestion: the interval already lies wholly outside the band, and more
+    trials only confirm it. A PASS whose count could shrink by at least ``MIN_SAVING`` of its
+    trials gets the smaller count, with the CI seconds saved when ``trial_seconds`` is known.
+    When the check carries an instrument (Type B) uncertainty, pass the count its decision
+    computed with it as ``instrument_count`` (None: no count decides it); the t test alone
+    would promise a decision that the instrument's own uncertainty can forbid.
+    """
+    level = check_confidence(confidence)
+    power = check_power(power)
+    try:
+        verdict = Verdict(str(verdict))
+    except ValueError:
+        raise TrialError(f"unknown verdict {verdict!r}; expected PASS, FAIL or UNDECIDED") from None
+    if verdict is Verdict.FAIL:
+        return None
+    if n < 2:
+        raise TrialError(f"a suggestion needs the count of a check with at least 2 trials, got {n}")
+    if not (math.isfinite(mean) and math.isfinite(sd) and sd >= 0):
+        raise TrialError(f"mean and sd must be finite (sd >= 0), got mean={mean!r}, sd={sd!r}")
+    edges = [edge for edge in (low, high) if math.isfinite(edge)]
+    if not edges:
+        raise TrialError("a suggestion needs a band with at least one finite edge")
+    side = "two-sided" if len(edges) == 2 else ("upper" if math.isfinite(high) else "lower")
+    margin = min(abs(mean - edge) for edge in edges)
+    alpha = (1.0 - level) / 2.0 if side == "two-sided" else 1.0 - level
+    power_now = _power(margin, sd, n, alpha)
+    floor = max(int(min_n), 2)
+
+    if isinstance(instrument_count, str):
+        needed = trials_needed(
+            sd, margin=margin, confidence=level, side=side, power=power, n_max=_N_CEILING
+        )
+    else:
+        needed = instrument_count
+    if needed is None:
+        if not isinstance(instrument_count, str) and margin > 0:
+            reason = (
+                f"{verdict} at n={n}; more trials will not decide it: the instrument's own "
+                "uncertainty leaves too little room between the mean and the edge"
+            )
+        elif margin == 0:
+            reason = f"{verdict} at n={n}; the mean sits on the band edge: no count decides it"
+        else:
+            reason = (
+                f"{verdict} at n={n}; more than {_N_CEILING:,} trials would be needed: the mean "
+                f"lies {format_value(margin, unit)} from the edge, small beside its sd "
+                f"{format_value(sd, unit)}"
+            )
+        return Suggestion(None, reason, "none", n, power, power_now)
+    by_power, needed = needed, max(needed, floor)
+
+    if verdict is Verdict.UNDECIDED:
+        count = max(needed, n + 1)
+        reason = (
+            f"UNDECIDED at n={n}; about {count} trials would decide it with {power:.0%} power "
+            f"(mean {format_value(mean, unit)}, sd {format_value(sd, unit)}, "
+            f"{format_value(margin, unit)} from the edge)"
+        )
+        return Suggestion(count, reason, "more", n, power, power_now)
+    if needed > n and by_power <= n:
+        reason = (
+            f"PASS at n={n}; {by_power} trials would pass with {power:.0%} power, but min_n asks "
+            f"for {needed} so that the assumption checks have trials to work on"
+        )
+        return Suggestion(needed, reason, "more", n, power, power_now)
+    if needed > n:
+        reason = (
+            f"PASS at n={n}, but a rerun passes with only {power_now:.0%} power; "
+            f"about {needed} trials reach {power:.0%}"
+        )
+        return Suggestion(needed, reason, "more", n, power, power_now)
+    if n - needed >= max(1.0, MIN_SAVING * n):
+        saves = None if trial_seconds is None else (n - needed) * float(trial_seconds)
+        reason = (
+            f"PASS at n={n} with a wide margin; about {needed} trials would still pass with "
+            f"{power:.0%} power"
+        )
+        if saves is not None:
+            reason += f", saving about {format_value(saves, SECONDS, 2)} per run"
+        return Suggestion(needed, reason, "fewer", n, power, power_now, saves)
+    reason = (
+        f"PASS at n={n}; the count is about right ({power_now:.0%} power, {needed} would give "
+        f"{power:.0%})"
+    )
+    return Suggestion(n, reason, "keep", n, power, power_now)
+
+
+def _power(margin: float, sd: float, n: int, alpha: float) -> float:
+    if sd == 0:
+        return 1.0 if margin > 0 else 0.0
+    return float(power_against_edge(margin / sd, n, alpha))

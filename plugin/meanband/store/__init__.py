@@ -1,0 +1,1 @@
+"""Files that outlive a run: the history store, the environment, the plan file, the JSON report."""

@@ -1,0 +1,469 @@
+"""The history store: past runs and their trials in one SQLite file, for baselines."""
+
+from __future__ import annotations
+
+import dataclasses
+import json
+import math
+import os
+import sqlite3
+from collections.abc import Callable, Iterable, Mapping
+from dataclasses import dataclass, field
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from meanband import defaults
+from meanband.errors import StoreError
+from meanband.stats.sample import ArrayEquality
+from meanband.store.environment import capture_environment, python_words
+
+__all__ = [
+    "DEFAULT_STORE",
+    "MIGRATIONS",
+    "SCHEMA_VERSION",
+    "HistoryStore",
+    "RunInfo",
+    "StoreError",
+    "StoredCheck",
+]
+
+#: Where the store lives, relative to pytest's rootdir, when no path is given.
+DEFAULT_STORE = Path(".meanband") / "history.sqlite"
+#: Seconds to wait for another process that holds the store's write lock.
+DEFAULT_TIMEOUT = defaults.STORE_TIMEOUT
+
+_ELSEWHERE = "choose another store path (--meanband-store, or --store for the meanband command)"
+_SQLITE_MAGIC = b"SQLite format 3\x00"
+# Trials are stored as little-endian float64 bytes (numpy tobytes/frombuffer): exact and portable.
+_TRIAL_DTYPE = np.dtype("<f8")
+
+
+@dataclass(frozen=True, slots=True)
+class RunInfo:
+    """One recorded run: when, where, on which commit."""
+
+    id: int
+    label: str
+    started: str
+    commit: str | None
+    branch: str | None
+    dirty: bool | None
+    host: str
+    machine: str
+    cpus: int | None
+    system: str
+    python: str
+    meanband: str
+    checks: int
+
+    def to_dict(self) -> dict[str, Any]:
+        """Builtin types only."""
+        return {field.name: getattr(self, field.name) for field in dataclasses.fields(self)}
+
+
+@dataclass(frozen=True, slots=True, eq=False)
+class StoredCheck(ArrayEquality):
+    """One check (or unchecked series) of a recorded run, with its raw trials."""
+
+    run_id: int
+    nodeid: str
+    series: str
+    kind: str
+    unit: str | None
+    source: str | None
+    n: int
+    mean: float
+    low: float | None
+    high: float | None
+    verdict: str | None
+    row: dict[str, Any]
+    values: np.ndarray = field(repr=False)
+    warmup: np.ndarray = field(repr=False)
+
+    @property
+    def key(self) -> tuple[str, str]:
+        """What a check is matched on across runs: test node id and series name."""
+        return (self.nodeid, self.series)
+
+
+# Each step upgrades the schema by one version: MIGRATIONS[i] takes version i to i + 1. A store
+# opened by a newer meanband is upgraded in place, inside one transaction.
+def _schema_1(conn: sqlite3.Connection) -> None:
+    conn.execute(
+        """CREATE TABLE runs (
+            id INTEGER PRIMARY KEY,
+            label TEXT NOT NULL,
+            started TEXT NOT NULL,
+            git_commit TEXT,
+            git_branch TEXT,
+            git_dirty INTEGER,
+            host TEXT NOT NULL,
+            machine TEXT NOT NULL,
+            cpus INTEGER,
+            system TEXT NOT NULL,
+            python TEXT NOT NULL,
+            meanband TEXT NOT NULL
+        )"""
+    )
+    conn.execute(
+        """CREATE TABLE checks (
+            id INTEGER PRIMARY KEY,
+            run_id INTEGER NOT NULL REFERENCES runs(id) ON DELETE CASCADE,
+            nodeid TEXT NOT NULL,
+            series TEXT NOT NULL,
+            kind TEXT NOT NULL,
+            unit TEXT,
+            source TEXT,
+            n INTEGER NOT NULL,
+            mean REAL,
+            low REAL,
+            high REAL,
+            verdict TEXT,
+            row_json TEXT NOT NULL,
+            trials BLOB NOT NULL,
+            warmup BLOB NOT NULL
+        )"""
+    )
+    conn.execute("CREATE INDEX checks_by_run ON checks(run_id)")
+    conn.execute("CREATE INDEX checks_by_test ON checks(nodeid, series)")
+    conn.execute("CREATE INDEX runs_by_label ON runs(label, id)")
+
+
+MIGRATIONS: list[Callable[[sqlite3.Connection], None]] = [_schema_1]
+SCHEMA_VERSION = len(MIGRATIONS)
+
+
+class HistoryStore:
+    """A meanband history file. Use as a context manager; every write is one transaction.
+
+    ``create=False`` opens an existing store only (for reading and the command line);
+    ``timeout`` is how long to wait for another process's write lock before giving up.
+    """
+
+    def __init__(
+        self, path: str | os.PathLike[str], *, create: bool = True, timeout: float = DEFAULT_TIMEOUT
+    ) -> None:
+        self.path = Path(path)
+        self.timeout = float(timeout)
+        _check_file(self.path, create)
+        try:
+            if create:
+                self.path.parent.mkdir(parents=True, exist_ok=True)
+            self._conn = sqlite3.connect(self.path, timeout=self.timeout, isolation_level=None)
+        except (OSError, sqlite3.Error) as exc:
+            raise StoreError(
+                f"cannot open the history store {self.path}: {exc}; check that the location "
+                f"exists and is writable, or {_ELSEWHERE}"
+            ) from exc
+        try:
+            with self._translate_errors():
+                self._prepare()
+        except BaseException:
+            self._conn.close()
+            raise
+
+    # -- opening ---------------------------------------------------------------------------
+
+    def _prepare(self) -> None:
+        conn = self._conn
+        conn.execute("PRAGMA foreign_keys = ON")
+        version = self._user_version()
+        if version > SCHEMA_VERSION:
+            raise StoreError(
+                f"the history store {self.path} has schema version {version}, newer than this "
+                f"meanband understands ({SCHEMA_VERSION}); upgrade meanband to use it"
+            )
+        if version == 0:
+            foreign = [
+                name
+                for (name,) in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table'")
+            ]
+            if foreign:
+                raise StoreError(
+                    f"{self.path} is an SQLite database but not a meanband history store "
+                    f"(it holds tables {', '.join(sorted(foreign))}); it was left untouched. "
+                    f"Move it aside, or {_ELSEWHERE}"
+                )
+        if version > 0:
+            # Find damage before anything is written, so a damaged file is never made worse.
+            problems = [r[0] for r in conn.execute("PRAGMA quick_check").fetchall()]
+            if problems != ["ok"]:
+                raise StoreError(
+                    f"the history store {self.path} is damaged ({'; '.join(problems[:3])}); it "
+                    "was left untouched. Move it aside (earlier runs may be rescued with the "
+                    "sqlite3 shell's .recover) and a new store will be started"
+                )
+        if version < SCHEMA_VERSION:
+            self._upgrade()
+        mode = conn.execute("PRAGMA journal_mode = WAL").fetchone()[0]
+        if str(mode).lower() != "wal":
+            # Some file systems cannot share memory for WAL; the rollback journal is still safe.
+            conn.execute("PRAGMA journal_mode = DELETE")
+
+    def _user_version(self) -> int:
+        return int(self._conn.execute("PRAGMA user_version").fetchone()[0])
+
+    def _upgrade(self) -> None:
+        conn = self._conn
+        conn.execute("BEGIN IMMEDIATE")
+        try:
+            version = self._user_version()  # another process may have upgraded meanwhile
+            for step in MIGRATIONS[version:]:
+                step(conn)
+            # PRAGMA takes no bound parameters; the value is our own integer.
+            conn.execute(f"PRAGMA user_version = {len(MIGRATIONS):d}")
+            conn.execute("COMMIT")
+        except BaseException:
+            conn.execute("ROLLBACK")
+            raise
+
+    # -- context and errors ----------------------------------------------------------------
+
+    def close(self) -> None:
+        """Close the connection; the store stays as it is on disk."""
+        self._conn.close()
+
+    def __enter__(self) -> HistoryStore:
+        return self
+
+    def __exit__(self, *exc_info: object) -> None:
+        self.close()
+
+    def _translate_errors(self) -> _ErrorTranslator:
+        return _ErrorTranslator(self.path, self.timeout)
+
+    # -- writing ---------------------------------------------------------------------------
+
+    def record_run(
+        self,
+        rows: Iterable[Mapping[str, Any]],
+        *,
+        label: str = "",
+        environment: Mapping[str, Any] | None = None,
+        started: str | None = None,
+    ) -> int:
+        """Store one run and all its rows in a single transaction; return the run's id.
+
+        If the process dies part way, the transaction is never committed and the store keeps
+        exactly the runs it had before.
+        """
+        env = dict(environment) if environment is not None else capture_environment(None)
+        when = started or datetime.now(timezone.utc).isoformat(timespec="seconds")
+        conn = self._conn
+        with self._translate_errors():
+            conn.execute("BEGIN IMMEDIATE")
+            try:
+                cursor = conn.execute(
+                    "INSERT INTO runs (label, started, git_commit, git_branch, git_dirty, host, "
+                    "machine, cpus, system, python, meanband) VALUES (?,?,?,?,?,?,?,?,?,?,?)",
+                    (
+                        str(label), when, env.get("commit"), env.get("branch"),
+                        None if env.get("dirty") is None else int(bool(env["dirty"])),
+                        str(env.get("hostname", "")), str(env.get("machine", "")),
+                        env.get("cpu_count"), str(env.get("platform", "")), python_words(env),
+                        str(env.get("meanband", "")),
+                    ),
+                )
+                run_id = int(cursor.lastrowid or 0)
+                for row in rows:
+                    conn.execute(
+                        "INSERT INTO checks (run_id, nodeid, series, kind, unit, source, n, mean, "
+                        "low, high, verdict, row_json, trials, warmup) "
+                        "VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?)",
+                        (run_id, *_check_columns(row)),
+                    )
+                conn.execute("COMMIT")
+            except BaseException:
+                if conn.in_transaction:
+                    conn.execute("ROLLBACK")
+                raise
+        return run_id
+
+    def prune(self, keep: int) -> int:
+        """Delete all but the ``keep`` newest runs; return how many were deleted."""
+        if keep < 0:
+            raise StoreError(f"--keep must be 0 or more, got {keep}")
+        with self._translate_errors():
+            self._conn.execute("BEGIN IMMEDIATE")
+            try:
+                cursor = self._conn.execute(
+                    "DELETE FROM runs WHERE id NOT IN "
+                    "(SELECT id FROM runs ORDER BY id DESC LIMIT ?)",
+                    (keep,),
+                )
+                self._conn.execute("COMMIT")
+            except BaseException:
+                if self._conn.in_transaction:
+                    self._conn.execute("ROLLBACK")
+                raise
+            deleted = int(cursor.rowcount)
+            if deleted:
+                self._conn.execute("VACUUM")
+        return deleted
+
+    # -- reading ---------------------------------------------------------------------------
+
+    def runs(self) -> list[RunInfo]:
+        """All runs, newest first."""
+        with self._translate_errors():
+            rows = self._conn.execute(
+                f"SELECT {_RUN_COLUMNS}, (SELECT COUNT(*) FROM checks WHERE run_id = runs.id) "
+                "FROM runs ORDER BY id DESC"
+            ).fetchall()
+        return [_run_info(r) for r in rows]
+
+    def find_run(self, ref: str | int | None = None) -> RunInfo:
+        """The run a user means: the newest run (``None`` or ``"latest"``), the newest run with
+        that label, or the run with that id (``7`` or ``"#7"``)."""
+        runs = self.runs()
+        if not runs:
+            raise StoreError(
+                f"the history store {self.path} holds no runs yet; record one with "
+                "--meanband-record[=LABEL]"
+            )
+        if ref is None or ref == "" or ref == "latest":
+            return runs[0]
+        text = str(ref)
+        for run in runs:
+            if run.label == text:
+                return run
+        digits = text[1:] if text.startswith("#") else text
+        if digits.isdigit():
+            for run in runs:
+                if run.id == int(digits):
+                    return run
+        labels = sorted({r.label for r in runs if r.label})
+        known = f"labels present: {', '.join(labels)}" if labels else "no run has a label"
+        raise StoreError(
+            f"no run labelled or numbered {text!r} in {self.path} ({known}; run ids "
+            f"{runs[-1].id}..{runs[0].id}); record one with --meanband-record={text}"
+        )
+
+    def checks(self, run_id: int) -> list[StoredCheck]:
+        """Every check of run ``run_id``, in the order they were recorded."""
+        with self._translate_errors():
+            rows = self._conn.execute(
+                "SELECT run_id, nodeid, series, kind, unit, source, n, mean, low, high, verdict, "
+                "row_json, trials, warmup FROM checks WHERE run_id = ? ORDER BY id",
+                (run_id,),
+            ).fetchall()
+        return [_stored_check(r) for r in rows]
+
+
+class _ErrorTranslator:
+    """Turn sqlite3 errors into StoreError messages that name the file and the remedy."""
+
+    def __init__(self, path: Path, timeout: float) -> None:
+        self.path, self.timeout = path, timeout
+
+    def __enter__(self) -> None:
+        return None
+
+    def __exit__(
+        self, exc_type: type[BaseException] | None, exc: BaseException | None, tb: Any
+    ) -> None:
+        if exc is None or not isinstance(exc, sqlite3.Error):
+            return
+        text = str(exc)
+        if "locked" in text or "busy" in text:
+            raise StoreError(
+                f"the history store {self.path} stayed locked by another process for "
+                f"{self.timeout:g} s; let that run finish and try again, or raise the wait with "
+                "--meanband-store-timeout"
+            ) from exc
+        if "readonly" in text or "read-only" in text or "unable to open" in text:
+            raise StoreError(
+                f"cannot write the history store {self.path} ({text}); make the location "
+                f"writable or {_ELSEWHERE}"
+            ) from exc
+        if isinstance(exc, sqlite3.DatabaseError) and not isinstance(exc, sqlite3.OperationalError):
+            raise StoreError(
+                f"the history store {self.path} is damaged ({text}); it was left untouched. "
+                "Move it aside (earlier runs may be rescued with the sqlite3 shell's .recover) "
+                "and a new store will be started"
+            ) from exc
+        raise StoreError(f"the history store {self.path} could not be used: {text}") from exc
+
+
+def _check_file(path: Path, create: bool) -> None:
+    """Refuse anything at ``path`` that is not an SQLite file, before SQLite touches it."""
+    if path.is_dir():
+        raise StoreError(
+            f"the history store path {path} is a directory; give a file path, e.g. "
+            f"{path / 'history.sqlite'}"
+        )
+    if not path.exists():
+        if not create:
+            raise StoreError(
+                f"no history store at {path}; record a run first with --meanband-record, or "
+                "give the right file with --store PATH"
+            )
+        return
+    try:
+        with path.open("rb") as handle:
+            head = handle.read(len(_SQLITE_MAGIC))
+    except OSError as exc:
+        raise StoreError(f"cannot read the history store {path}: {exc}") from exc
+    if head and head != _SQLITE_MAGIC:
+        raise StoreError(
+            f"{path} is not an SQLite file, so it is not a meanband history store; it was left "
+            f"untouched. Move it aside, or {_ELSEWHERE}"
+        )
+
+
+_RUN_COLUMNS = (
+    "id, label, started, git_commit, git_branch, git_dirty, host, machine, cpus, system, python, "
+    "meanband"
+)
+
+
+def _run_info(r: tuple[Any, ...]) -> RunInfo:
+    dirty = None if r[5] is None else bool(r[5])
+    return RunInfo(r[0], r[1], r[2], r[3], r[4], dirty, r[6], r[7], r[8], r[9], r[10], r[11], r[12])
+
+
+def _check_columns(row: Mapping[str, Any]) -> tuple[Any, ...]:
+    """The stored columns of one row; raw trials go to float64 bytes, the rest to JSON."""
+    values = np.asarray(row.get("values", []), dtype=_TRIAL_DTYPE)
+    warmup = np.asarray(row.get("warmup", []) or [], dtype=_TRIAL_DTYPE)
+    rest = {k: v for k, v in row.items() if k not in ("values", "warmup")}
+    decision = row.get("decision") or {}
+    interval = decision.get("interval") or {}
+    mean = interval.get("mean")
+    if mean is None and values.size:
+        mean = float(np.mean(values))
+    return (
+        str(row.get("nodeid", "")),
+        str(row.get("series", "")),
+        str(row.get("kind", "check")),
+        row.get("unit"),
+        row.get("source"),
+        int(values.size),
+        _finite_or_none(mean),
+        _finite_or_none(interval.get("low")),
+        _finite_or_none(interval.get("high")),
+        decision.get("verdict"),
+        json.dumps(rest, sort_keys=True),
+        values.tobytes(),
+        warmup.tobytes(),
+    )
+
+
+def _finite_or_none(value: Any) -> float | None:
+    if value is None:
+        return None
+    number = float(value)
+    return number if math.isfinite(number) else None
+
+
+def _stored_check(r: tuple[Any, ...]) -> StoredCheck:
+    row = json.loads(r[11])
+    r = (*r[:7], math.nan if r[7] is None else r[7], *r[8:])
+    values = np.frombuffer(r[12], dtype=_TRIAL_DTYPE).astype(np.float64)
+    warmup = np.frombuffer(r[13], dtype=_TRIAL_DTYPE).astype(np.float64)
+    return StoredCheck(
+        r[0], r[1], r[2], r[3], r[4], r[5], r[6], r[7], r[8], r[9], r[10], row, values, warmup
+    )
