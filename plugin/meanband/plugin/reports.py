@@ -10,7 +10,7 @@ from typing import Any
 
 import pytest
 
-from meanband.plugin.options import resolve_path
+from meanband.plugin.options import resolve_path, resolve_value
 from meanband.record.row import ResultRow
 
 PLUGIN_NAME = "meanband-reports"
@@ -101,10 +101,23 @@ def _ini_bool(config: pytest.Config, name: str) -> bool:
         raise pytest.UsageError(f"ini key {name}: {exc}; write true or false") from exc
 
 
+def _variable_name(text: Any) -> str:
+    name = str(text)
+    if not name or not name.replace("_", "").isalnum():
+        raise ValueError(f"{name!r} is not an environment variable name; give one such as "
+                         "GITHUB_STEP_SUMMARY")
+    return name
+
+
+def _plot_checks(text: Any) -> str:
+    if text not in ("all", "failed", "none"):
+        raise ValueError(f"{text!r}; choose all, failed or none")
+    return str(text)
+
+
 def resolve(config: pytest.Config) -> ReportSettings:
     """Read the report options; a bad value is a usage error naming the option or ini key."""
     from meanband.report.plots import check_formats
-    from meanband.store.report_json import ReportError
 
     trials_option = config.getoption("meanband_report_trials")
     trials = (trials_option == "yes") if trials_option else _ini_bool(
@@ -112,25 +125,9 @@ def resolve(config: pytest.Config) -> ReportSettings:
     job_summary = config.getoption("meanband_job_summary")
     if job_summary is None:
         job_summary = _ini_bool(config, "meanband_job_summary")
-    variable = config.getoption("meanband_job_summary_var") or config.getini(
-        "meanband_job_summary_var")
-    if not variable or not variable.replace("_", "").isalnum():
-        raise pytest.UsageError(
-            f"meanband_job_summary_var / --meanband-job-summary-var: {variable!r} is not an "
-            "environment variable name; give one such as GITHUB_STEP_SUMMARY"
-        )
-    fmt_option = config.getoption("meanband_plot_format")
-    where = "--meanband-plot-format" if fmt_option else "ini key meanband_plot_format"
-    try:
-        formats = check_formats(fmt_option or config.getini("meanband_plot_format"))
-    except ReportError as exc:
-        raise pytest.UsageError(f"{where}: {exc}") from exc
-    plot_checks = config.getoption("meanband_plot_checks") or config.getini(
-        "meanband_plot_checks")
-    if plot_checks not in ("all", "failed", "none"):
-        raise pytest.UsageError(
-            f"ini key meanband_plot_checks: {plot_checks!r}; choose all, failed or none"
-        )
+    variable = resolve_value(config, "job_summary_var", _variable_name, "GITHUB_STEP_SUMMARY")
+    formats: tuple[str, ...] = resolve_value(config, "plot_format", check_formats, ("png",))
+    plot_checks = resolve_value(config, "plot_checks", _plot_checks, "all")
     return ReportSettings(
         report=resolve_path(config, "report"),
         trials=trials,

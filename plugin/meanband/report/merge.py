@@ -88,7 +88,7 @@ def pool_rows(found: Sequence[tuple[str, Mapping[str, Any]]], *, label: str = ""
     left out and named in the row's ``pooled.dropped`` and in a note.
     """
     from meanband.record.check import decide_with_notes
-    from meanband.record.row import decision_record
+    from meanband.record.row import build_row, decision_record
     from meanband.stats.bands import Band
     from meanband.stats.notes import ASSUMPTION_CODES
 
@@ -152,16 +152,16 @@ def pool_rows(found: Sequence[tuple[str, Mapping[str, Any]]], *, label: str = ""
     if dropped:
         text += f"; left out per-run results that the pool does not recompute: {', '.join(dropped)}"
     notes.append({"code": "pooled", "text": text})
-    row = {key: value for key, value in first.items() if key in _CORE_KEYS}
-    row.update(values=values, warmup=warmup, decision=decision, notes=notes,
-               pooled={"runs": runs, "counts": counts, "dropped": dropped})
-    if decision is not None:  # recomputed with the pooled trials, like the decision
-        for key, value in (("uncertainty", uncertainty), ("rule", rule)):
-            if value is None:
-                row.pop(key, None)
-            else:
-                row[key] = value
-    return row
+    extra: dict[str, Any] = {"pooled": {"runs": runs, "counts": counts, "dropped": dropped}}
+    if "run" in first:
+        extra["run"] = first["run"]
+    # The uncertainty and the rule were recomputed with the pooled trials, like the decision.
+    extra.update({k: v for k, v in (("uncertainty", uncertainty), ("rule", rule)) if v is not None})
+    return dict(build_row(
+        nodeid=first["nodeid"], series=first["series"], unit=first["unit"], source=first["source"],
+        values=values, warmup=warmup, decision=decision, notes=notes, settings=first["settings"],
+        timing=first.get("timing"), **extra,
+    ))
 
 
 def _instrument(row: Mapping[str, Any]) -> tuple[float, float] | None:
