@@ -28,6 +28,7 @@ PAIRS = {
     "baseline": row_module.BaselineRecord,
     "suggestion": row_module.SuggestionRecord,
     "pooled": row_module.PooledRecord,
+    "instrument": row_module.InstrumentRecord,
 }
 
 

@@ -43,6 +43,7 @@ class Series:
         self._test_timing = SharedTiming()
         self._rows: list[ResultRow] = []
         self._adaptive: adaptive.AdaptiveRun | None = None  # set by n="auto"
+        self._instrument: dict[str, Any] | None = None  # set by sample(..., query=...)
 
     # -- collecting -------------------------------------------------------------------------
 
@@ -111,12 +112,22 @@ class Series:
     def sample(
         self, fn: Callable[..., Any], *args: Any, n: int | str | None = None,
         unit: str | None = None, max_n: int | None = None,
-        band: dict[str, Edge] | Band | None = None, pilot: int | None = None, **kwargs: Any,
+        band: dict[str, Edge] | Band | None = None, pilot: int | None = None,
+        query: str | None = None, timeout: float | None = None, **kwargs: Any,
     ) -> np.ndarray:
         """Record ``n`` values returned by ``fn(*args, **kwargs)``, in ``unit``.
 
+        With ``query=``, ``fn`` is an instrument (a PyVISA resource) and each value is its answer
+        to the query, e.g. ``trials.sample(dmm, query="MEAS:VOLT:DC?", n=30, unit="V")``: its
+        ``*IDN?`` goes into the record, ``timeout`` (milliseconds) sets its VISA timeout, and its
+        error queue is read after the series (see ``collect/instrument.py``).
         ``n="auto"`` picks the count by Stein's two-stage rule for ``band`` (``adaptive.py``).
         """
+        if query is not None:
+            return self._sample_instrument(fn, args, kwargs, n, unit, max_n, band, pilot, query,
+                                           timeout)
+        if timeout is not None:
+            raise TrialError("timeout= goes with query= (an instrument's VISA timeout, in ms)")
 
         def collect(count: int) -> np.ndarray:
             collected = [fn(*args, **kwargs) for _ in range(count)]
@@ -125,6 +136,12 @@ class Series:
             except TrialError as exc:
                 raise TrialError(f"{_callable_name(fn)} returned bad values: {exc}") from None
 
+        return self._sample_with(collect, n, unit, max_n, band, pilot)
+
+    def _sample_with(
+        self, collect: Callable[[int], np.ndarray], n: int | str | None, unit: str | None,
+        max_n: int | None, band: dict[str, Edge] | Band | None, pilot: int | None,
+    ) -> np.ndarray:
         if n == "auto":
             self._claim(unit, "sample")
             return self._auto(collect, self.settings, max_n=max_n, band=band, pilot=pilot)
@@ -133,6 +150,39 @@ class Series:
         self._claim(unit, "sample")
         values = collect(settings.n)
         self._append(values)
+        return values
+
+    def _sample_instrument(
+        self, instrument: Any, args: tuple[Any, ...], kwargs: dict[str, Any],
+        n: int | str | None, unit: str | None, max_n: int | None,
+        band: dict[str, Edge] | Band | None, pilot: int | None, query: str,
+        timeout: float | None,
+    ) -> np.ndarray:
+        from meanband.collect.instrument import read_series, resource_name
+
+        if args or kwargs:
+            raise TrialError(
+                f"with query= the instrument {resource_name(instrument)} is asked the query "
+                "itself; drop the extra arguments"
+            )
+        readings: list[Any] = []
+
+        def collect(count: int) -> np.ndarray:
+            values, reading = read_series(instrument, query, count, timeout_ms=timeout)
+            readings.append(reading)
+            self._instrument = reading.to_dict()
+            return values
+
+        values = self._sample_with(collect, n, unit, max_n, band, pilot)
+        errors = [e for reading in readings for e in reading.errors]
+        if errors:
+            # The readings stay recorded (and in the summary), but they are not trusted.
+            raise TrialError(
+                f"instrument {readings[-1].resource} reported {len(errors)} error(s) in its "
+                f"error queue after the series: {'; '.join(errors[:3])}"
+                f"{' ...' if len(errors) > 3 else ''}; the {values.size} readings are recorded "
+                "but not checked: fix the setup and measure again"
+            )
         return values
 
     def _auto(
@@ -256,6 +306,8 @@ class Series:
         self, settings: dict[str, Any], decision: Decision | None, notes: list[dict[str, str]],
         **extra: Any,
     ) -> ResultRow:
+        if self._instrument is not None:
+            extra = {**extra, "instrument": self._instrument}
         return build_row(
             nodeid=self.nodeid, series=self.name, unit=self.unit, source=self.source,
             values=self._values, warmup=self._warmup, decision=decision, notes=notes,

@@ -24,6 +24,7 @@ __all__ = [
     "BaselineRecord",
     "ComparisonRecord",
     "DecisionRecord",
+    "InstrumentRecord",
     "IntervalRecord",
     "NoteRecord",
     "PooledRecord",
@@ -239,6 +240,17 @@ class SuggestionRecord(_SuggestionCore, total=False):
     text: str
 
 
+class InstrumentRecord(TypedDict):
+    """The instrument a series was read from (``trials.sample(dmm, query=...)``): its VISA
+    resource, its ``*IDN?`` answer, the query, the timeout in ms and its error-queue entries."""
+
+    resource: str
+    identity: str | None
+    query: str
+    timeout_ms: float | None
+    errors: list[str]
+
+
 class PooledRecord(TypedDict):
     """Where a pooled row's trials came from: run indexes, trials per run, and the keys of
     per-run results that the pool did not recompute."""
@@ -277,6 +289,7 @@ class ResultRow(_RowCore, total=False):
     comparison: ComparisonRecord
     baseline: BaselineRecord
     suggestion: SuggestionRecord | None
+    instrument: InstrumentRecord
     run: int
     pooled: PooledRecord
 
