@@ -6,12 +6,14 @@ import os
 from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import pytest
 
 from meanband.plugin.options import resolve_path, resolve_value
-from meanband.record.row import ResultRow
+
+if TYPE_CHECKING:
+    from meanband.record.row import ResultRow
 
 PLUGIN_NAME = "meanband-reports"
 _TRIAL_CHOICES = ("yes", "no")
