@@ -29,6 +29,7 @@ PAIRS = {
     "suggestion": row_module.SuggestionRecord,
     "pooled": row_module.PooledRecord,
     "instrument": row_module.InstrumentRecord,
+    "sequential": row_module.SequentialRecord,
 }
 
 

@@ -31,7 +31,10 @@ def refuse_options(max_n: Any, band: Any, pilot: Any) -> None:
     given = [name for name, value in (("max_n", max_n), ("band", band), ("pilot", pilot))
              if value is not None]
     if given:
-        raise TrialError(f"{', '.join(given)}= go with n='auto' only; drop them or pass n='auto'")
+        raise TrialError(
+            f"{', '.join(given)}= go with n='auto' only (max_n= and band= also with "
+            "n='until-decided'); drop them or pass such an n"
+        )
 
 
 def planning_band(band: dict[str, Edge] | Band | None, unit: str | None) -> Band:

@@ -11,7 +11,7 @@ import numpy as np
 from meanband.collect.clock import get_clock
 from meanband.collect.timing import time_calls
 from meanband.errors import BandViolation, TrialError
-from meanband.record import adaptive
+from meanband.record import adaptive, sequential
 from meanband.record.check import decide_with_notes
 from meanband.record.message import describe
 from meanband.record.row import ResultRow, build_row
@@ -44,6 +44,7 @@ class Series:
         self._rows: list[ResultRow] = []
         self._adaptive: adaptive.AdaptiveRun | None = None  # set by n="auto"
         self._instrument: dict[str, Any] | None = None  # set by sample(..., query=...)
+        self._sequential: sequential.SequentialRun | None = None  # set by n="until-decided"
 
     # -- collecting -------------------------------------------------------------------------
 
@@ -51,15 +52,31 @@ class Series:
         self, fn: Callable[..., Any], *args: Any, n: int | str | None = None,
         warmup: int | str | None = None, setup: Callable[[], Any] | None = None,
         max_n: int | None = None, band: dict[str, Edge] | Band | None = None,
-        pilot: int | None = None, **kwargs: Any,
+        pilot: int | None = None, block: int | None = None, **kwargs: Any,
     ) -> np.ndarray:
         """Run ``n`` timed trials of ``fn(*args, **kwargs)``; each value is seconds per call.
 
         Each trial makes k calls, k calibrated so a trial lasts the minimum trial time.
         ``setup`` runs before every call, outside the timed region; a value it returns (not
         None) is passed to ``fn`` as the first argument. See docs/timing.md.
-        ``n="auto"`` picks the count by Stein's two-stage rule for ``band`` (``adaptive.py``).
+        ``n="auto"`` picks the count by Stein's two-stage rule for ``band`` (``adaptive.py``);
+        ``n="until-decided"`` times ``block`` trials at a time (default 10) until an anytime-valid
+        interval decides ``band``, at most ``max_n`` (``sequential.py``).
         """
+        if n == sequential.UNTIL_DECIDED:
+            settings = self.settings.merged(warmup=warmup)
+            self._claim(SECONDS, "time")
+            warm_first = [settings.warmup]
+
+            def take(count: int) -> np.ndarray:
+                return self._timed(
+                    fn, args, kwargs, settings, count, warm_first.pop() if warm_first else 0, setup
+                )
+
+            self._refuse_pilot(pilot)
+            return self._until_decided(take, settings, max_n=max_n, band=band, block=block,
+                                       default_block=10)
+        _refuse_block(block)
         if n == "auto":
             settings = self.settings.merged(warmup=warmup)
             self._claim(SECONDS, "time")
@@ -113,7 +130,8 @@ class Series:
         self, fn: Callable[..., Any], *args: Any, n: int | str | None = None,
         unit: str | None = None, max_n: int | None = None,
         band: dict[str, Edge] | Band | None = None, pilot: int | None = None,
-        query: str | None = None, timeout: float | None = None, **kwargs: Any,
+        query: str | None = None, timeout: float | None = None, block: int | None = None,
+        **kwargs: Any,
     ) -> np.ndarray:
         """Record ``n`` values returned by ``fn(*args, **kwargs)``, in ``unit``.
 
@@ -121,11 +139,13 @@ class Series:
         to the query, e.g. ``trials.sample(dmm, query="MEAS:VOLT:DC?", n=30, unit="V")``: its
         ``*IDN?`` goes into the record, ``timeout`` (milliseconds) sets its VISA timeout, and its
         error queue is read after the series (see ``collect/instrument.py``).
-        ``n="auto"`` picks the count by Stein's two-stage rule for ``band`` (``adaptive.py``).
+        ``n="auto"`` picks the count by Stein's two-stage rule for ``band`` (``adaptive.py``);
+        ``n="until-decided"`` takes ``block`` values at a time (default 1) until an anytime-valid
+        interval decides ``band``, at most ``max_n`` (``sequential.py``).
         """
         if query is not None:
             return self._sample_instrument(fn, args, kwargs, n, unit, max_n, band, pilot, query,
-                                           timeout)
+                                           timeout, block)
         if timeout is not None:
             raise TrialError("timeout= goes with query= (an instrument's VISA timeout, in ms)")
 
@@ -136,12 +156,19 @@ class Series:
             except TrialError as exc:
                 raise TrialError(f"{_callable_name(fn)} returned bad values: {exc}") from None
 
-        return self._sample_with(collect, n, unit, max_n, band, pilot)
+        return self._sample_with(collect, n, unit, max_n, band, pilot, block)
 
     def _sample_with(
         self, collect: Callable[[int], np.ndarray], n: int | str | None, unit: str | None,
         max_n: int | None, band: dict[str, Edge] | Band | None, pilot: int | None,
+        block: int | None = None,
     ) -> np.ndarray:
+        if n == sequential.UNTIL_DECIDED:
+            self._claim(unit, "sample")
+            self._refuse_pilot(pilot)
+            return self._until_decided(collect, self.settings, max_n=max_n, band=band,
+                                       block=block, default_block=1)
+        _refuse_block(block)
         if n == "auto":
             self._claim(unit, "sample")
             return self._auto(collect, self.settings, max_n=max_n, band=band, pilot=pilot)
@@ -156,7 +183,7 @@ class Series:
         self, instrument: Any, args: tuple[Any, ...], kwargs: dict[str, Any],
         n: int | str | None, unit: str | None, max_n: int | None,
         band: dict[str, Edge] | Band | None, pilot: int | None, query: str,
-        timeout: float | None,
+        timeout: float | None, block: int | None,
     ) -> np.ndarray:
         from meanband.collect.instrument import read_series, resource_name
 
@@ -173,7 +200,7 @@ class Series:
             self._instrument = reading.to_dict()
             return values
 
-        values = self._sample_with(collect, n, unit, max_n, band, pilot)
+        values = self._sample_with(collect, n, unit, max_n, band, pilot, block)
         errors = [e for reading in readings for e in reading.errors]
         if errors:
             # The readings stay recorded (and in the summary), but they are not trusted.
@@ -195,6 +222,22 @@ class Series:
         )
         self._append(self._adaptive.values)
         return self._adaptive.values
+
+    def _until_decided(
+        self, take: Callable[[int], np.ndarray], settings: Settings, *, max_n: int | None,
+        band: dict[str, Edge] | Band | None, block: int | None, default_block: int,
+    ) -> np.ndarray:
+        self._sequential = sequential.collect(
+            take, held=self._values.size, label=self._label(), unit=self.unit, band=band,
+            settings=settings, max_n=max_n, block=block, default_block=default_block,
+        )
+        self._append(self._sequential.values)
+        return self._sequential.values
+
+    @staticmethod
+    def _refuse_pilot(pilot: int | None) -> None:
+        if pilot is not None:
+            raise TrialError("pilot= goes with n='auto' only; n='until-decided' needs no pilot")
 
     def add(self, value: float, *, unit: str | None = None) -> None:
         """Record one value measured elsewhere."""
@@ -265,7 +308,19 @@ class Series:
         """
         settings = self.settings.merged(confidence=confidence, method=method)
         extra: dict[str, Any] = {}
-        if self._adaptive is not None:
+        if self._sequential is not None:
+            if instrument_uncertainty is not None or rule != GUARDED:
+                raise TrialError(
+                    "instrument_uncertainty= and rule= cannot be used with n='until-decided': "
+                    "its verdict uses the anytime-valid interval; collect a fixed n for this check"
+                )
+            decision, notes, extra = self._sequential.check(
+                low, high, center, tolerance, held=self._values.size, unit=self.unit,
+                settings=settings,
+            )
+            notes = self._timing_notes + notes
+            recorded = {**settings.to_dict(), "n": sequential.UNTIL_DECIDED}
+        elif self._adaptive is not None:
             if instrument_uncertainty is not None or rule != GUARDED:
                 raise TrialError(
                     "instrument_uncertainty= and rule= cannot be used with n='auto': the "
@@ -424,3 +479,8 @@ class SharedTiming:
 
 def _callable_name(fn: Callable[..., Any]) -> str:
     return getattr(fn, "__qualname__", None) or repr(fn)
+
+
+def _refuse_block(block: int | None) -> None:
+    if block is not None:
+        raise TrialError("block= goes with n='until-decided' only; drop it or pass that n")

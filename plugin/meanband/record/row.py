@@ -30,6 +30,7 @@ __all__ = [
     "PooledRecord",
     "ResultRow",
     "RuleRecord",
+    "SequentialRecord",
     "SettingsRecord",
     "SuggestionRecord",
     "TimingRecord",
@@ -240,6 +241,20 @@ class SuggestionRecord(_SuggestionCore, total=False):
     text: str
 
 
+class SequentialRecord(TypedDict):
+    """An ``n="until-decided"`` check: where collection stopped, after how many looks, in blocks
+    of how many trials, the cap, the first look, the sequence's tuning, and why it ended
+    (``decided``, ``max_n`` or ``time limit``)."""
+
+    stopped_at: int
+    looks: int
+    block: int
+    max_n: int
+    first_look: int
+    tightest_at: int
+    reason: str
+
+
 class InstrumentRecord(TypedDict):
     """The instrument a series was read from (``trials.sample(dmm, query=...)``): its VISA
     resource, its ``*IDN?`` answer, the query, the timeout in ms and its error-queue entries."""
@@ -286,6 +301,7 @@ class ResultRow(_RowCore, total=False):
     uncertainty: UncertaintyRecord | None
     rule: RuleRecord | None
     two_stage: TwoStageRecord
+    sequential: SequentialRecord
     comparison: ComparisonRecord
     baseline: BaselineRecord
     suggestion: SuggestionRecord | None

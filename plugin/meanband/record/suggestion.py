@@ -45,6 +45,8 @@ def suggestion_for_row(
     interval = decision["interval"]
     if interval.get("method") == "two-stage":
         return _two_stage_suggestion(row, decision)
+    if row.get("sequential"):
+        return _until_decided_suggestion(row, decision)
     settings = row.get("settings") or {}
     if power is None:
         power = settings.get("power", defaults.POWER)
@@ -101,4 +103,18 @@ def _two_stage_suggestion(row: Mapping[str, Any], decision: Mapping[str, Any]) -
             f"UNDECIDED at n={n} after a pilot of {pilot}: the mean is likely nearer the edge "
             "than the pilot's margin; a larger pilot= gives a better margin"
         )
+    return Suggestion(None, reason, "auto", n, power, None)
+
+
+def _until_decided_suggestion(row: Mapping[str, Any], decision: Mapping[str, Any]) -> Suggestion:
+    """n="until-decided" chose its own count: no count to plan, but a capped run says what to do."""
+    run = row.get("sequential") or {}
+    n = int(decision["interval"]["n"])
+    power = float((row.get("settings") or {}).get("power", defaults.POWER))
+    if run.get("reason") == "decided":
+        reason = f"count chosen at run time: stopped at {n} trials ({decision['verdict']})"
+    else:
+        cap = f"cap max_n={run.get('max_n')}" if run.get("reason") == "max_n" else "time limit"
+        reason = (f"UNDECIDED at n={n}: collection until decided ended at the {cap}; raise it "
+                  "to let the data decide")
     return Suggestion(None, reason, "auto", n, power, None)
