@@ -18,12 +18,18 @@ if TYPE_CHECKING:
     from meanband.stats.interval import Interval, critical_t
     from meanband.stats.methods import mean_interval
     from meanband.stats.planning import trials_needed
-    from meanband.stats.uncertainty import InstrumentUncertainty, UncertaintyBudget, uncertainty_budget
+    from meanband.stats.uncertainty import (
+        Calibration,
+        InstrumentUncertainty,
+        UncertaintyBudget,
+        uncertainty_budget,
+    )
     from meanband.stats.verdict import Verdict
 
 __all__ = [
     "Band",
     "BandViolation",
+    "Calibration",
     "Decision",
     "Diagnostics",
     "InstrumentUncertainty",
@@ -60,6 +66,7 @@ _HOME = {
     "critical_t": "stats.interval",
     "mean_interval": "stats.methods",
     "trials_needed": "stats.planning",
+    "Calibration": "stats.uncertainty",
     "InstrumentUncertainty": "stats.uncertainty",
     "UncertaintyBudget": "stats.uncertainty",
     "uncertainty_budget": "stats.uncertainty",

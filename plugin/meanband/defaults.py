@@ -10,7 +10,9 @@ __all__ = [
     "MAX_INCREASE",
     "METHOD",
     "MIN_N",
+    "MIN_UNCERTAINTY_RATIO",
     "NORMALITY_ALPHA",
+    "OVERDUE_CALIBRATION",
     "POWER",
     "STORE_TIMEOUT",
     "WARMUP",
@@ -38,5 +40,9 @@ GC = False
 #: before the check counts as regressed.
 MAX_INCREASE = 0.05
 MAX_CHANGE = 0.05
+#: A check with an instrument past its calibration due date: "note" or "fail".
+OVERDUE_CALIBRATION = "note"
+#: A test uncertainty ratio (tolerance / 2U) below this gets a note (4:1, common practice).
+MIN_UNCERTAINTY_RATIO = 4.0
 #: Seconds to wait for another process that holds the history store's write lock.
 STORE_TIMEOUT = 10.0

@@ -47,6 +47,8 @@ _SETTING_OPTIONS = (
      "time) (default wall).", "string"),
     ("gc", "gc", "Keep garbage collection on during timed trials: on or off (default off).",
      "string"),
+    ("overdue_calibration", "overdue-calibration", "What a check made with an instrument past "
+     "its calibration due date does: note or fail (default note).", "string"),
     ("time_limit", "time-limit", "Most time a test may spend timing, e.g. '2s'; trials stop "
      "early with a note (default: no limit).", "string"),
 )
@@ -69,7 +71,8 @@ def pytest_configure(config: pytest.Config) -> None:
     config.addinivalue_line(
         "markers",
         "meanband(n=None, confidence=None, warmup=None, min_n=None, normality_alpha=None, "
-        "method=None, power=None, min_trial_time=None, clock=None, gc=None, time_limit=None): "
+        "method=None, power=None, min_trial_time=None, clock=None, gc=None, time_limit=None, "
+        "overdue_calibration=None): "
         "settings for the test's `trials` fixture.",
     )
     config.stash[CONFIG_LAYERS_KEY] = _config_layers(config)

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import datetime
+import math
 from collections.abc import Collection, Iterable, Mapping
 from typing import Any
 
@@ -14,7 +16,7 @@ from meanband.stats.notes import assumption_notes
 from meanband.stats.rules import GUARDED
 from meanband.stats.uncertainty import InstrumentSpec
 
-__all__ = ["decide_with_notes"]
+__all__ = ["decide_with_notes", "metrology_notes"]
 
 
 def decide_with_notes(
@@ -25,6 +27,7 @@ def decide_with_notes(
     instrument_uncertainty: InstrumentSpec = None,
     rule: str = GUARDED,
     skip: Collection[str] = (),
+    today: datetime.date | None = None,
 ) -> tuple[Decision, list[dict[str, str]]]:
     """Decide the check at the row's ``settings`` and judge its assumptions; ``skip`` names
     note codes to leave out (one the timing engine already gave, or drift across pooled runs)."""
@@ -44,4 +47,38 @@ def decide_with_notes(
         decision.diagnostics, min_n=setting("min_n", defaults.MIN_N),
         normality_alpha=normality_alpha, method=method, skip=skip,
     )
+    notes.extend(metrology_notes(decision, today=today))
     return decision, notes
+
+
+def metrology_notes(decision: Decision, *, today: datetime.date | None = None) -> list[dict[str, str]]:
+    """Notes a bench gate needs: an instrument past its calibration due date (code
+    ``calibration-overdue``) and a test uncertainty ratio below 4:1 (``low-uncertainty-ratio``)."""
+    budget = decision.uncertainty
+    if budget is None or not budget.has_instrument:
+        return []
+    notes = []
+    calibration = budget.calibration
+    on = datetime.date.today() if today is None else today
+    if calibration is not None and calibration.overdue(on):
+        certificate = f" (certificate {calibration.certificate})" if calibration.certificate else ""
+        notes.append({
+            "code": "calibration-overdue",
+            "text": f"instrument {calibration.instrument}{certificate} was due for calibration on "
+                    f"{calibration.due}: its stated uncertainty is no longer vouched for; "
+                    "recalibrate it before this gate counts",
+        })
+    band = decision.band
+    if math.isfinite(band.low) and math.isfinite(band.high) and budget.expanded > 0:
+        # Test uncertainty ratio: tolerance width over the width of the expanded uncertainty
+        # interval, (T_U - T_L) / 2U; 4:1 is common practice (no source).
+        ratio = (band.high - band.low) / (2.0 * budget.expanded)
+        if ratio < defaults.MIN_UNCERTAINTY_RATIO:
+            notes.append({
+                "code": "low-uncertainty-ratio",
+                "text": f"test uncertainty ratio {ratio:.2g}:1, below "
+                        f"{defaults.MIN_UNCERTAINTY_RATIO:g}:1 (common practice): the tolerance is "
+                        "narrow beside the expanded uncertainty U, so many good units will be "
+                        "UNDECIDED; a better instrument or more trials raise it",
+            })
+    return notes

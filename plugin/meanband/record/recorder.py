@@ -343,6 +343,11 @@ class Series:
             recorded = settings.to_dict()
         row = self._row(recorded, decision, notes, **extra)
         self._rows.append(row)
+        overdue = [note for note in notes if note["code"] == "calibration-overdue"]
+        if overdue and settings.overdue_calibration == "fail":
+            raise TrialError(
+                f"{overdue[0]['text']} (overdue_calibration='fail'; the check is recorded)"
+            )
         if not decision.passed:
             raise BandViolation(describe(decision, label=self._label(), notes=notes), decision)
         return decision

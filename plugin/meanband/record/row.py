@@ -142,9 +142,7 @@ class TimingRecord(TypedDict, total=False):
     repeats: int
 
 
-class UncertaintyRecord(TypedDict):
-    """``UncertaintyBudget.to_dict()``: an infinite df is None."""
-
+class _UncertaintyCore(TypedDict):
     mean: float
     n: int
     sd: float
@@ -158,6 +156,13 @@ class UncertaintyRecord(TypedDict):
     expanded: float
     confidence: float
     side: str
+
+
+class UncertaintyRecord(_UncertaintyCore, total=False):
+    """``UncertaintyBudget.to_dict()``: an infinite df is None; ``calibration`` is the
+    instrument's calibration record (instrument, certificate, calibrated, due), when given."""
+
+    calibration: dict[str, Any] | None
 
 
 class RuleRecord(TypedDict):

@@ -35,6 +35,9 @@ class Settings:
     clock: str = defaults.CLOCK
     gc: bool = defaults.GC
     time_limit: float | None = None
+    #: What a check made with an instrument past its calibration due date does: "note" (a loud
+    #: note) or "fail" (the test fails, the row is kept).
+    overdue_calibration: str = defaults.OVERDUE_CALIBRATION
 
     def merged(self, **overrides: Any) -> Settings:
         """A copy with the non-None ``overrides`` (call arguments), validated."""
@@ -64,6 +67,7 @@ def marker_settings(
     clock: str | None = None,
     gc: bool | str | None = None,
     time_limit: float | str | None = None,
+    overdue_calibration: str | None = None,
 ) -> dict[str, Any]:
     """The signature of ``@pytest.mark.meanband(...)``: a wrong keyword is a TypeError."""
     return {k: v for k, v in locals().items() if v is not None}
@@ -141,6 +145,15 @@ def _clock(value: Any) -> str:
     return str(value)
 
 
+def _choice(*words: str) -> Callable[[Any], str]:
+    def check(value: Any) -> str:
+        if value not in words:
+            raise ValueError(f"choose one of {', '.join(words)}")
+        return str(value)
+
+    return check
+
+
 _SWITCH = {"on": True, "true": True, "yes": True, "1": True,
            "off": False, "false": False, "no": False, "0": False}
 
@@ -165,6 +178,7 @@ _VALIDATORS: dict[str, Callable[[Any], Any]] = {
     "clock": _clock,
     "gc": _switch,
     "time_limit": _seconds(zero_ok=False),
+    "overdue_calibration": _choice("note", "fail"),
 }
 
 

@@ -43,6 +43,11 @@ def _describe(
         parts.append(budget_words(budget, unit, scale, digits))
     if rule is not None:
         parts.append(rule_words(rule, unit, scale))
+    calibration = (budget or {}).get("calibration")
+    if calibration:
+        certificate = f" (certificate {calibration['certificate']})" if calibration.get("certificate") else ""
+        due = f", due {calibration['due']}" if calibration.get("due") else ""
+        parts.append(f"instrument {calibration['instrument']}{certificate}{due}")
     decision = row["decision"]
     if (decision is not None and decision.get("verdict") == "UNDECIDED"
             and decision.get("suggested_n") is None and budget is not None

@@ -5,6 +5,7 @@ Clause numbers of JCGM 100:2008 cited in this module were recalled from memory.
 
 from __future__ import annotations
 
+import datetime
 import math
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
@@ -19,6 +20,7 @@ from meanband.stats.sample import as_sample, check_confidence, check_probability
 
 __all__ = [
     "COMBINED_METHOD",
+    "Calibration",
     "InstrumentUncertainty",
     "UncertaintyBudget",
     "as_instrument_uncertainty",
@@ -33,6 +35,56 @@ COMBINED_METHOD = "t+instrument"
 
 
 @dataclass(frozen=True, slots=True)
+class Calibration:
+    """Where an instrument's uncertainty comes from: the instrument, its calibration certificate,
+    the date of calibration and the date the next one is due (ISO 8601 dates or ``date``).
+
+    A check made after ``due`` gets a loud note (or fails, with the setting
+    ``overdue_calibration="fail"``): the certificate no longer vouches for the Type B part.
+    """
+
+    instrument: str
+    certificate: str | None = None
+    calibrated: datetime.date | str | None = None
+    due: datetime.date | str | None = None
+
+    def __post_init__(self) -> None:
+        if not isinstance(self.instrument, str) or not self.instrument.strip():
+            raise TrialError(
+                f"a calibration names its instrument (an id string), got {self.instrument!r}"
+            )
+        for name in ("calibrated", "due"):
+            object.__setattr__(self, name, _date(getattr(self, name), name))
+        if self.calibrated is not None and self.due is not None and self.due < self.calibrated:  # type: ignore[operator]
+            raise TrialError(
+                f"the calibration of {self.instrument} is due ({self.due}) before it was made "
+                f"({self.calibrated}); swap the dates"
+            )
+
+    def overdue(self, on: datetime.date) -> bool:
+        """Whether the next calibration was due before ``on``."""
+        return self.due is not None and on > self.due  # type: ignore[operator]
+
+    def to_dict(self) -> dict[str, Any]:
+        """Builtin types only; dates as ISO 8601 strings."""
+        return {
+            "instrument": self.instrument,
+            "certificate": self.certificate,
+            "calibrated": None if self.calibrated is None else str(self.calibrated),
+            "due": None if self.due is None else str(self.due),
+        }
+
+
+def _date(value: datetime.date | str | None, name: str) -> datetime.date | None:
+    if value is None or isinstance(value, datetime.date):
+        return value
+    try:
+        return datetime.date.fromisoformat(str(value))
+    except ValueError:
+        raise TrialError(f"{name}={value!r} is not a date; write it as YYYY-MM-DD") from None
+
+
+@dataclass(frozen=True, slots=True)
 class InstrumentUncertainty:
     """The instrument's standard uncertainty, in the unit of the trials, and its degrees of freedom.
 
@@ -42,8 +94,12 @@ class InstrumentUncertainty:
 
     standard: float
     df: float = math.inf
+    #: The instrument and certificate behind ``standard``, for the record.
+    calibration: Calibration | None = None
 
     def __post_init__(self) -> None:
+        if self.calibration is not None and not isinstance(self.calibration, Calibration):
+            raise TrialError(f"calibration= must be a Calibration, got {self.calibration!r}")
         if isinstance(self.standard, bool) or isinstance(self.df, bool):
             raise TrialError("instrument uncertainty and its df must be numbers, not True/False")
         try:
@@ -67,21 +123,24 @@ class InstrumentUncertainty:
         object.__setattr__(self, "df", df)
 
     @classmethod
-    def from_limits(cls, half_width: float, df: float = math.inf) -> InstrumentUncertainty:
+    def from_limits(
+        cls, half_width: float, df: float = math.inf, *, calibration: Calibration | None = None
+    ) -> InstrumentUncertainty:
         """From a datasheet's accuracy +/- a with no more known: a rectangular distribution,
         u = a / sqrt(3) (JCGM 100:2008, 4.3.7)."""
-        return cls(_non_negative(half_width, "half_width") / math.sqrt(3.0), df)
+        return cls(_non_negative(half_width, "half_width") / math.sqrt(3.0), df, calibration)
 
     @classmethod
     def from_certificate(
-        cls, expanded: float, coverage_factor: float = 2.0, df: float = math.inf
+        cls, expanded: float, coverage_factor: float = 2.0, df: float = math.inf, *,
+        calibration: Calibration | None = None,
     ) -> InstrumentUncertainty:
         """From a calibration certificate's expanded uncertainty U and its k: u = U / k
         (JCGM 100:2008, 4.3.3)."""
         k = _non_negative(coverage_factor, "coverage_factor")
         if k == 0:
             raise TrialError("coverage_factor must be > 0 (a certificate usually states k = 2)")
-        return cls(_non_negative(expanded, "expanded") / k, df)
+        return cls(_non_negative(expanded, "expanded") / k, df, calibration)
 
     @classmethod
     def with_reliability(cls, standard: float, relative: float) -> InstrumentUncertainty:
@@ -94,7 +153,10 @@ class InstrumentUncertainty:
 
     def to_dict(self) -> dict[str, Any]:
         """Builtin types only; an infinite df is written as None (JSON has no infinity)."""
-        return {"standard": self.standard, "df": _finite_or_none(self.df)}
+        out: dict[str, Any] = {"standard": self.standard, "df": _finite_or_none(self.df)}
+        if self.calibration is not None:
+            out["calibration"] = self.calibration.to_dict()
+        return out
 
 
 InstrumentSpec = InstrumentUncertainty | float | int | tuple[float, float] | None
@@ -184,6 +246,8 @@ class UncertaintyBudget:
     expanded: float
     confidence: float
     side: str
+    #: The instrument's calibration record, when one was given.
+    calibration: Calibration | None = None
 
     @property
     def has_instrument(self) -> bool:
@@ -225,6 +289,7 @@ class UncertaintyBudget:
             "expanded": float(self.expanded),
             "confidence": float(self.confidence),
             "side": self.side,
+            "calibration": None if self.calibration is None else self.calibration.to_dict(),
         }
 
 
@@ -258,7 +323,7 @@ def uncertainty_budget(
     return UncertaintyBudget(
         mean=mean, n=n, sd=sd, type_a=type_a, type_a_df=type_a_df, type_b=spec.standard,
         type_b_df=spec.df, combined=combined, effective_df=effective_df, coverage_factor=k,
-        expanded=k * combined, confidence=level, side=side,
+        expanded=k * combined, confidence=level, side=side, calibration=spec.calibration,
     )
 
 
