@@ -18,7 +18,17 @@ from meanband.units import (
     time_scale,
 )
 
-__all__ = ["budget_words", "describe", "rule_words"]
+__all__ = ["CAUTION", "budget_words", "describe", "gates_a_measurement", "rule_words"]
+
+#: What a passing gate on a measurement does and does not say; printed with every result that
+#: gates hardware (the summary, the Markdown and the JSON report).
+CAUTION = (
+    "A passing gate is a statistical statement about the measured mean, not a safety or "
+    "compliance certificate: it rests on the data, the stated instrument uncertainty and the "
+    "model behind them (roughly normal, independent readings; a complete uncertainty budget). "
+    "Whether a unit is accepted is decided by the applicable local codes, the product's "
+    "standards and licensed professional practice."
+)
 
 _SIDE_WORDS = {"two-sided": "two-sided", "upper": "upper bound", "lower": "lower bound"}
 _HEADS = {
@@ -30,6 +40,12 @@ _SIMPLE_HEADS = {
     Verdict.PASS: "the mean lies inside the band (simple acceptance, no guard band)",
     Verdict.FAIL: "the mean lies outside the band (simple acceptance, no guard band)",
 }
+
+
+def gates_a_measurement(row: Mapping[str, Any]) -> bool:
+    """Whether a result row is a check on measured values (not on timings or a comparison)."""
+    return bool(row.get("decision")) and row.get("unit") != SECONDS and row.get("source") in (
+        "sample", "values")
 
 
 def budget_words(

@@ -8,6 +8,7 @@ from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
+from meanband.record.message import CAUTION, budget_words, gates_a_measurement, rule_words
 from meanband.store.report_json import ReportError, totals
 from meanband.units import SECONDS, format_band, format_value, significant_digits, time_scale
 
@@ -52,6 +53,11 @@ def _interval_text(
     return f"{bound} ({level} {_SIDE_WORDS.get(side, side)}{'' if method == 't' else ', ' + method})"
 
 
+def _rule_mark(row: Mapping[str, Any]) -> str:
+    """Simple acceptance compares the mean alone: every table says so beside the verdict."""
+    return " (simple acceptance)" if (row.get("rule") or {}).get("rule") == "simple" else ""
+
+
 def _row_notes(row: Mapping[str, Any]) -> list[str]:
     texts = [note["text"] for note in row.get("notes") or []]
     decision = row.get("decision")
@@ -83,7 +89,7 @@ def _row_cells(row: Mapping[str, Any]) -> list[str]:
     band = decision["band"]
     verdict = decision["verdict"]
     return [
-        verdict if verdict == "PASS" else f"**{verdict}**",
+        (verdict if verdict == "PASS" else f"**{verdict}**") + _rule_mark(row),
         str(interval["n"]),
         _number(mean, unit, digits, scale),
         _interval_text(interval, unit, digits, scale),
@@ -128,7 +134,32 @@ def format_markdown(rows: Sequence[Mapping[str, Any]], *, title: str = "meanband
         lines.append("| " + " | ".join(cells) + " |")
     if notes:
         lines += ["", "Notes:", "", *notes]
+    lines += _uncertainty_section(rows)
+    if any(gates_a_measurement(row) for row in rows):
+        lines += ["", f"> {CAUTION}"]
     return "\n".join(lines) + "\n"
+
+
+def _uncertainty_section(rows: Sequence[Mapping[str, Any]]) -> list[str]:
+    """A table of every check that carries an uncertainty budget with an instrument part or uses
+    simple acceptance: U with k and nu_eff, the decision rule and its probabilities."""
+    shown = [row for row in sorted(rows, key=lambda r: (r["nodeid"], r["series"]))
+             if row.get("decision") and (
+                 (row.get("uncertainty") or {}).get("type_b")
+                 or (row.get("rule") or {}).get("rule") == "simple")]
+    if not shown:
+        return []
+    out = ["", "Measurement uncertainty and decision rule:", "",
+           "| Test | Series | Uncertainty of the mean | Decision rule |", "| --- | --- | --- | --- |"]
+    for row in shown:
+        unit = row.get("unit")
+        budget, rule = row.get("uncertainty"), row.get("rule")
+        scale = time_scale(budget["mean"]) if budget and unit == SECONDS else None
+        words = budget_words(budget, unit, scale) if budget and budget.get("type_b") else "-"
+        decided = rule_words(rule, unit, scale) if rule else "-"
+        out.append(f"| {_code(row['nodeid'])} | {_cell(row['series'])} | {_cell(words)} | "
+                   f"{_cell(decided)} |")
+    return out
 
 
 def write_markdown(text: str, path: str | os.PathLike[str]) -> Path:

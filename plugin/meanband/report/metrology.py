@@ -2,15 +2,16 @@
 
 from __future__ import annotations
 
+import textwrap
 from collections.abc import Mapping, Sequence
 from typing import Any
 
-from meanband.record.message import budget_words, rule_words
+from meanband.record.message import CAUTION, budget_words, gates_a_measurement, rule_words
 from meanband.record.row import ResultRow
 from meanband.report.rows import row_name, sorted_rows
 from meanband.units import SECONDS, significant_digits, time_scale
 
-__all__ = ["metrology_lines"]
+__all__ = ["caution_lines", "metrology_lines"]
 
 
 def metrology_lines(rows: Sequence[ResultRow], verbosity: int = 0) -> list[str]:
@@ -55,3 +56,10 @@ def _describe(
         parts.append("more trials will not decide it: the instrument's own uncertainty leaves "
                      "too little room")
     return "; ".join(parts)
+
+
+def caution_lines(rows: Sequence[ResultRow], verbosity: int = 0) -> list[str]:
+    """The caution, once, when any check gates a measured value (wrapped for the terminal)."""
+    if verbosity < 0 or not any(gates_a_measurement(row) for row in rows):
+        return []
+    return ["", *textwrap.wrap(f"note on measurement gates: {CAUTION}", width=78)]

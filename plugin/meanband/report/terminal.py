@@ -10,7 +10,7 @@ from typing import Any
 from meanband import defaults
 from meanband.record.row import ResultRow
 from meanband.report.baseline import baseline_lines
-from meanband.report.metrology import metrology_lines
+from meanband.report.metrology import caution_lines, metrology_lines
 from meanband.report.rows import row_name, sorted_rows
 from meanband.report.tables import format_table
 from meanband.report.timing import timing_lines
@@ -73,7 +73,7 @@ def _baseline_section(rows: Sequence[ResultRow], verbosity: int) -> list[str]:
 
 #: Sections that features contribute from rows alone, in the order they are printed.
 ROW_SECTIONS: tuple[Callable[[Sequence[ResultRow], int], list[str]], ...] = (
-    metrology_lines, timing_lines, _baseline_section,
+    metrology_lines, timing_lines, _baseline_section, caution_lines,
 )
 
 
@@ -102,6 +102,8 @@ def _cells(row: Row, verbosity: int) -> list[str]:
         level += f" {method}"
         if about != "mean":
             level += f" ({about})"
+    if (row.get("rule") or {}).get("rule") == "simple":
+        level += " simple"  # the mean alone was compared with the band: the row says so
     cells = [row_name(row), str(interval["n"]), fmt(mean), bounds, level, band_text,
              decision["verdict"]]
     if verbosity > 0:

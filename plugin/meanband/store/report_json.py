@@ -119,6 +119,7 @@ def assemble(
 ) -> dict[str, Any]:
     """Put rows and runs together under the report header."""
     from meanband import __version__
+    from meanband.record.message import CAUTION, gates_a_measurement
 
     return {
         "format": FORMAT,
@@ -128,6 +129,8 @@ def assemble(
         "trials_included": include_trials,
         "runs": runs,
         "totals": totals(rows),
+        # What a passing gate on a measured value does and does not say, filed with the results.
+        "caution": CAUTION if any(gates_a_measurement(row) for row in rows) else None,
         "rows": rows,
     }
 
