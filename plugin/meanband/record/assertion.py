@@ -11,6 +11,7 @@ from meanband.errors import BandViolation
 from meanband.record.message import describe
 from meanband.stats.bands import Edge, Tolerance, make_band
 from meanband.stats.decision import Decision, decide
+from meanband.stats.decision_rules import DecisionRule
 from meanband.stats.notes import assumption_notes
 from meanband.stats.rules import GUARDED
 from meanband.stats.uncertainty import InstrumentSpec
@@ -29,7 +30,7 @@ def assert_mean_within(
     method: str = "t",
     unit: str | None = None,
     instrument_uncertainty: InstrumentSpec = None,
-    rule: str = GUARDED,
+    rule: str | DecisionRule = GUARDED,
 ) -> Decision:
     """Return the :class:`Decision` when the interval of the mean lies inside the band.
 

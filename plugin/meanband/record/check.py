@@ -12,6 +12,7 @@ import numpy as np
 from meanband import defaults
 from meanband.stats.bands import Band
 from meanband.stats.decision import Decision, decide
+from meanband.stats.decision_rules import DecisionRule
 from meanband.stats.notes import assumption_notes
 from meanband.stats.rules import GUARDED
 from meanband.stats.uncertainty import InstrumentSpec
@@ -25,7 +26,7 @@ def decide_with_notes(
     settings: Mapping[str, Any],
     *,
     instrument_uncertainty: InstrumentSpec = None,
-    rule: str = GUARDED,
+    rule: str | DecisionRule = GUARDED,
     skip: Collection[str] = (),
     today: datetime.date | None = None,
 ) -> tuple[Decision, list[dict[str, str]]]:

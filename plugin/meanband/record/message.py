@@ -69,11 +69,19 @@ def budget_words(
 
 def rule_words(rule: Mapping[str, Any], unit: str | None, scale: float | None = None) -> str:
     """The decision rule and its probabilities in one phrase (``RuleOutcome.to_dict()``)."""
-    if rule.get("rule") == "simple":
+    name = str(rule.get("rule", "guarded"))
+    guard = format_bound(float(rule.get("guard_band") or 0.0), unit, scale=scale)
+    if name == "simple":
         text = "simple acceptance (w = 0): the mean alone is compared with the band"
+    elif name.startswith("guarded:"):
+        text = f"guarded acceptance (guard band w = {name.partition(':')[2]} U = {guard})"
+    elif name.startswith("specific-risk:"):
+        text = (f"guarded acceptance for a specific risk of at most {name.partition(':')[2]} "
+                f"(guard band w = {guard})")
     else:
-        guard = format_bound(float(rule.get("guard_band", 0.0)), unit, scale=scale)
         text = f"guarded acceptance (guard band w = U = {guard})"
+    if rule.get("statement"):
+        text += f"; ILAC-G8 statement: {rule['statement']}"
     for key, words in (("conformance_probability", "conformance probability"),
                        ("false_accept_probability", "probability of false acceptance"),
                        ("false_reject_probability", "probability of false rejection")):

@@ -18,6 +18,7 @@ from meanband.record.row import ResultRow, build_row
 from meanband.record.settings import Settings
 from meanband.stats.bands import Band, Edge, Tolerance, make_band
 from meanband.stats.decision import Decision
+from meanband.stats.decision_rules import DecisionRule
 from meanband.stats.interval import Interval
 from meanband.stats.methods import mean_interval
 from meanband.stats.rules import GUARDED
@@ -297,7 +298,7 @@ class Series:
         confidence: float | None = None,
         method: str | None = None,
         instrument_uncertainty: InstrumentSpec = None,
-        rule: str = GUARDED,
+        rule: str | DecisionRule = GUARDED,
     ) -> Decision:
         """Pass only if the interval of the mean lies inside the band; raise BandViolation if not.
 

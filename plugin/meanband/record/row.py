@@ -165,9 +165,7 @@ class UncertaintyRecord(_UncertaintyCore, total=False):
     calibration: dict[str, Any] | None
 
 
-class RuleRecord(TypedDict):
-    """``RuleOutcome.to_dict()``: an open acceptance edge is None."""
-
+class _RuleCore(TypedDict):
     rule: str
     verdict: str
     guard_band: float
@@ -176,6 +174,13 @@ class RuleRecord(TypedDict):
     conformance_probability: float | None
     false_accept_probability: float | None
     false_reject_probability: float | None
+
+
+class RuleRecord(_RuleCore, total=False):
+    """``RuleOutcome.to_dict()``: an open acceptance edge is None; ``statement`` is the ILAC-G8
+    statement of a rule given as a value (``"guarded:0.5"``, ``"specific-risk:0.01"``)."""
+
+    statement: str
 
 
 class TwoStageRecord(TypedDict):

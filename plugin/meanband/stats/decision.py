@@ -12,11 +12,18 @@ import numpy as np
 from meanband import defaults
 from meanband.errors import TrialError
 from meanband.stats.bands import Band
+from meanband.stats.decision_rules import (
+    DecisionRule,
+    Measurement,
+    apply_decision_rule,
+    as_decision_rule,
+    rule_spec,
+)
 from meanband.stats.diagnostics import Diagnostics, diagnose
 from meanband.stats.interval import Interval
 from meanband.stats.methods import mean_interval
 from meanband.stats.planning import trials_needed
-from meanband.stats.rules import GUARDED, RuleOutcome, apply_rule, check_rule
+from meanband.stats.rules import GUARDED, RULES, RuleOutcome, apply_rule, check_rule
 from meanband.stats.sample import as_sample, check_confidence, check_probability
 from meanband.stats.uncertainty import (
     InstrumentSpec,
@@ -79,7 +86,7 @@ def decide(
     power: float = defaults.POWER,
     alpha: float = defaults.NORMALITY_ALPHA,
     instrument_uncertainty: InstrumentSpec = None,
-    rule: str = GUARDED,
+    rule: str | DecisionRule = GUARDED,
 ) -> Decision:
     """Decide a check at ``confidence``.
 
@@ -92,11 +99,16 @@ def decide(
     ``instrument_uncertainty`` (a standard uncertainty in the trials' unit, ``(u, df)`` or an
     :class:`~meanband.stats.uncertainty.InstrumentUncertainty`) is combined with the Type A
     uncertainty of the mean (JCGM 100:2008): the interval becomes mean +/- U. ``rule="simple"``
-    compares the mean alone with the band (simple acceptance, no UNDECIDED).
+    compares the mean alone with the band (simple acceptance, no UNDECIDED). Any other rule, a
+    string such as ``"guarded:0.5"`` or ``"specific-risk:0.01"`` or a rule value from
+    :mod:`meanband.stats.decision_rules`, is applied to the GUM budget of the t interval, and its
+    ILAC-G8 statement is kept (conditional pass and conditional fail are UNDECIDED).
     """
     level = check_confidence(confidence)
     power = check_probability(power, "power")
-    check_rule(rule)
+    valued = None if isinstance(rule, str) and rule in RULES else as_decision_rule(rule)
+    if valued is None:
+        check_rule(str(rule))
     instrument = as_instrument_uncertainty(instrument_uncertainty)
     x = as_sample(values, minimum=2)
     side = band.side
@@ -123,11 +135,20 @@ def decide(
             low, high = counter.low, interval.high
         else:
             low, high = interval.low, counter.high
-    outcome = apply_rule(
-        rule, mean=interval.mean, low=low, high=high, band_low=band.low, band_high=band.high,
-        standard_uncertainty=None if budget is None else budget.combined,
-        df=None if budget is None else budget.effective_df,
-    )
+    if valued is None:
+        outcome = apply_rule(
+            str(rule), mean=interval.mean, low=low, high=high, band_low=band.low,
+            band_high=band.high,
+            standard_uncertainty=None if budget is None else budget.combined,
+            df=None if budget is None else budget.effective_df,
+        )
+    else:
+        if budget is None:
+            raise TrialError(
+                f"decision rule {rule_spec(valued)!r} works on the uncertainty budget of the t "
+                f"interval (JCGM 106); this check uses method={method!r}: use method='t'"
+            )
+        outcome = _valued_outcome(valued, budget, band)
     verdict = Verdict(outcome.verdict)
     diagnostics = diagnose(x, alpha=alpha)
     suggested = None
@@ -153,3 +174,19 @@ def edge_margin(mean: float, band: Band) -> float:
     """Distance from the mean to the band edge that decides the check (the nearest one)."""
     distances = [abs(mean - edge) for edge in (band.low, band.high) if math.isfinite(edge)]
     return min(distances)
+
+
+def _valued_outcome(rule: DecisionRule, budget: UncertaintyBudget, band: Band) -> RuleOutcome:
+    """A decision rule given as a value, as the row records a rule's outcome."""
+    conformity = apply_decision_rule(rule, Measurement.from_budget(budget), band.low, band.high)
+    verdict = Verdict(conformity.verdict)
+    accept = conformity.specific_risk if conformity.risk_kind == "false accept" else None
+    reject = conformity.specific_risk if conformity.risk_kind == "false reject" else None
+    return RuleOutcome(
+        rule=rule_spec(rule), verdict=verdict, guard_band=conformity.guard_band,
+        acceptance_low=conformity.acceptance_low, acceptance_high=conformity.acceptance_high,
+        conformance_probability=conformity.conformance_probability,
+        false_accept_probability=accept if verdict is Verdict.PASS else None,
+        false_reject_probability=reject if verdict is Verdict.FAIL else None,
+        statement=conformity.statement,
+    )

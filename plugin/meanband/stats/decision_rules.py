@@ -839,3 +839,13 @@ def _distribution(df: float) -> Any:
 
 def _finite_or_none(value: float) -> float | None:
     return float(value) if math.isfinite(value) else None
+
+
+def rule_spec(rule: DecisionRule) -> str:
+    """The rule as its string spec (the inverse of :func:`as_decision_rule` for the rule kind):
+    ``"guarded"``, ``"guarded:0.5"``, ``"simple"`` or ``"specific-risk:0.01"``."""
+    if isinstance(rule, SimpleAcceptance):
+        return "simple"
+    if isinstance(rule, SpecificRiskAcceptance):
+        return f"specific-risk:{rule.target:g}"
+    return "guarded" if rule.factor == 1.0 else f"guarded:{rule.factor:g}"

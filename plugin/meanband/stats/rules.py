@@ -48,6 +48,9 @@ class RuleOutcome:
     conformance_probability: float | None
     false_accept_probability: float | None
     false_reject_probability: float | None
+    #: The ILAC-G8 statement (pass, conditional pass, conditional fail, fail) of a rule given as
+    #: a value (``stats/decision_rules.py``); None for the plain guarded and simple rules.
+    statement: str | None = None
 
     def to_dict(self) -> dict[str, Any]:
         """Builtin types only; an open acceptance edge is written as None."""
@@ -60,6 +63,7 @@ class RuleOutcome:
             "conformance_probability": _float_or_none(self.conformance_probability),
             "false_accept_probability": _float_or_none(self.false_accept_probability),
             "false_reject_probability": _float_or_none(self.false_reject_probability),
+            **({} if self.statement is None else {"statement": self.statement}),
         }
 
 
