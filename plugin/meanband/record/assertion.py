@@ -11,7 +11,7 @@ from meanband.errors import BandViolation
 from meanband.record.message import describe
 from meanband.stats.bands import Edge, Tolerance, make_band
 from meanband.stats.decision import Decision, decide
-from meanband.stats.decision_rules import DecisionRule
+from meanband.stats.decision_rules import DecisionRule, ProcessPrior
 from meanband.stats.notes import assumption_notes
 from meanband.stats.rules import GUARDED
 from meanband.stats.uncertainty import InstrumentSpec
@@ -31,6 +31,7 @@ def assert_mean_within(
     unit: str | None = None,
     instrument_uncertainty: InstrumentSpec = None,
     rule: str | DecisionRule = GUARDED,
+    process: ProcessPrior | tuple[float, float] | None = None,
 ) -> Decision:
     """Return the :class:`Decision` when the interval of the mean lies inside the band.
 
@@ -44,7 +45,7 @@ def assert_mean_within(
     band = make_band(low, high, center=center, tolerance=tolerance, unit=unit)
     decision = decide(
         values, band, confidence=confidence, method=method,
-        instrument_uncertainty=instrument_uncertainty, rule=rule,
+        instrument_uncertainty=instrument_uncertainty, rule=rule, process=process,
     )
     if not decision.passed:
         raise BandViolation(describe(decision, notes=assumption_notes(decision.diagnostics, method=method)),

@@ -12,7 +12,7 @@ import numpy as np
 from meanband import defaults
 from meanband.stats.bands import Band
 from meanband.stats.decision import Decision, decide
-from meanband.stats.decision_rules import DecisionRule
+from meanband.stats.decision_rules import DecisionRule, ProcessPrior
 from meanband.stats.notes import assumption_notes
 from meanband.stats.rules import GUARDED
 from meanband.stats.uncertainty import InstrumentSpec
@@ -29,6 +29,7 @@ def decide_with_notes(
     rule: str | DecisionRule = GUARDED,
     skip: Collection[str] = (),
     today: datetime.date | None = None,
+    process: ProcessPrior | tuple[float, float] | None = None,
 ) -> tuple[Decision, list[dict[str, str]]]:
     """Decide the check at the row's ``settings`` and judge its assumptions; ``skip`` names
     note codes to leave out (one the timing engine already gave, or drift across pooled runs)."""
@@ -42,7 +43,7 @@ def decide_with_notes(
     decision = decide(
         values, band, confidence=setting("confidence", defaults.CONFIDENCE), method=method,
         power=setting("power", defaults.POWER),
-        instrument_uncertainty=instrument_uncertainty, rule=rule,
+        instrument_uncertainty=instrument_uncertainty, rule=rule, process=process,
     )
     notes = assumption_notes(
         decision.diagnostics, min_n=setting("min_n", defaults.MIN_N),

@@ -82,6 +82,13 @@ def rule_words(rule: Mapping[str, Any], unit: str | None, scale: float | None = 
         text = f"guarded acceptance (guard band w = U = {guard})"
     if rule.get("statement"):
         text += f"; ILAC-G8 statement: {rule['statement']}"
+    risks = rule.get("risks")
+    if risks:
+        share = risks.get("conforming_rejected_share")
+        text += (f"; for the stated process: consumer's risk {format_probability(risks['consumer_risk'])}"
+                 f", producer's risk {format_probability(risks['producer_risk'])}")
+        if share is not None:
+            text += f" ({share:.1%} of good units turned away)"
     for key, words in (("conformance_probability", "conformance probability"),
                        ("false_accept_probability", "probability of false acceptance"),
                        ("false_reject_probability", "probability of false rejection")):
@@ -116,7 +123,10 @@ def describe(
     if budget is not None and budget.has_instrument:
         lines.append(f"  U          {budget_words(budget.to_dict(), unit, scale)}")
     if decision.rule is not None:
-        lines.append(f"  rule       {rule_words(decision.rule.to_dict(), unit, scale)}")
+        words = decision.rule.to_dict()
+        if decision.risks is not None:
+            words["risks"] = decision.risks.to_dict()
+        lines.append(f"  rule       {rule_words(words, unit, scale)}")
     normality = d.normality
     if normality.testable:
         lines.append(f"  normality  {normality.method} W/stat = {normality.statistic:.4g}, "

@@ -18,7 +18,7 @@ from meanband.record.row import ResultRow, build_row
 from meanband.record.settings import Settings
 from meanband.stats.bands import Band, Edge, Tolerance, make_band
 from meanband.stats.decision import Decision
-from meanband.stats.decision_rules import DecisionRule
+from meanband.stats.decision_rules import DecisionRule, ProcessPrior
 from meanband.stats.interval import Interval
 from meanband.stats.methods import mean_interval
 from meanband.stats.rules import GUARDED
@@ -299,6 +299,7 @@ class Series:
         method: str | None = None,
         instrument_uncertainty: InstrumentSpec = None,
         rule: str | DecisionRule = GUARDED,
+        process: ProcessPrior | tuple[float, float] | None = None,
     ) -> Decision:
         """Pass only if the interval of the mean lies inside the band; raise BandViolation if not.
 
@@ -310,7 +311,7 @@ class Series:
         settings = self.settings.merged(confidence=confidence, method=method)
         extra: dict[str, Any] = {}
         if self._sequential is not None:
-            if instrument_uncertainty is not None or rule != GUARDED:
+            if instrument_uncertainty is not None or rule != GUARDED or process is not None:
                 raise TrialError(
                     "instrument_uncertainty= and rule= cannot be used with n='until-decided': "
                     "its verdict uses the anytime-valid interval; collect a fixed n for this check"
@@ -322,7 +323,7 @@ class Series:
             notes = self._timing_notes + notes
             recorded = {**settings.to_dict(), "n": sequential.UNTIL_DECIDED}
         elif self._adaptive is not None:
-            if instrument_uncertainty is not None or rule != GUARDED:
+            if instrument_uncertainty is not None or rule != GUARDED or process is not None:
                 raise TrialError(
                     "instrument_uncertainty= and rule= cannot be used with n='auto': the "
                     "two-stage verdict uses Stein's interval; collect a fixed n for this check"
@@ -337,7 +338,7 @@ class Series:
             band = make_band(low, high, center=center, tolerance=tolerance, unit=self.unit)
             decision, notes = decide_with_notes(
                 self._values, band, settings.to_dict(),
-                instrument_uncertainty=instrument_uncertainty, rule=rule,
+                instrument_uncertainty=instrument_uncertainty, rule=rule, process=process,
                 skip={note["code"] for note in self._timing_notes},
             )
             notes = self._timing_notes + notes

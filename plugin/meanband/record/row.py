@@ -178,9 +178,11 @@ class _RuleCore(TypedDict):
 
 class RuleRecord(_RuleCore, total=False):
     """``RuleOutcome.to_dict()``: an open acceptance edge is None; ``statement`` is the ILAC-G8
-    statement of a rule given as a value (``"guarded:0.5"``, ``"specific-risk:0.01"``)."""
+    statement of a rule given as a value (``"guarded:0.5"``, ``"specific-risk:0.01"``);
+    ``risks`` the rule's global risks (``GlobalRisks.to_dict()``) for a stated process."""
 
     statement: str
+    risks: dict[str, Any]
 
 
 class TwoStageRecord(TypedDict):
@@ -332,6 +334,9 @@ def decision_record(
     full = decision.to_dict()
     uncertainty = full.pop("uncertainty")
     rule = full.pop("rule")
+    risks = full.pop("risks")
+    if risks is not None:
+        rule = {**rule, "risks": risks}
     return full, uncertainty, rule  # type: ignore[return-value]
 
 

@@ -14,9 +14,14 @@ from meanband.errors import TrialError
 from meanband.stats.bands import Band
 from meanband.stats.decision_rules import (
     DecisionRule,
+    GlobalRisks,
+    GuardedAcceptance,
     Measurement,
+    ProcessPrior,
+    SimpleAcceptance,
     apply_decision_rule,
     as_decision_rule,
+    global_risks,
     rule_spec,
 )
 from meanband.stats.diagnostics import Diagnostics, diagnose
@@ -55,6 +60,8 @@ class Decision:
     rule: RuleOutcome | None = None
     #: The power at which ``suggested_n`` was planned.
     power: float = defaults.POWER
+    #: Consumer's and producer's risk of this rule for the stated production process, if any.
+    risks: GlobalRisks | None = None
 
     @property
     def passed(self) -> bool:
@@ -74,6 +81,7 @@ class Decision:
             "power": float(self.power),
             "uncertainty": None if self.uncertainty is None else self.uncertainty.to_dict(),
             "rule": None if self.rule is None else self.rule.to_dict(),
+            "risks": None if self.risks is None else self.risks.to_dict(),
         }
 
 
@@ -87,6 +95,7 @@ def decide(
     alpha: float = defaults.NORMALITY_ALPHA,
     instrument_uncertainty: InstrumentSpec = None,
     rule: str | DecisionRule = GUARDED,
+    process: ProcessPrior | tuple[float, float] | None = None,
 ) -> Decision:
     """Decide a check at ``confidence``.
 
@@ -103,6 +112,10 @@ def decide(
     string such as ``"guarded:0.5"`` or ``"specific-risk:0.01"`` or a rule value from
     :mod:`meanband.stats.decision_rules`, is applied to the GUM budget of the t interval, and its
     ILAC-G8 statement is kept (conditional pass and conditional fail are UNDECIDED).
+
+    ``process`` (a ``ProcessPrior`` or ``(mean, sd)`` of the true values the production process
+    makes) adds the rule's global risks (JCGM 106:2012, clause 9): the consumer's risk, the
+    producer's risk and the share of good units the gate turns away.
     """
     level = check_confidence(confidence)
     power = check_probability(power, "power")
@@ -165,8 +178,20 @@ def decide(
             suggested = trials_needed(
                 spread, margin=margin, confidence=level, side=side, power=power
             )
+    risks = None
+    if process is not None:
+        if budget is None:
+            raise TrialError("process= gives the global risks of the t interval's rule; use method='t'")
+        prior = process if isinstance(process, ProcessPrior) else ProcessPrior(*process)
+        risks = global_risks(
+            prior, budget.combined, band.low, band.high,
+            guard_band=valued if valued is not None else (
+                SimpleAcceptance() if rule == "simple" else GuardedAcceptance()),
+            coverage_factor=budget.coverage_factor, df=budget.effective_df,
+        )
     return Decision(
-        verdict, band, interval, counter, diagnostics, suggested, band.unit, budget, outcome, power
+        verdict, band, interval, counter, diagnostics, suggested, band.unit, budget, outcome, power,
+        risks,
     )
 
 

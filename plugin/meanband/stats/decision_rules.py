@@ -637,11 +637,15 @@ def global_risk_curve(
                                conforming, accepted)
 
     def p_accept(eta: float) -> np.ndarray:
-        return np.where(empty, 0.0, norm.cdf((accept_high - eta) / u) - norm.cdf((accept_low - eta) / u))
+        with np.errstate(over="ignore"):  # a huge zone over a tiny u: the cdf is 0 or 1 anyway
+            return np.where(empty, 0.0, norm.cdf((accept_high - eta) / u)
+                            - norm.cdf((accept_low - eta) / u))
 
     def p_reject(eta: float) -> np.ndarray:
         # The two tails directly, so a tiny rejection probability keeps its digits.
-        return np.where(empty, 1.0, norm.cdf((accept_low - eta) / u) + norm.sf((accept_high - eta) / u))
+        with np.errstate(over="ignore"):
+            return np.where(empty, 1.0, norm.cdf((accept_low - eta) / u)
+                            + norm.sf((accept_high - eta) / u))
 
     def integrate(f: Any, a: float, b: float) -> np.ndarray:
         a, b = max(a, -_PRIOR_SPAN), min(b, _PRIOR_SPAN)
