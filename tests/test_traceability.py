@@ -96,3 +96,28 @@ def test_overdue_calibration_notes_by_default_and_fails_when_asked(run_suite, py
     assert len(rows) == 2 and all(r["uncertainty"]["calibration"]["instrument"] == "DMM-0388"
                                   for r in rows)
     assert "instrument DMM-0388 (certificate CAL-2024-007), due 2025-01-31" in result.stdout.str()
+
+
+def test_the_ratio_threshold_is_a_setting(run_suite, pytester) -> None:
+    pytester.makepyfile(test_loop="""
+import numpy as np
+import pytest
+
+LOOP = np.random.default_rng(41).normal(12.0, 0.004, 30)
+
+@pytest.mark.meanband(min_uncertainty_ratio=2)
+def test_loose(trials):
+    trials.extend(LOOP, unit="mA")
+    trials.check(center=12.0, tolerance=0.04, instrument_uncertainty=0.012 / 2)
+
+def test_default(trials):
+    trials.extend(LOOP, unit="mA")
+    trials.check(center=12.0, tolerance=0.04, instrument_uncertainty=0.012 / 2)
+""")
+    result = run_suite("-rA")
+    result.assert_outcomes(passed=2)
+    text = result.stdout.str()
+    assert "test_default: test uncertainty ratio" in text and "below 4:1" in text
+    assert "test_loose: test uncertainty ratio" not in text
+    bad = run_suite("--meanband-min-uncertainty-ratio", "-3")
+    assert bad.ret == 4 and "option --meanband-min-uncertainty-ratio" in bad.stderr.str()

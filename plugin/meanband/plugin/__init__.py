@@ -47,6 +47,9 @@ _SETTING_OPTIONS = (
      "time) (default wall).", "string"),
     ("gc", "gc", "Keep garbage collection on during timed trials: on or off (default off).",
      "string"),
+    ("min_uncertainty_ratio", "min-uncertainty-ratio", "Note a check whose test uncertainty "
+     f"ratio (tolerance / 2U) is below this (default {defaults.MIN_UNCERTAINTY_RATIO:g}, i.e. "
+     f"{defaults.MIN_UNCERTAINTY_RATIO:g}:1).", "string"),
     ("overdue_calibration", "overdue-calibration", "What a check made with an instrument past "
      "its calibration due date does: note or fail (default note).", "string"),
     ("time_limit", "time-limit", "Most time a test may spend timing, e.g. '2s'; trials stop "
@@ -72,7 +75,7 @@ def pytest_configure(config: pytest.Config) -> None:
         "markers",
         "meanband(n=None, confidence=None, warmup=None, min_n=None, normality_alpha=None, "
         "method=None, power=None, min_trial_time=None, clock=None, gc=None, time_limit=None, "
-        "overdue_calibration=None): "
+        "overdue_calibration=None, min_uncertainty_ratio=None): "
         "settings for the test's `trials` fixture.",
     )
     config.stash[CONFIG_LAYERS_KEY] = _config_layers(config)

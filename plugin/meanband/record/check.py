@@ -49,11 +49,17 @@ def decide_with_notes(
         decision.diagnostics, min_n=setting("min_n", defaults.MIN_N),
         normality_alpha=normality_alpha, method=method, skip=skip,
     )
-    notes.extend(metrology_notes(decision, today=today))
+    notes.extend(metrology_notes(
+        decision, today=today,
+        min_ratio=setting("min_uncertainty_ratio", defaults.MIN_UNCERTAINTY_RATIO),
+    ))
     return decision, notes
 
 
-def metrology_notes(decision: Decision, *, today: datetime.date | None = None) -> list[dict[str, str]]:
+def metrology_notes(
+    decision: Decision, *, today: datetime.date | None = None,
+    min_ratio: float = defaults.MIN_UNCERTAINTY_RATIO,
+) -> list[dict[str, str]]:
     """Notes a bench gate needs: an instrument past its calibration due date (code
     ``calibration-overdue``) and a test uncertainty ratio below 4:1 (``low-uncertainty-ratio``)."""
     budget = decision.uncertainty
@@ -75,11 +81,11 @@ def metrology_notes(decision: Decision, *, today: datetime.date | None = None) -
         # Test uncertainty ratio: tolerance width over the width of the expanded uncertainty
         # interval, (T_U - T_L) / 2U; 4:1 is common practice (no source).
         ratio = (band.high - band.low) / (2.0 * budget.expanded)
-        if ratio < defaults.MIN_UNCERTAINTY_RATIO:
+        if ratio < min_ratio:
             notes.append({
                 "code": "low-uncertainty-ratio",
-                "text": f"test uncertainty ratio {ratio:.2g}:1, below "
-                        f"{defaults.MIN_UNCERTAINTY_RATIO:g}:1 (common practice): the tolerance is "
+                "text": f"test uncertainty ratio {ratio:.2g}:1, below {min_ratio:g}:1 (4:1 is "
+                        "common practice): the tolerance is "
                         "narrow beside the expanded uncertainty U, so many good units will be "
                         "UNDECIDED; a better instrument or more trials raise it",
             })

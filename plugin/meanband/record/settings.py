@@ -38,6 +38,8 @@ class Settings:
     #: What a check made with an instrument past its calibration due date does: "note" (a loud
     #: note) or "fail" (the test fails, the row is kept).
     overdue_calibration: str = defaults.OVERDUE_CALIBRATION
+    #: A check whose test uncertainty ratio (tolerance / 2U) is below this gets a note.
+    min_uncertainty_ratio: float = defaults.MIN_UNCERTAINTY_RATIO
 
     def merged(self, **overrides: Any) -> Settings:
         """A copy with the non-None ``overrides`` (call arguments), validated."""
@@ -68,6 +70,7 @@ def marker_settings(
     gc: bool | str | None = None,
     time_limit: float | str | None = None,
     overdue_calibration: str | None = None,
+    min_uncertainty_ratio: float | None = None,
 ) -> dict[str, Any]:
     """The signature of ``@pytest.mark.meanband(...)``: a wrong keyword is a TypeError."""
     return {k: v for k, v in locals().items() if v is not None}
@@ -145,6 +148,15 @@ def _clock(value: Any) -> str:
     return str(value)
 
 
+def _positive(value: Any) -> float:
+    if isinstance(value, bool):
+        raise ValueError("a positive number is needed, e.g. 4 for 4:1")
+    number = float(value)
+    if not (math.isfinite(number) and number > 0):
+        raise ValueError("a positive number is needed, e.g. 4 for 4:1")
+    return number
+
+
 def _choice(*words: str) -> Callable[[Any], str]:
     def check(value: Any) -> str:
         if value not in words:
@@ -179,6 +191,7 @@ _VALIDATORS: dict[str, Callable[[Any], Any]] = {
     "gc": _switch,
     "time_limit": _seconds(zero_ok=False),
     "overdue_calibration": _choice("note", "fail"),
+    "min_uncertainty_ratio": _positive,
 }
 
 
