@@ -150,11 +150,16 @@ def collect(
             reason = "time limit"
             break
     values = np.concatenate(parts) if parts else np.empty(0)
+    if last is None and values.size >= 2:
+        # Cut short before the first look: report what was seen (UNDECIDED on so few trials).
+        looks += 1
+        last = stop_or_go_on(values, planned.low, planned.high, confidence=settings.confidence,
+                             first_look=values.size)
     if last is None:
         raise TrialError(
-            f"n='until-decided' took only {values.size} trial(s) before "
+            f"n='until-decided' took only {values.size} trial before "
             f"{'the time limit' if reason == 'time limit' else 'max_n'} stopped it; it needs at "
-            f"least {max(first_look, 2)} to look: raise the limit"
+            "least 2 to judge: raise the limit"
         )
     return SequentialRun(values, planned, last, looks, size, cap, first_look, reason)
 
