@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import csv
+import datetime
 import math
 import os
 from pathlib import Path
@@ -11,7 +12,7 @@ import numpy as np
 
 from meanband.errors import TrialError
 
-__all__ = ["WHITESPACE", "read_column"]
+__all__ = ["WHITESPACE", "log_time_notes", "read_column", "read_timed_column"]
 
 #: ``delimiter=WHITESPACE`` splits on runs of spaces and tabs.
 WHITESPACE = " "
@@ -173,3 +174,86 @@ def _listing(names: list[str]) -> str:
     shown = ", ".join(repr(name) for name in names[:_MAX_SHOWN_NAMES])
     more = f" and {len(names) - _MAX_SHOWN_NAMES} more" if len(names) > _MAX_SHOWN_NAMES else ""
     return f"columns {shown}{more}"
+
+
+def read_timed_column(
+    path: str | os.PathLike[str],
+    column: str | int | None,
+    time_column: str | int,
+    *,
+    delimiter: str | None = None,
+    header: bool | None = None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Values of ``column`` and the reading times of ``time_column``, row for row.
+
+    A time is a number of seconds or an ISO 8601 date and time (``2026-12-02T09:15:30``); the
+    times come back as seconds since the first reading. A bad time raises :class:`TrialError`
+    naming its line, like a bad value.
+    """
+    values = read_column(path, column, delimiter=delimiter, header=header)
+    where = os.fspath(path)
+    lines = _content_lines(where)
+    sep = _delimiter(lines[0][1]) if delimiter is None else delimiter
+    rows = [(number, _split(text, sep)) for number, text in lines]
+    first_fields = rows[0][1]
+    if header is None:
+        header = not any(_is_number(field) for field in first_fields)
+    names = first_fields if header else None
+    data = rows[1:] if header else rows
+    index = _column_index(where, time_column, names, data[0][1], rows[0][0])
+    times = np.empty(len(data), dtype=np.float64)
+    for position, (number, fields) in enumerate(data):
+        if index >= len(fields):
+            raise TrialError(f"{where}, line {number}: the time column is missing; fix the row")
+        times[position] = _seconds(fields[index], where, number)
+    return values, times - times[0]
+
+
+def _seconds(text: str, where: str, number: int) -> float:
+    try:
+        return float(text)
+    except ValueError:
+        pass
+    try:
+        moment = datetime.datetime.fromisoformat(text)
+    except ValueError:
+        raise TrialError(
+            f"{where}, line {number}: {text!r} is not a time; write seconds or an ISO 8601 "
+            "date and time such as 2026-12-02T09:15:30"
+        ) from None
+    if moment.tzinfo is None:
+        moment = moment.replace(tzinfo=datetime.timezone.utc)
+    return moment.timestamp()
+
+
+#: A step between readings longer than this many times the median step is a gap in the log.
+GAP_FACTOR = 5.0
+
+
+def log_time_notes(times: np.ndarray, where: str = "the log") -> list[dict[str, str]]:
+    """Notes on a log's reading times: readings out of order, and gaps much longer than the
+    usual step (a paused logger, a reading lost), which break the steady series the interval
+    assumes."""
+    steps = np.diff(times)
+    notes = []
+    backwards = np.flatnonzero(steps < 0)
+    if backwards.size:
+        notes.append({
+            "code": "log-out-of-order",
+            "text": f"{where}: {backwards.size} reading(s) are earlier than the one before "
+                    f"(first after reading {int(backwards[0])}); check the logger's clock and the "
+                    "row order",
+        })
+    forward = steps[steps > 0]
+    if forward.size >= 3:
+        usual = float(np.median(forward))
+        gaps = np.flatnonzero(steps > GAP_FACTOR * usual)
+        if gaps.size:
+            longest = float(steps[gaps].max())
+            notes.append({
+                "code": "log-gaps",
+                "text": f"{where}: {gaps.size} gap(s) in the readings, the longest {longest:.4g} s "
+                        f"against a usual step of {usual:.4g} s: the series is not steady; find "
+                        "out what the logger missed",
+            })
+    return notes

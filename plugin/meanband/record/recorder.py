@@ -46,6 +46,7 @@ class Series:
         self._adaptive: adaptive.AdaptiveRun | None = None  # set by n="auto"
         self._instrument: dict[str, Any] | None = None  # set by sample(..., query=...)
         self._sequential: sequential.SequentialRun | None = None  # set by n="until-decided"
+        self._times: list[float] | None = None  # reading times, set by extend_from(time=...)
 
     # -- collecting -------------------------------------------------------------------------
 
@@ -253,16 +254,30 @@ class Series:
     def extend_from(
         self, path: str | os.PathLike[str], column: str | int | None = None, *,
         unit: str | None = None, delimiter: str | None = None, header: bool | None = None,
+        time: str | int | None = None,
     ) -> np.ndarray:
         """Record one column of a bench log (CSV or whitespace-separated; ``#`` comments).
 
         ``column`` is a header name or a 0-based index. A bad row raises TrialError with its
-        line number, and the series keeps exactly what it held before.
+        line number, and the series keeps exactly what it held before. ``time`` names the
+        column of reading times (seconds, or ISO 8601): the run chart plots against it, and
+        readings out of order or gaps in the log are notes.
         """
-        from meanband.collect.benchlog import read_column
+        from meanband.collect.benchlog import log_time_notes, read_column, read_timed_column
 
-        values = read_column(path, column, delimiter=delimiter, header=header)
+        if time is None:
+            values = read_column(path, column, delimiter=delimiter, header=header)
+            self.extend(values, unit=unit)
+            return values
+        if self._values.size:
+            raise TrialError(
+                "a log with a time column starts a series: this one already holds "
+                f"{self._values.size} trials; use trials.series('name') for the log"
+            )
+        values, times = read_timed_column(path, column, time, delimiter=delimiter, header=header)
         self.extend(values, unit=unit)
+        self._times = times.tolist()
+        self._timing_notes.extend(log_time_notes(times, os.fspath(path)))
         return values
 
     @property
@@ -370,6 +385,8 @@ class Series:
     ) -> ResultRow:
         if self._instrument is not None:
             extra = {**extra, "instrument": self._instrument}
+        if self._times is not None and len(self._times) == self._values.size:
+            extra = {**extra, "times": self._times}
         return build_row(
             nodeid=self.nodeid, series=self.name, unit=self.unit, source=self.source,
             values=self._values, warmup=self._warmup, decision=decision, notes=notes,

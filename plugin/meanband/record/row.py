@@ -318,6 +318,7 @@ class ResultRow(_RowCore, total=False):
     baseline: BaselineRecord
     suggestion: SuggestionRecord | None
     instrument: InstrumentRecord
+    times: list[float]
     run: int
     pooled: PooledRecord
 

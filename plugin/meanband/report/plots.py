@@ -333,7 +333,9 @@ def _draw_run(row: Mapping[str, Any], title: str) -> Any:
         ax.axvspan(0.5, w + 0.5, color="#eeeeee", zorder=0, label=f"warm-up ({w}, discarded)")
         ax.plot(np.arange(1, w + 1), warmup / factor, marker=".", linestyle="-", linewidth=0.6,
                 color="#999999", zorder=2)
-    index = np.arange(w + 1, w + values.size + 1)
+    times = row.get("times")
+    timed = isinstance(times, list) and len(times) == values.size and not w
+    index = np.asarray(times, dtype=float) if timed else np.arange(w + 1, w + values.size + 1)
     ax.plot(index, values / factor, marker=".", linestyle="-", linewidth=0.6, color="#2166ac",
             zorder=3, label=f"trials ({values.size})")
     pooled = row.get("pooled")
@@ -359,7 +361,7 @@ def _draw_run(row: Mapping[str, Any], title: str) -> Any:
         _band_edges(ax, decision["band"], factor, unit, np.concatenate(
             [values, warmup, np.asarray(shown, dtype=float)]) / factor, vertical=False)
         title += f" — {decision['verdict']}"
-    ax.set_xlabel("trial")
+    ax.set_xlabel("time since the first reading (s)" if timed else "trial")
     ax.set_ylabel(_axis_label(unit))
     ax.set_title(title, fontsize=9)
     ax.legend(fontsize=7, loc="best")
