@@ -45,6 +45,8 @@ def test_a_low_test_uncertainty_ratio_is_noted() -> None:
     # of a 0.08 wide tolerance: about 3.3:1.
     decision, notes = _check(InstrumentUncertainty.from_certificate(0.012, 2.0))
     ratio = 0.08 / (2 * decision.uncertainty.expanded)
+    assert decision.uncertainty_ratio == pytest.approx(ratio)
+    assert decision.to_dict()["rule"]["uncertainty_ratio"] == pytest.approx(ratio)
     (note,) = [n for n in notes if n["code"] == "low-uncertainty-ratio"]
     assert f"test uncertainty ratio {ratio:.2g}:1" in note["text"] and ratio < 4
     _, fine = _check(InstrumentUncertainty.from_certificate(0.002, 2.0))

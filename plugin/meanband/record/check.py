@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import datetime
-import math
 from collections.abc import Collection, Iterable, Mapping
 from typing import Any
 
@@ -76,17 +75,13 @@ def metrology_notes(
                     f"{calibration.due}: its stated uncertainty is no longer vouched for; "
                     "recalibrate it before this gate counts",
         })
-    band = decision.band
-    if math.isfinite(band.low) and math.isfinite(band.high) and budget.expanded > 0:
-        # Test uncertainty ratio: tolerance width over the width of the expanded uncertainty
-        # interval, (T_U - T_L) / 2U; 4:1 is common practice (no source).
-        ratio = (band.high - band.low) / (2.0 * budget.expanded)
-        if ratio < min_ratio:
-            notes.append({
-                "code": "low-uncertainty-ratio",
-                "text": f"test uncertainty ratio {ratio:.2g}:1, below {min_ratio:g}:1 (4:1 is "
-                        "common practice): the tolerance is "
-                        "narrow beside the expanded uncertainty U, so many good units will be "
-                        "UNDECIDED; a better instrument or more trials raise it",
-            })
+    ratio = decision.uncertainty_ratio
+    if ratio is not None and ratio < min_ratio:
+        notes.append({
+            "code": "low-uncertainty-ratio",
+            "text": f"test uncertainty ratio {ratio:.2g}:1, below {min_ratio:g}:1 (4:1 is "
+                    "common practice): the tolerance is narrow beside the expanded uncertainty "
+                    "U, so many good units will be UNDECIDED; a better instrument or more trials "
+                    "raise it",
+        })
     return notes

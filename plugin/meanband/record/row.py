@@ -179,10 +179,12 @@ class _RuleCore(TypedDict):
 class RuleRecord(_RuleCore, total=False):
     """``RuleOutcome.to_dict()``: an open acceptance edge is None; ``statement`` is the ILAC-G8
     statement of a rule given as a value (``"guarded:0.5"``, ``"specific-risk:0.01"``);
-    ``risks`` the rule's global risks (``GlobalRisks.to_dict()``) for a stated process."""
+    ``risks`` the rule's global risks (``GlobalRisks.to_dict()``) for a stated process;
+    ``uncertainty_ratio`` the test uncertainty ratio (tolerance / 2U), where it is defined."""
 
     statement: str
     risks: dict[str, Any]
+    uncertainty_ratio: float
 
 
 class TwoStageRecord(TypedDict):

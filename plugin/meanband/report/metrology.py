@@ -44,6 +44,9 @@ def _describe(
         parts.append(budget_words(budget, unit, scale, digits))
     if rule is not None:
         parts.append(rule_words(rule, unit, scale))
+    ratio = (rule or {}).get("uncertainty_ratio")
+    if ratio is not None:
+        parts.append(f"test uncertainty ratio {ratio:.2g}:1")
     calibration = (budget or {}).get("calibration")
     if calibration:
         certificate = f" (certificate {calibration['certificate']})" if calibration.get("certificate") else ""

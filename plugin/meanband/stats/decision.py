@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections.abc import Iterable
 from dataclasses import dataclass
@@ -39,7 +40,7 @@ from meanband.stats.uncertainty import (
 )
 from meanband.stats.verdict import Verdict
 
-__all__ = ["Decision", "decide", "edge_margin"]
+__all__ = ["Decision", "decide", "edge_margin", "tolerance_uncertainty_ratio"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -62,6 +63,13 @@ class Decision:
     power: float = defaults.POWER
     #: Consumer's and producer's risk of this rule for the stated production process, if any.
     risks: GlobalRisks | None = None
+
+    @property
+    def uncertainty_ratio(self) -> float | None:
+        """Test uncertainty ratio (T_U - T_L) / (2U) of a two-sided tolerance checked with an
+        instrument uncertainty (common practice: 4:1 or more); None for a one-sided limit or
+        without an instrument part."""
+        return tolerance_uncertainty_ratio(self.uncertainty, self.band)
 
     @property
     def passed(self) -> bool:
@@ -178,6 +186,9 @@ def decide(
             suggested = trials_needed(
                 spread, margin=margin, confidence=level, side=side, power=power
             )
+    ratio = tolerance_uncertainty_ratio(budget, band)
+    if ratio is not None:
+        outcome = dataclasses.replace(outcome, uncertainty_ratio=ratio)
     risks = None
     if process is not None:
         if budget is None:
@@ -215,3 +226,13 @@ def _valued_outcome(rule: DecisionRule, budget: UncertaintyBudget, band: Band) -
         false_reject_probability=reject if verdict is Verdict.FAIL else None,
         statement=conformity.statement,
     )
+
+
+def tolerance_uncertainty_ratio(budget: UncertaintyBudget | None, band: Band) -> float | None:
+    """(T_U - T_L) / (2U) of a two-sided tolerance with an instrument part in U (common
+    practice); None for a one-sided limit or without an instrument uncertainty."""
+    if budget is None or not budget.has_instrument or budget.expanded <= 0:
+        return None
+    if not (math.isfinite(band.low) and math.isfinite(band.high)):
+        return None
+    return (band.high - band.low) / (2.0 * budget.expanded)

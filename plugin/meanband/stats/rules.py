@@ -51,6 +51,8 @@ class RuleOutcome:
     #: The ILAC-G8 statement (pass, conditional pass, conditional fail, fail) of a rule given as
     #: a value (``stats/decision_rules.py``); None for the plain guarded and simple rules.
     statement: str | None = None
+    #: The check's test uncertainty ratio (tolerance / 2U), where it is defined.
+    uncertainty_ratio: float | None = None
 
     def to_dict(self) -> dict[str, Any]:
         """Builtin types only; an open acceptance edge is written as None."""
@@ -64,6 +66,8 @@ class RuleOutcome:
             "false_accept_probability": _float_or_none(self.false_accept_probability),
             "false_reject_probability": _float_or_none(self.false_reject_probability),
             **({} if self.statement is None else {"statement": self.statement}),
+            **({} if self.uncertainty_ratio is None
+               else {"uncertainty_ratio": float(self.uncertainty_ratio)}),
         }
 
 
