@@ -18,6 +18,7 @@ if TYPE_CHECKING:
     from meanband.stats.interval import Interval, critical_t
     from meanband.stats.methods import mean_interval
     from meanband.stats.planning import trials_needed
+    from meanband.stats.sequential import anytime_interval
     from meanband.stats.uncertainty import (
         Calibration,
         InstrumentUncertainty,
@@ -38,6 +39,7 @@ __all__ = [
     "TrialError",
     "UncertaintyBudget",
     "Verdict",
+    "anytime_interval",
     "assert_mean_within",
     "critical_t",
     "decide",
@@ -66,6 +68,7 @@ _HOME = {
     "critical_t": "stats.interval",
     "mean_interval": "stats.methods",
     "trials_needed": "stats.planning",
+    "anytime_interval": "stats.sequential",
     "Calibration": "stats.uncertainty",
     "InstrumentUncertainty": "stats.uncertainty",
     "UncertaintyBudget": "stats.uncertainty",
