@@ -22,8 +22,8 @@ from dataclasses import dataclass
 
 import meanband
 import numpy as np
-from meanband.interval import critical_t
-from meanband.skewed_intervals import (
+from meanband.stats.interval import critical_t
+from meanband.stats.skewed_intervals import (
     bootstrap_t_bounds,
     hall_bootstrap_bounds,
     hall_bounds,
@@ -324,7 +324,7 @@ def current_bootstrap(reps: int, resamples: int) -> list[str]:
 
     The samples are those of part B (same seeds); the resamples are drawn afresh.
     """
-    from meanband.methods import bca_mean_bounds
+    from meanband.stats.methods import bca_mean_bounds
 
     lines = ["The current method \"bootstrap\" (BCa, Efron 1987), budget false PASS % (SE), C = 0.95:"]
     for n in (20, 30):

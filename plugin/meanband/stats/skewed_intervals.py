@@ -1,14 +1,14 @@
 """Intervals of the arithmetic mean that correct for skewness: candidates for right-skewed timings.
 
-Each method has the signature of the methods in ``meanband.methods``: ``(x, confidence, side) ->
+Each method has the signature of the methods in ``meanband.stats.methods``: ``(x, confidence, side) ->
 Interval`` with ``side`` one of ``"two-sided"``, ``"upper"``, ``"lower"``, and a vectorised
 companion ``*_bounds(samples, confidence, side)`` that takes a 2-D array (one sample per row) and
 returns the arrays ``(low, high)``; the 1-D method is the companion applied to one row.
 
 Notation: xbar and s are the mean and the sample standard deviation (n - 1 divisor), sem = s /
 sqrt(n), m3 = sum((x - xbar)^3) / n the third central sample moment, g = m3 / s^3 the sample
-skewness, and T = (xbar - mu) / sem the Student statistic. These methods are not registered in
-``meanband.interval.METHODS``: that is the decision of the study in studies/skewed_budgets.py.
+skewness, and T = (xbar - mu) / sem the Student statistic. ``bootstrap-t`` and ``hall`` are
+registered in ``meanband.stats.methods.METHODS``; studies/skewed_budgets.py compares them.
 """
 
 from __future__ import annotations
@@ -19,8 +19,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from meanband.errors import TrialError
-from meanband.interval import Interval, critical_t
-from meanband.sample import as_sample, location_scale
+from meanband.stats.interval import Interval, critical_t
+from meanband.stats.sample import as_sample, location_scale
 
 __all__ = [
     "BOOTSTRAP_RESAMPLES",
@@ -174,8 +174,9 @@ def hall_statistic(t: np.ndarray, skewness: np.ndarray, n: int) -> np.ndarray:
     so that T1 rises with T everywhere: dT1/dT = (1 + g T/(3 sqrt n))^2 >= 0.
     """
     root_n = math.sqrt(n)
-    return t + skewness * t * t / (3.0 * root_n) + skewness**2 * t**3 / (27.0 * n) \
+    value: np.ndarray = t + skewness * t * t / (3.0 * root_n) + skewness**2 * t**3 / (27.0 * n) \
         + skewness / (6.0 * root_n)
+    return value
 
 
 def _hall_inverse(q: np.ndarray, skewness: np.ndarray, n: int) -> np.ndarray:
