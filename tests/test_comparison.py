@@ -56,29 +56,79 @@ def test_quick_callables_are_batched_alike() -> None:
     np.testing.assert_allclose(times.first / times.second, 1.5)
 
 
-def test_quickest_round_discards_a_descheduled_measurement() -> None:
+def test_a_descheduled_measurement_is_dropped_as_interference() -> None:
     machine = FakeMachine()
-    # Call 10 of "new" is hit by a 5 ms interruption; its pair keeps the undisturbed round.
+    # Call 10 of "new" is hit by a 5 ms interruption: one long measurement that no callable
+    # explains; its round is dropped and the pair keeps its other rounds.
     new = machine.work("new", 55_000, spikes={10: 5_000_000})
     old = machine.work("old", 50_000)
     times = time_pairs(new, old, 20, repeats=3, warmup=0, seed=3, clock=machine.clock)
+    assert times.dropped == 1
     np.testing.assert_allclose(times.first, 55e-6)
     result = check_ratio(times.first, times.second, at_most=1.05)
     assert result.verdict is Verdict.FAIL and result.interval.ratio == pytest.approx(1.1)
 
 
-def test_check_ratio_matches_paired_t_on_logs() -> None:
+def test_a_slow_path_on_some_calls_counts_in_the_ratio() -> None:
+    machine = FakeMachine()
+    # Every tenth call of "new" takes 8x as long (a slow path, mean 1.7x); the quickest round
+    # of 5 would hide it, the mean of all calls must not. Extremes all on one side are kept.
+    slow = {k: 7 * 50_000 for k in range(10, 400, 10)}
+    new = machine.work("new", 50_000, spikes=slow)
+    old = machine.work("old", 50_000)
+    times = time_pairs(new, old, 40, repeats=5, warmup=0, seed=5, clock=machine.clock)
+    assert times.dropped == 0
+    # 200 calls of new were timed after calibration's one call; those at 10, 20, ... are slow.
+    assert np.nanmean(times.first_rounds) == pytest.approx(50e-6 * (1 + 7 * 20 / 200), rel=1e-9)
+    result = check_ratio(times.first, times.second, at_most=1.05)
+    assert result.verdict is Verdict.FAIL, result.interval
+
+
+def test_check_ratio_matches_paired_fieller_by_hand() -> None:
     rng = np.random.default_rng(8)
     old = rng.lognormal(math.log(50e-6), 0.2, 40)
     new = old * rng.lognormal(math.log(1.03), 0.04, 40)
     result = check_ratio(new, old, at_most=1.05, confidence=0.9)
-    # Reference: scipy.stats.ttest_rel on the logs, confidence_interval() exponentiated.
-    ci = stats.ttest_rel(np.log(new), np.log(old)).confidence_interval(0.9)
-    assert result.interval.low == pytest.approx(math.exp(ci.low), rel=1e-12)
-    assert result.interval.high == pytest.approx(math.exp(ci.high), rel=1e-12)
-    expected = (Verdict.PASS if math.exp(ci.high) <= 1.05 else
-                Verdict.FAIL if math.exp(ci.low) > 1.05 else Verdict.UNDECIDED)
+    # Reference: Fieller (1954) for paired means, solved here the long way. The bounds are the
+    # ratios rho where the paired t statistic of new_i - rho old_i (scipy.stats.ttest_1samp)
+    # equals the two-sided 90% critical value.
+    from scipy.optimize import brentq
+
+    crit = stats.t.ppf(0.95, 39)
+
+    def excess(rho: float) -> float:
+        return float(stats.ttest_1samp(new - rho * old, 0.0).statistic) ** 2 - crit**2
+
+    ratio = new.mean() / old.mean()
+    assert result.interval.ratio == pytest.approx(ratio, rel=1e-12)
+    assert result.interval.low == pytest.approx(brentq(excess, 0.5, ratio), rel=1e-9)
+    assert result.interval.high == pytest.approx(brentq(excess, ratio, 2.0), rel=1e-9)
+    assert result.interval.estimand == "paired means"
+    high = result.interval.high
+    expected = (Verdict.PASS if high <= 1.05 else
+                Verdict.FAIL if result.interval.low > 1.05 else Verdict.UNDECIDED)
     assert result.verdict is expected
+
+
+def test_machine_drift_cancels_in_the_paired_means() -> None:
+    # Common practice, no source: a speed factor shared by both sides of each pair leaves the
+    # ratio of means exact and the interval of zero width.
+    speed = np.linspace(1.0, 3.0, 30)
+    result = check_ratio(1.08 * speed, speed, at_most=1.05)
+    assert result.interval.low == pytest.approx(1.08) and result.interval.high == pytest.approx(1.08)
+    assert result.verdict is Verdict.FAIL
+
+
+def test_interruptions_on_both_sides_are_dropped_and_one_sided_extremes_kept() -> None:
+    from meanband.stats.ratio import side_blind_outliers
+
+    base = np.ones((20, 5))
+    a, b = base.copy(), base.copy()
+    a[3, 1] = b[7, 2] = a[12, 4] = 100.0
+    assert side_blind_outliers(a, b).sum() == 3
+    a2 = base.copy()
+    a2[::2, 0] = 8.0  # ten long measurements, all of one callable: a slow path
+    assert not side_blind_outliers(a2, base).any()
 
 
 @pytest.mark.parametrize(
@@ -162,7 +212,7 @@ def test_trials_compare_in_a_suite(pytester: pytest.Pytester, run_suite, workers
     result.stdout.fnmatch_lines(["*TrialError: a comparison needs a limit*"])
     result.stdout.re_match_lines([
         r"test_parsers.py::test_v1_faster \[parse_v1 / parse_v2\]\s+60\s+0\.\d+ x\s+\[.*\]\s+"
-        r"95% paired-log \(time ratio\)\s+<= 0\.98 x\s+PASS",
+        r"95% paired-fieller \(time ratio\)\s+<= 0\.98 x\s+PASS",
         r"test_parsers.py::test_v2_not_slower \[parse_v2 / parse_v1\]\s+60\s+1\.\d+ x .* FAIL",
     ])
 

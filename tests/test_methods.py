@@ -30,7 +30,7 @@ def test_all_methods_registered() -> None:
 
 
 def test_unknown_method_names_the_choices() -> None:
-    with pytest.raises(TrialError, match="batch-means, bootstrap, cox, log-t, t"):
+    with pytest.raises(TrialError, match="batch-means, bootstrap, bootstrap-t, cox, hall, log-t, t"):
         mean_interval(TIMES, method="median")
 
 
@@ -226,3 +226,15 @@ def test_trial_suggestions_follow_the_long_run_spread_of_batch_means() -> None:
     # AR(1) phi = 0.7: long-run variance (1 + phi) / (1 - phi), about 5.7 times the plain one
     # (common practice); the sample ratio is rough, so only "clearly more" is asserted.
     assert batched.suggested_n > 2 * plain.suggested_n
+
+
+def test_skewness_corrected_methods_are_selectable_by_name() -> None:
+    from meanband.stats.skewed_intervals import bootstrap_t_interval, hall_interval
+
+    # Plumbing: the registered names give the skewed_intervals methods' own results (their
+    # reference checks against scipy.stats.bootstrap live in tests/test_skewed_intervals.py).
+    x = np.random.default_rng(3).lognormal(0.0, 0.5, 25)
+    for name, method in (("bootstrap-t", bootstrap_t_interval), ("hall", hall_interval)):
+        got = mean_interval(x, 0.95, side="upper", method=name)
+        want = method(x, 0.95, "upper")
+        assert (got.low, got.high, got.method) == (want.low, want.high, want.method)

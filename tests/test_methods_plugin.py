@@ -111,4 +111,4 @@ def test_x(trials):
 """)
     result = run_suite()
     assert result.ret != 0
-    result.stdout.fnmatch_lines(["*batch-means, bootstrap, cox, log-t, t*"])
+    result.stdout.fnmatch_lines(["*batch-means, bootstrap, bootstrap-t, cox, hall, log-t, t*"])

@@ -173,3 +173,42 @@ class TestEdgesAndErrors:
     def test_bad_sd(self, sd: float) -> None:
         with pytest.raises(TrialError, match="planning standard deviation"):
             trials_needed(sd, margin=0.1)
+
+
+# -- both edges of a two-sided band ----------------------------------------------------------------
+
+
+def test_power_inside_a_far_wide_band_is_the_one_sided_power() -> None:
+    from meanband.stats.planning import power_against_edge, power_inside_band
+
+    # Reference: scipy.stats.nct (through power_against_edge); with the far edge 1e3 sd away
+    # the two one-sided tests reduce to the near edge's test.
+    for effect, n in ((0.5, 10), (0.3, 40), (1.0, 5)):
+        one = float(power_against_edge(effect, n, 0.025))
+        assert power_inside_band(effect, 1e3, n, 0.025) == pytest.approx(one, abs=2e-4)
+
+
+def test_power_inside_a_narrow_band_matches_simulation() -> None:
+    from meanband.stats.planning import power_inside_band
+    from scipy import stats as sstats
+
+    # Reference: direct simulation of the two-sided t interval (common practice), 200,000
+    # normal samples; SE of the rate about 0.001.
+    rng = np.random.default_rng(19)
+    n, half = 20, 0.8
+    x = rng.normal(0.0, 1.0, (200_000, n))
+    reach = sstats.t.ppf(0.975, n - 1) * x.std(axis=1, ddof=1) / np.sqrt(n)
+    mean = x.mean(axis=1)
+    rate = np.mean((mean - reach > -half) & (mean + reach < half))
+    assert power_inside_band(half, half, n, 0.025) == pytest.approx(rate, abs=0.005)
+
+
+def test_centred_band_plan_uses_both_edges_and_delivers_its_power() -> None:
+    from meanband.stats.planning import power_inside_band
+
+    near_only = trials_needed(1.0, margin=0.6, side="two-sided", power=0.9)
+    both = trials_needed(1.0, margin=0.6, side="two-sided", power=0.9, other_margin=0.6)
+    assert near_only is not None and both is not None and both > near_only
+    # Before: the near-edge count delivers well under 90% when the mean sits mid-band.
+    assert power_inside_band(0.6, 0.6, near_only, 0.025) < 0.87
+    assert 0.9 <= power_inside_band(0.6, 0.6, both, 0.025) < 0.92

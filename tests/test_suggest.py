@@ -181,10 +181,11 @@ def test_trial_seconds_of_a_timing_row():
 @given(seed=st.integers(0, 2**32 - 1), n=st.integers(3, 60), shift=st.floats(-3.0, 3.0),
        two_sided=st.booleans())
 def test_suggestions_go_the_right_way_and_are_minimal(seed, n, shift, two_sided):
-    # Properties, with the power recomputed by planning.power_against_edge (noncentral t):
+    # Properties, with the power recomputed by planning.power_against_edge (noncentral t), or
+    # for a mean inside a two-sided band by planning.power_inside_band (both edges at once):
     # UNDECIDED asks for more; a smaller PASS count still reaches the power and one trial
     # fewer would not (unless min_n set it); FAIL asks for nothing.
-    from meanband.stats.planning import power_against_edge
+    from meanband.stats.planning import power_against_edge, power_inside_band
 
     values = np.random.default_rng(seed).normal(shift, 1.0, n)
     band = make_band(-4.0, 0.0) if two_sided else make_band(high=0.0)
@@ -201,13 +202,22 @@ def test_suggestions_go_the_right_way_and_are_minimal(seed, n, shift, two_sided)
     margin = min(abs(interval["mean"] - e) for e in (band.low, band.high) if math.isfinite(e))
     alpha = 0.025 if two_sided else 0.05
     effect = margin / interval["sd"]
+    mean = interval["mean"]
+    inside = two_sided and band.low < mean < band.high
+    far = max(band.high - mean, mean - band.low) / interval["sd"]
+
+    def power_at(count: int) -> float:
+        if inside:
+            return power_inside_band(effect, far, count, alpha)
+        return float(power_against_edge(effect, count, alpha))
+
     if verdict == "UNDECIDED":
         assert s.direction == "more" and s.n > n
     elif s.direction == "fewer":
         assert s.n < n
     if s.direction in ("more", "fewer") and s.n > max(2, n + 1 if verdict == "UNDECIDED" else 2):
-        assert power_against_edge(effect, s.n, alpha) >= 0.9
-        assert power_against_edge(effect, s.n - 1, alpha) < 0.9
+        assert power_at(s.n) >= 0.9
+        assert power_at(s.n - 1) < 0.9
 
 
 def test_instrument_uncertainty_can_forbid_a_count_the_t_test_alone_would_promise():

@@ -1,4 +1,4 @@
-"""Paired timing: two callables timed in interleaved pairs, in a random order within each pair.
+"""Paired timing: two callables timed in interleaved pairs, in a random order within each round.
 
 On a shared CI machine the speed of the whole machine drifts (frequency scaling, neighbours,
 thermal limits) by more than the effects worth gating on. Timing the two callables next to each
@@ -17,6 +17,7 @@ import numpy as np
 from meanband.collect.clock import get_clock
 from meanband.collect.timing import calibrate, quiet_gc, trial_ns
 from meanband.errors import TrialError
+from meanband.stats.ratio import side_blind_outliers
 from meanband.stats.sample import ArrayEquality
 
 __all__ = ["MAX_BATCH", "MIN_MEASUREMENT", "PairedTimes", "time_pairs"]
@@ -31,13 +32,18 @@ MAX_BATCH = 100_000
 
 @dataclass(frozen=True, eq=False)
 class PairedTimes(ArrayEquality):
-    """Seconds per call of two callables, pair by pair (each side's quickest round), and
-    whether ``first`` ran first in the pair's first round."""
+    """Seconds per call of two callables, pair by pair: the mean over the pair's rounds of all
+    calls, after dropping rounds an interruption spoiled (``dropped`` counts them); whether
+    ``first`` ran first in the pair's first round; and every round's measurement (``*_rounds``,
+    seconds per call, one row a pair, NaN where dropped)."""
 
     first: np.ndarray
     second: np.ndarray
     first_went_first: np.ndarray
     batch: int
+    first_rounds: np.ndarray
+    second_rounds: np.ndarray
+    dropped: int
 
 
 def time_pairs(
@@ -51,11 +57,12 @@ def time_pairs(
     clock: Callable[[], int] | None = None,
 ) -> PairedTimes:
     """Time ``n`` pairs; each pair is ``repeats`` rounds of one call batch of each callable, in
-    a random order per round, and keeps each side's quickest round.
+    a random order per round, and keeps the mean of every round's calls.
 
-    Interference from the rest of the machine (preemption, interrupts) only ever adds time, so
-    the quickest of a few adjacent rounds is the pair's undisturbed time and one descheduling
-    cannot throw a pair off (common practice in timing, from memory). Calls are batched (the
+    The mean of all calls is what the comparison bounds: a quickest round would hide a slow
+    path that some calls take. Interruptions of the machine (a descheduling costs milliseconds)
+    are told apart from a slow path because they fall on both sides alike: rounds they spoil
+    are dropped by ``meanband.stats.ratio.side_blind_outliers``. Calls are batched (the
     same batch size for both, calibrated by the timing engine) so each measurement lasts at least
     ``MIN_MEASUREMENT``; ``warmup`` pairs run first and are dropped. Garbage collection is off
     while timing. ``clock`` reads integer nanoseconds; by default the wall clock.
@@ -82,7 +89,18 @@ def time_pairs(
                     b[i, j] = trial_ns(second, batch, read)
                     a[i, j] = trial_ns(first, batch, read)
     scale = 1e-9 / batch
+    return paired_means(a[warmup:] * scale, b[warmup:] * scale, order[warmup:, 0].copy(), batch)
+
+
+def paired_means(
+    first_rounds: np.ndarray, second_rounds: np.ndarray, first_went_first: np.ndarray, batch: int
+) -> PairedTimes:
+    """Pair means of the rounds no interruption spoiled; a pair left with no round is dropped."""
+    spoiled = side_blind_outliers(first_rounds, second_rounds)
+    a = np.where(spoiled, np.nan, first_rounds)
+    b = np.where(spoiled, np.nan, second_rounds)
+    whole = ~np.all(spoiled, axis=1)
     return PairedTimes(
-        a[warmup:].min(axis=1) * scale, b[warmup:].min(axis=1) * scale,
-        order[warmup:, 0].copy(), batch,
+        np.nanmean(a[whole], axis=1), np.nanmean(b[whole], axis=1), first_went_first[whole],
+        batch, a, b, int(np.count_nonzero(spoiled)),
     )

@@ -1,4 +1,5 @@
-"""Interval methods for trials that are not normal: log-t, modified Cox, BCa bootstrap, batch means.
+"""Interval methods for trials that are not normal: log-t, modified Cox, BCa bootstrap, batch means,
+and the skewness-corrected bootstrap-t and Hall intervals (``skewed_intervals.py``).
 
 Each method takes validated trials, a confidence and a side, and returns an ``Interval`` whose
 ``estimand`` says what it bounds: the arithmetic ``"mean"`` or the ``"geometric mean"``.
@@ -16,6 +17,7 @@ from meanband import defaults
 from meanband.errors import TrialError
 from meanband.stats.interval import Interval, check_side, critical_t, t_interval
 from meanband.stats.sample import as_sample, check_confidence, location_scale
+from meanband.stats.skewed_intervals import bootstrap_t_interval, hall_interval
 
 __all__ = [
     "BOOTSTRAP_RESAMPLES",
@@ -249,6 +251,10 @@ METHODS: dict[str, IntervalMethod] = {
     "cox": cox_interval,
     "bootstrap": bootstrap_interval,
     "batch-means": batch_means_interval,
+    # Skewness-corrected intervals of the mean (docs/skewed-budgets.md): the studentised
+    # bootstrap (Efron 1981; Hall 1988) and Hall's transformation (Hall 1992).
+    "bootstrap-t": bootstrap_t_interval,
+    "hall": hall_interval,
 }
 
 

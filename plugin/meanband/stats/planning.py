@@ -10,7 +10,7 @@ from meanband import defaults
 from meanband.errors import TrialError
 from meanband.stats.sample import check_confidence, check_probability
 
-__all__ = ["power_against_edge", "trials_needed"]
+__all__ = ["power_against_edge", "power_inside_band", "trials_needed"]
 
 _N_MIN = 2
 
@@ -24,6 +24,7 @@ def trials_needed(
     side: str = "two-sided",
     power: float = defaults.POWER,
     n_max: int = 1_000_000,
+    other_margin: float | None = None,
 ) -> int | None:
     """Smallest trial count that meets a goal, given a planning standard deviation ``sd``.
 
@@ -35,7 +36,10 @@ def trials_needed(
       at which a one-sided t test at the edge rejects with probability ``power`` when the true
       mean sits ``margin`` away, from the noncentral t distribution. The test's level is
       1 - confidence for a one-sided budget (``side="upper"``/``"lower"``) and
-      (1 - confidence) / 2 per edge for a two-sided band.
+      (1 - confidence) / 2 per edge for a two-sided band. For a two-sided band with the mean
+      inside it, give the distance to the far edge as ``other_margin``: the n then makes the
+      whole interval land inside the band with probability ``power`` (both edges at once,
+      ``power_inside_band``), not just clear the near edge.
 
     Returns None when no n up to ``n_max`` meets the goal (for instance a zero margin).
     """
@@ -62,7 +66,42 @@ def trials_needed(
     if sd == 0:
         return _N_MIN
     alpha = (1.0 - level) / 2.0 if side == "two-sided" else 1.0 - level
+    if side == "two-sided" and other_margin is not None:
+        if not (math.isfinite(other_margin) and other_margin > 0):
+            raise TrialError(f"other_margin must be a positive finite distance, got {other_margin!r}")
+        far = float(other_margin) / sd
+        return _smallest_n(
+            lambda n: power_inside_band(margin / sd, far, n, alpha) >= power, n_max
+        )
     return _smallest_n(lambda n: power_against_edge(margin / sd, n, alpha) >= power, n_max)
+
+
+#: Quantile points of the chi distribution used to integrate over the sample sd.
+_SD_POINTS = 4000
+
+
+def power_inside_band(low_effect: float, high_effect: float, n: int, alpha: float) -> float:
+    """Exact probability that the two-sided t interval lies inside a band, which is the power of
+    the two one-sided tests (Schuirmann 1987) at level ``alpha`` each.
+
+    The true mean lies ``low_effect`` sd above the low edge and ``high_effect`` sd below the
+    high edge. Given the sample sd s, the mean is normal, so the probability is
+    Phi(sqrt(n) high - c s/sigma) - Phi(-sqrt(n) low + c s/sigma) where positive (c the t
+    quantile), averaged over s/sigma ~ sqrt(chi2(n-1)/(n-1)) (Owen 1965 gives the same
+    integral in closed form); the average is taken on a grid of the chi law's quantiles.
+    """
+    from scipy.stats import chi2, norm
+    from scipy.stats import t as student_t
+
+    df = float(n - 1)
+    critical = float(student_t.ppf(1.0 - alpha, df))
+    u = (np.arange(_SD_POINTS) + 0.5) / _SD_POINTS
+    ratio = np.sqrt(chi2.ppf(u, df) / df)
+    root_n = math.sqrt(n)
+    inside = norm.cdf(root_n * high_effect - critical * ratio) - norm.cdf(
+        -root_n * low_effect + critical * ratio
+    )
+    return float(np.mean(np.clip(inside, 0.0, None)))
 
 
 def power_against_edge(effect: float | np.ndarray, n: int | np.ndarray, alpha: float) -> np.ndarray:

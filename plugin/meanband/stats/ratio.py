@@ -23,10 +23,19 @@ __all__ = [
     "check_ratio",
     "judge_ratio",
     "mean_difference",
+    "paired_mean_ratio_interval",
     "paired_ratio_interval",
     "parse_fraction",
     "ratio_interval",
+    "side_blind_outliers",
 ]
+
+#: A measurement longer than this many times its side's median is a candidate interruption
+#: (a descheduling costs a time slice, milliseconds, against measurements of tens of µs).
+INTERRUPTION_FENCE = 5.0
+#: Candidates are dropped only when they fall on both sides alike; a two-sided binomial test
+#: below this level says they belong to one callable (a slow path) and they are kept.
+SIDE_BLIND_ALPHA = 0.01
 
 #: How the ratio interval is computed: on the log scale (Welch 1947 on log values, for positive
 #: data such as timings), by Fieller's theorem (Fieller 1954) or by the delta method.
@@ -53,7 +62,8 @@ class RatioInterval:
 
     ``estimand`` says what the ratio is of: ``"geometric means"`` for the log method (equal to the
     ratio of means when both samples have the same spread on the log scale), ``"means"`` for
-    Fieller and the delta method, ``"paired geometric means"`` for interleaved pairs. ``bounded``
+    Fieller and the delta method, ``"paired geometric means"`` for the paired log ratios,
+    ``"paired means"`` for the paired Fieller interval of the in-run comparison. ``bounded``
     is False when the data cannot bound the ratio (Fieller with a baseline mean that is not
     clearly away from zero); then ``low`` is -inf and ``high`` +inf.
     """
@@ -267,6 +277,82 @@ def paired_ratio_interval(
     )
 
 
+def paired_mean_ratio_interval(
+    current: Iterable[float] | np.ndarray,
+    baseline: Iterable[float] | np.ndarray,
+    confidence: float = defaults.CONFIDENCE,
+) -> RatioInterval:
+    """Interval of the ratio of means ``sum(current) / sum(baseline)`` from paired trials.
+
+    Fieller's theorem for paired data (Fieller 1954): the set of rho with
+    ``(mean(c) - rho mean(b))^2 <= t^2 var(c_i - rho b_i) / n``, t with n - 1 df. Exact for
+    bivariate-normal pairs. Every call counts, so a slow path that some calls take moves the
+    estimate (the ratio of geometric means or of quickest rounds hides it). Drift of the whole
+    machine multiplies both sides of a pair alike, c_i = s_i a, b_i = s_i b, and cancels in the
+    pivot c_i - rho b_i at rho = a / b, as in the log-ratio analysis.
+    """
+    level = check_confidence(confidence)
+    xc, xb = as_sample(current, minimum=2), as_sample(baseline, minimum=2)
+    if xc.size != xb.size:
+        raise TrialError(
+            f"paired trials need the same count on both sides, got {xc.size} and {xb.size}"
+        )
+    n = xc.size
+    mean_c, mean_b = float(np.mean(xc)), float(np.mean(xb))
+    if mean_b <= 0.0:
+        raise TrialError("the ratio of paired means needs a positive baseline mean (timings)")
+    cov = np.cov(np.vstack([xc, xb]), ddof=1)
+    vc, vb, vcb = float(cov[0, 0]) / n, float(cov[1, 1]) / n, float(cov[0, 1]) / n
+    df = float(n - 1)
+    crit = _two_sided_t(level, df)
+    t2 = crit**2
+    ratio = mean_c / mean_b
+    # Quadratic in rho: (m_b^2 - t^2 v_b) rho^2 - 2 (m_c m_b - t^2 v_cb) rho + (m_c^2 - t^2 v_c) <= 0.
+    a = mean_b**2 - t2 * vb
+    half_b = mean_c * mean_b - t2 * vcb
+    c = mean_c**2 - t2 * vc
+    discriminant = half_b**2 - a * c
+    if a <= 0.0 or discriminant < 0.0:
+        return RatioInterval(
+            ratio, -math.inf, math.inf, level, "paired-fieller", df, n, n, mean_c, mean_b,
+            "paired means", bounded=False,
+        )
+    root = math.sqrt(discriminant)
+    return RatioInterval(
+        ratio, (half_b - root) / a, (half_b + root) / a, level, "paired-fieller", df, n, n,
+        mean_c, mean_b, "paired means",
+    )
+
+
+def side_blind_outliers(
+    first: np.ndarray,
+    second: np.ndarray,
+    *,
+    fence: float = INTERRUPTION_FENCE,
+    alpha: float = SIDE_BLIND_ALPHA,
+) -> np.ndarray:
+    """Which rounds an interruption of the machine spoiled: a boolean mask over the rounds.
+
+    ``first`` and ``second`` hold one measurement per round (any shape, the same for both).
+    Interference from the rest of the machine does not know which callable runs, and the order
+    within a round is random, so its long measurements fall on both sides alike; a slow path
+    belongs to one callable. A measurement above ``fence`` times its side's median is a
+    candidate; the candidates' rounds are dropped unless a two-sided binomial test (p = 1/2,
+    common practice) at ``alpha`` says they pile up on one side, in which case they are a
+    property of that callable and all are kept. Candidates too few to tell (one or two) are
+    taken for interruptions: a slow path that rare and that long is below what n pairs resolve.
+    """
+    from scipy.stats import binomtest
+
+    a, b = np.asarray(first, dtype=float), np.asarray(second, dtype=float)
+    long_a = a > fence * np.median(a)
+    long_b = b > fence * np.median(b)
+    k_a, k_b = int(np.count_nonzero(long_a)), int(np.count_nonzero(long_b))
+    if k_a + k_b == 0 or binomtest(k_a, k_a + k_b, 0.5).pvalue < alpha:
+        return np.zeros(a.shape, dtype=bool)
+    return np.asarray(long_a | long_b)
+
+
 def judge_ratio(interval: RatioInterval, low: float = -math.inf, high: float = math.inf) -> Verdict:
     """PASS when the ratio interval lies inside ``[low, high]``, FAIL when wholly outside it,
     UNDECIDED when it straddles an edge or is unbounded."""
@@ -321,8 +407,9 @@ def check_ratio(
     at_least: float | None = None,
     confidence: float = defaults.CONFIDENCE,
 ) -> RatioCheck:
-    """Judge the paired ratio ``first / second``: PASS when its two-sided interval lies in
-    ``[at_least, at_most]``, FAIL when wholly outside, UNDECIDED when it straddles an edge."""
+    """Judge the ratio of paired means ``first / second``: PASS when its two-sided interval
+    (``paired_mean_ratio_interval``) lies in ``[at_least, at_most]``, FAIL when wholly outside,
+    UNDECIDED when it straddles an edge."""
     if at_most is None and at_least is None:
         raise TrialError(
             "a comparison needs a limit: at_most= (e.g. 1.05 for 'at most 5% slower') "
@@ -332,7 +419,7 @@ def check_ratio(
     low = -math.inf if at_least is None else _limit(at_least, "at_least")
     if low > high:
         raise TrialError(f"at_least={at_least!r} lies above at_most={at_most!r}; swap them")
-    interval = paired_ratio_interval(first, second, confidence)
+    interval = paired_mean_ratio_interval(first, second, confidence)
     return RatioCheck(judge_ratio(interval, low, high), interval, low, high)
 
 

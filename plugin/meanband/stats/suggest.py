@@ -8,7 +8,7 @@ from typing import Any
 
 from meanband import defaults
 from meanband.errors import TrialError
-from meanband.stats.planning import power_against_edge, trials_needed
+from meanband.stats.planning import power_against_edge, power_inside_band, trials_needed
 from meanband.stats.sample import check_confidence, check_probability
 from meanband.stats.verdict import Verdict
 from meanband.units import SECONDS, format_value
@@ -85,7 +85,8 @@ def suggest_trials(
 ) -> Suggestion | None:
     """The count that decides a check at ``power``, from its mean, sd and band.
 
-    The count is the one-sample t test's at the edge nearest the mean, with the effect
+    The count is the one-sample t test's at the edge nearest the mean (for a mean inside a
+    two-sided band, the two one-sided tests' at both edges at once), with the effect
     (mean - edge) / sd taken from this run (noncentral t; see ``planning.trials_needed``). A
     FAIL gets no suggestion: the interval already lies wholly outside the band, and more
     trials only confirm it. A PASS whose count could shrink by at least ``MIN_SAVING`` of its
@@ -112,12 +113,15 @@ def suggest_trials(
     side = "two-sided" if len(edges) == 2 else ("upper" if math.isfinite(high) else "lower")
     margin = min(abs(mean - edge) for edge in edges)
     alpha = (1.0 - level) / 2.0 if side == "two-sided" else 1.0 - level
-    power_now = _power(margin, sd, n, alpha)
+    # A mean inside a two-sided band must clear both edges at once: plan with both.
+    far = max(high - mean, mean - low) if side == "two-sided" and low < mean < high else None
+    power_now = _power(margin, sd, n, alpha, far)
     floor = max(int(min_n), 2)
 
     if isinstance(instrument_count, str):
         needed = trials_needed(
-            sd, margin=margin, confidence=level, side=side, power=power, n_max=_N_CEILING
+            sd, margin=margin, confidence=level, side=side, power=power, n_max=_N_CEILING,
+            other_margin=far,
         )
     else:
         needed = instrument_count
@@ -174,7 +178,9 @@ def suggest_trials(
     return Suggestion(n, reason, "keep", n, power, power_now)
 
 
-def _power(margin: float, sd: float, n: int, alpha: float) -> float:
+def _power(margin: float, sd: float, n: int, alpha: float, far: float | None = None) -> float:
     if sd == 0:
         return 1.0 if margin > 0 else 0.0
+    if far is not None:
+        return power_inside_band(margin / sd, far / sd, n, alpha)
     return float(power_against_edge(margin / sd, n, alpha))
