@@ -172,17 +172,9 @@ def dumps(report: Mapping[str, Any], *, indent: int | None = None) -> str:
 
 def write_report(report: Mapping[str, Any], path: str | os.PathLike[str]) -> Path:
     """Write ``report`` to ``path`` atomically (a reader never sees half a file)."""
-    target = Path(path)
-    text = dumps(report)
-    target.parent.mkdir(parents=True, exist_ok=True)
-    partial = target.with_name(f".{target.name}.partial")
-    try:
-        partial.write_text(text, encoding="utf-8")
-        os.replace(partial, target)
-    except OSError:
-        partial.unlink(missing_ok=True)
-        raise
-    return target
+    from meanband.store.atomic import write_atomic
+
+    return write_atomic(path, dumps(report))
 
 
 # --- reading -----------------------------------------------------------------------------------
