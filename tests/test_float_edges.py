@@ -77,3 +77,12 @@ def test_negative_timings_are_an_error(pytester: pytest.Pytester, run_suite) -> 
     result = run_suite()
     result.stdout.fnmatch_lines(["*TrialError: 1 of 4 timings are negative*"])
     assert result.ret == pytest.ExitCode.TESTS_FAILED
+
+
+def test_confidence_above_one_suggests_only_a_percentage() -> None:
+    # confidence=1.5 used to suggest "did you mean 0.015?".
+    with pytest.raises(TrialError) as caught:
+        mean_interval([1.0, 2.0, 3.0], confidence=1.5)
+    assert "did you mean" not in str(caught.value) and "1.5" in str(caught.value)
+    with pytest.raises(TrialError, match=r"did you mean 0\.99\?"):
+        mean_interval([1.0, 2.0, 3.0], confidence=99)

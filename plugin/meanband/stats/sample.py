@@ -96,7 +96,9 @@ def check_probability(value: object, what: str = "confidence") -> float:
     except (TypeError, ValueError) as exc:
         raise TrialError(f"{what} must be a number between 0 and 1, got {value!r}") from exc
     if not (0.0 < level < 1.0) or math.isnan(level):
-        hint = f"; did you mean {level / 100:g}?" if 1.0 < level < 100.0 else ""
+        # A percentage such as 95 or 99.9 was meant as a fraction; 1.5 is no percentage of a
+        # level anyone uses, and "0.015" would mislead.
+        hint = f"; did you mean {level / 100:g}?" if 50.0 <= level < 100.0 else ""
         raise TrialError(f"{what} must lie strictly between 0 and 1, got {value!r}{hint}")
     return level
 
