@@ -190,6 +190,9 @@ def loads(text: str, *, source: str = "<report>") -> dict[str, Any]:
         document = json.loads(text, parse_constant=_refuse_constant)
     except ValueError as exc:
         raise ReportError(f"{source}: not a JSON report: {exc}") from exc
+    except RecursionError as exc:
+        raise ReportError(f"{source}: not a JSON report: its values are nested too deeply to "
+                          "read (a report is a few levels deep); was the right file given?") from exc
     validate_report(document, source=source)
     document["rows"] = decode_rows(document["rows"])
     return document  # type: ignore[no-any-return]
