@@ -204,3 +204,10 @@ def test_any_row_survives_the_round_trip(values, warmup, band, series):
     (back,) = report_json.loads(text)["rows"]
     back.pop("run")
     assert same(row, back)
+
+
+def test_deeply_nested_json_is_a_report_error_not_a_recursion_error() -> None:
+    from meanband.store.report_json import ReportError, loads
+
+    with pytest.raises(ReportError, match="nested too deeply"):
+        loads("[" * 100_000 + "]" * 100_000, source="deep.json")

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import sys
 from collections.abc import Sequence
 
@@ -38,7 +39,20 @@ def main(argv: Sequence[str] | None = None) -> int:
     if handler is None:
         parser.print_help(sys.stderr)
         return 2
-    return int(handler(args) or 0)
+    try:
+        status = int(handler(args) or 0)
+        sys.stdout.flush()  # inside the try: a closed pipe shows here, not at interpreter exit
+    except BrokenPipeError:
+        # The reader went away (``meanband report ... | head``): end quietly, as Unix tools do.
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return _CLOSED_PIPE
+    return status
+
+
+#: Exit status when the reader of standard output closed it early: 128 + SIGPIPE, as a shell
+#: reports a tool that the signal ended.
+_CLOSED_PIPE = 141
 
 
 if __name__ == "__main__":  # pragma: no cover

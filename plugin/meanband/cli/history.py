@@ -7,6 +7,7 @@ import csv
 import io
 import json
 import math
+import os
 import sys
 from collections.abc import Callable, Sequence
 from pathlib import Path
@@ -113,7 +114,7 @@ def _guarded(command: Callable[[argparse.Namespace], int]) -> Callable[[argparse
 
 
 def _list(args: argparse.Namespace) -> int:
-    with HistoryStore(args.store, create=False) as store:
+    with HistoryStore(args.store, create=False, read_only=True) as store:
         runs = store.runs()
     if not runs:
         print(f"no runs in {args.store}")
@@ -130,7 +131,7 @@ def _list(args: argparse.Namespace) -> int:
 
 
 def _show(args: argparse.Namespace) -> int:
-    with HistoryStore(args.store, create=False) as store:
+    with HistoryStore(args.store, create=False, read_only=True) as store:
         run = store.find_run(args.run)
         checks = store.checks(run.id)
     print(_run_heading(run))
@@ -161,7 +162,7 @@ def _compare(args: argparse.Namespace) -> int:
         max_change=parse_fraction(args.max_change, "--max-change"),
     )
     confidence = check_confidence(args.confidence)
-    with HistoryStore(args.store, create=False) as store:
+    with HistoryStore(args.store, create=False, read_only=True) as store:
         run_a, run_b = store.find_run(args.run_a), store.find_run(args.run_b)
         checks_a = {c.key: c for c in store.checks(run_a.id)}
         checks_b = {c.key: c for c in store.checks(run_b.id)}
@@ -202,17 +203,21 @@ def _compare(args: argparse.Namespace) -> int:
 
 
 def _export(args: argparse.Namespace) -> int:
-    with HistoryStore(args.store, create=False) as store:
+    with HistoryStore(args.store, create=False, read_only=True) as store:
         run = store.find_run(args.run)
         checks = store.checks(run.id)
     text = _as_json(run, checks) if args.format == "json" else _as_csv(run, checks)
     if args.output == "-":
         sys.stdout.write(text)
         return 0
+    from meanband.store.atomic import write_atomic
+
     try:
-        Path(args.output).write_text(text, encoding="utf-8")
+        write_atomic(args.output, text)
     except OSError as exc:
-        raise StoreError(f"cannot write {args.output}: {exc}") from exc
+        reason = os.strerror(exc.errno) if exc.errno else str(exc)
+        raise StoreError(f"cannot write {args.output}: {reason}; choose a writable path with "
+                         "--output") from exc
     print(f"wrote run {run.id} ({len(checks)} checks) to {args.output}")
     return 0
 

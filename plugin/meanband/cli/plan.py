@@ -89,7 +89,7 @@ def rows_from_store(path: str | Path, run: str | None = None) -> tuple[list[Row]
             f"no history store at {path}; record runs with --meanband-record, point --store at "
             "the store, or read rows from a file with --rows FILE"
         )
-    with HistoryStore(path, create=False) as store:
+    with HistoryStore(path, create=False, read_only=True) as store:
         info = store.find_run(run)
         rows = []
         for check in store.checks(info.id):

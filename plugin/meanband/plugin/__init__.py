@@ -176,37 +176,72 @@ def _junit_properties(row: ResultRow, index: int | None) -> list[tuple[str, obje
 
 
 class SummaryPlugin:
-    """Collects result rows on the controller and prints the summary at the end."""
+    """Collects result rows on the controller and prints the summary at the end.
+
+    Every call of meanband's own hooks goes through ``isolation.call_isolated``: a failing
+    exporter or third-party hook becomes one error line, never a lost test result.
+    """
 
     def __init__(self, config: pytest.Config) -> None:
         self.config = config
         self.rows: list[ResultRow] = []
+        self.session: pytest.Session | None = None
+
+    def pytest_sessionstart(self, session: pytest.Session) -> None:
+        self.session = session
+
+    def pytest_deselected(self, items: list[pytest.Item]) -> None:
+        from meanband.plugin.selection import count_deselected
+
+        count_deselected(self.config, len(items))
 
     def pytest_runtest_logreport(self, report: pytest.TestReport) -> None:
+        from meanband.plugin.isolation import call_isolated, failures
+        from meanband.record.row import plain_row
+
         for row in getattr(report, "meanband_rows", None) or ():
-            self.config.hook.pytest_meanband_result(config=self.config, row=row)
-            self.rows.append(row)
+            call_isolated(self.config, "pytest_meanband_result", {"config": self.config, "row": row})
+            clean, refused = plain_row(row)
+            for message in refused:
+                failures(self.config).add("a key added to a result row", message)
+            self.rows.append(clean)
 
     def pytest_sessionfinish(self, session: pytest.Session) -> None:
+        from meanband.plugin.isolation import call_isolated, settle_exit_status
+
         # Called even with no rows: a shard that ran no checks still writes its (empty) files.
-        self.config.hook.pytest_meanband_session_finish(config=self.config, rows=self.rows)
+        call_isolated(self.config, "pytest_meanband_session_finish",
+                      {"config": self.config, "rows": self.rows})
+        settle_exit_status(session)
 
     def pytest_terminal_summary(self, terminalreporter: pytest.TerminalReporter) -> None:
-        from meanband.report.terminal import format_summary
+        from meanband.plugin.isolation import call_isolated, failures, settle_exit_status
 
+        lines: list[str] = []
         verbosity = self.config.get_verbosity()
-        lines = format_summary(self.rows, verbosity)
+        try:
+            from meanband.report.terminal import format_summary
+
+            lines = format_summary(self.rows, verbosity)
+        except Exception as exc:  # the test results above must stay readable
+            failures(self.config).add("printing the meanband summary",
+                                      f"{type(exc).__name__}: {exc}")
         # Features add what only the live session knows (a run recorded, a plan written, ...)
         # through one hook; everything that rows alone say is in format_summary.
-        for extra in self.config.hook.pytest_meanband_summary_lines(config=self.config, rows=self.rows):
+        for extra in call_isolated(self.config, "pytest_meanband_summary_lines",
+                                   {"config": self.config, "rows": self.rows}):
             lines.extend(extra or ())
-        if not lines:
-            return
-        if verbosity < 0 or not self.rows:
-            for line in lines:
-                if line or self.rows:
+        errors = failures(self.config).lines
+        if self.session is not None:
+            settle_exit_status(self.session)  # a summary hook may have failed just now
+        if lines:
+            if verbosity < 0 or not self.rows:
+                for line in lines:
+                    if line or self.rows:
+                        terminalreporter.write_line(line)
+            else:
+                terminalreporter.write_sep("=", "meanband")
+                for line in lines:
                     terminalreporter.write_line(line)
-            return
-        terminalreporter.write_sep("=", "meanband")
-        for line in lines:
-            terminalreporter.write_line(line)
+        for line in errors:
+            terminalreporter.write_line(line, red=True, bold=True)

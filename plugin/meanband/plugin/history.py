@@ -30,6 +30,8 @@ _HELP = {
     "regressed, e.g. '5%' (default 5%).",
     "max_change": "How far a measured value (not a timing) may move from its baseline either "
     "way, e.g. '2%' (default 5%).",
+    "record_partial": "Record the run even when it ran only part of its tests (-x stopped it, "
+    "or -k, -m, --lf or --deselect narrowed it); by default such a run is not recorded.",
     "store_timeout": "Seconds to wait for another process that is writing the history store "
     "(default 10).",
 }
@@ -47,6 +49,8 @@ def pytest_addoption(parser: pytest.Parser) -> None:
                     default=None, help=_HELP["max_increase"])
     group.addoption("--meanband-max-change", dest="meanband_max_change", metavar="FRACTION",
                     default=None, help=_HELP["max_change"])
+    group.addoption("--meanband-record-partial", dest="meanband_record_partial",
+                    action="store_true", default=False, help=_HELP["record_partial"])
     group.addoption("--meanband-store-timeout", dest="meanband_store_timeout", metavar="SECONDS",
                     default=None, help=_HELP["store_timeout"])
     for name in ("store", "max_increase", "max_change", "store_timeout"):
@@ -132,7 +136,7 @@ class HistoryPlugin:
     def load_baseline(self, ref: str) -> None:
         from meanband.store.history import HistoryStore
 
-        with HistoryStore(self.store, create=False, timeout=self.timeout) as store:
+        with HistoryStore(self.store, create=False, read_only=True, timeout=self.timeout) as store:
             self.baseline_run = store.find_run(ref)
             self.baseline_checks = {c.key: c for c in store.checks(self.baseline_run.id)}
 
@@ -173,18 +177,30 @@ class HistoryPlugin:
         from meanband.stats.regression import REGRESSED
 
         failed = any((r.get("baseline") or {}).get("status") == REGRESSED for r in rows)
-        status = self.session.exitstatus if self.session is not None else pytest.ExitCode.OK
         if self.record is not None and rows:  # a run without checks is no baseline
-            if status in (pytest.ExitCode.OK, pytest.ExitCode.TESTS_FAILED):
+            reason = self._not_recorded_reason()
+            if reason is None:
                 failed |= not self._record(rows)
             else:
-                # An interrupted run holds only some checks: a poor baseline for later runs.
-                self.record_skipped = (
-                    f"the session ended early (exit status {int(status)}), so this run was not "
-                    "recorded"
-                )
+                self.record_skipped = reason
         if failed and self.session is not None and self.session.exitstatus == pytest.ExitCode.OK:
             self.session.exitstatus = pytest.ExitCode.TESTS_FAILED
+
+    def _not_recorded_reason(self) -> str | None:
+        """Why this run makes no baseline: it did not run, or ran only part of, its selection."""
+        from meanband.plugin.selection import not_run_reason, partial_reason
+
+        if self.session is None:
+            return None
+        reason = not_run_reason(self.session)
+        if reason is None and not self.config.getoption("meanband_record_partial"):
+            partial = partial_reason(self.session)
+            if partial is not None:
+                reason = (f"{partial}, so this run was not recorded; add "
+                          "--meanband-record-partial to record it anyway")
+        elif reason is not None:
+            reason += ", so this run was not recorded"
+        return reason
 
     def _record(self, rows: list[dict[str, Any]]) -> bool:
         from meanband.store.history import HistoryStore, StoreError

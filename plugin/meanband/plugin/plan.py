@@ -156,6 +156,9 @@ class PlanPlugin:
             self.written = write_plan(path, entries, power=power)
         except OSError as exc:
             self.write_error = f"could not write the plan file {path}: {exc}"
+            from meanband.plugin.isolation import failures
+
+            failures(self.config).output_failed = True  # a requested output failed: exit 1
             self.written = None
 
     def pytest_meanband_summary_lines(self, config: pytest.Config, rows: list[dict[str, Any]]

@@ -178,6 +178,10 @@ class ReportWriter:
         self.config = config
         self.settings = settings
         self.messages: list[tuple[str, dict[str, bool]]] = []
+        self.session: pytest.Session | None = None
+
+    def pytest_sessionstart(self, session: pytest.Session) -> None:
+        self.session = session
 
     def _say(self, text: str, **markup: bool) -> None:
         """Keep a line for the end of the terminal summary; problems show even under -q."""
@@ -192,8 +196,15 @@ class ReportWriter:
     def pytest_meanband_session_finish(self, config: pytest.Config, rows: list[ResultRow]) -> None:
         if hasattr(config, "workerinput"):
             return
+        from meanband.plugin.selection import not_run_reason
         from meanband.store.report_json import ReportError
 
+        reason = None if self.session is None else not_run_reason(self.session)
+        if reason is not None:
+            # An earlier good report is worth more than an empty one from a run that ran nothing.
+            self._say(f"meanband: no report files written: {reason}; any earlier files were "
+                      "left as they were", yellow=True)
+            return
         s = self.settings
         steps: list[tuple[str, Callable[[], None]]] = []
         if s.report is not None:
@@ -202,12 +213,20 @@ class ReportWriter:
             steps.append(("Markdown summary", lambda: self._write_markdown(rows)))
         if s.plots is not None:
             steps.append(("plots", lambda: self._write_plots(rows)))
+        from meanband.plugin.isolation import failures
+
         for what, step in steps:
             try:
                 step()
             except (ReportError, OSError) as exc:
                 # Every other file is still written; the failure is shown, never swallowed.
-                self._say(f"meanband: could not write the {what}: {exc}", red=True, bold=True)
+                self._say(f"meanband: could not write the {what}: {_in_words(exc)}", red=True,
+                          bold=True)
+                failures(config).output_failed = True
+            except Exception as exc:  # e.g. a row value a plot cannot draw
+                self._say(f"meanband: could not write the {what}: {type(exc).__name__}: {exc}; "
+                          "the other files were written", red=True, bold=True)
+                failures(config).output_failed = True
 
     def _write_report(self, rows: list[ResultRow]) -> None:
         from meanband.store import report_json
@@ -251,3 +270,11 @@ def _shown(path: Path) -> str:
         return os.path.relpath(path)
     except ValueError:  # another drive on Windows
         return str(path)
+
+
+def _in_words(exc: BaseException) -> str:
+    """An OSError as words and the file it is about ("Not a directory: taken/out.json")."""
+    if isinstance(exc, OSError) and exc.errno:
+        where = f": {exc.filename}" if exc.filename else ""
+        return f"{os.strerror(exc.errno)}{where}; choose a writable location"
+    return str(exc)

@@ -248,6 +248,13 @@ class Series:
     def extend(self, values: Iterable[float] | np.ndarray, *, unit: str | None = None) -> None:
         """Record values measured elsewhere; nothing is recorded if any value is bad."""
         clean = as_sample(values, minimum=0)
+        if (unit if unit is not None else self.unit) == "s" and clean.size and clean.min() < 0:
+            bad = int(np.count_nonzero(clean < 0))
+            raise TrialError(
+                f"{bad} of {clean.size} timings are negative (smallest {clean.min():.4g} s); a "
+                "duration cannot be below zero, so the clock or the subtraction that made them "
+                "is wrong: fix it before checking a budget"
+            )
         self._claim(unit, "values")
         self._append(clean)
 

@@ -9,6 +9,7 @@ test holds the two together. :func:`build_row` is the one place that makes a row
 
 from __future__ import annotations
 
+import os
 from collections.abc import Mapping, Sequence
 from typing import TYPE_CHECKING, Any, TypedDict
 
@@ -399,3 +400,42 @@ def _floats(values: Sequence[float] | np.ndarray) -> list[float]:
     import numpy  # not at module level: the plugin imports this module and must stay cheap
 
     return numpy.asarray(values, dtype=numpy.float64).tolist()  # type: ignore[no-any-return]
+
+
+def plain_value(value: Any, where: str) -> Any:
+    """``value`` as plain JSON data: numpy scalars and arrays become builtins, paths strings.
+
+    Anything else that is not None, bool, int, float, str, a list or a dict with string keys is
+    a :class:`TypeError` naming ``where``: rows cross from xdist workers and go into JSON files.
+    """
+    if value is None or isinstance(value, (bool, int, float, str)):
+        return value
+    if isinstance(value, Mapping):
+        out = {}
+        for key, item in value.items():
+            if not isinstance(key, str):
+                raise TypeError(f"{where} has the key {key!r} of type {type(key).__name__}; "
+                                "row keys must be strings")
+            out[key] = plain_value(item, f"{where}[{key!r}]")
+        return out
+    if isinstance(value, (list, tuple)):
+        return [plain_value(item, f"{where}[{i}]") for i, item in enumerate(value)]
+    if isinstance(value, os.PathLike):
+        return os.fspath(value)
+    tolist = getattr(value, "tolist", None)  # numpy scalars and arrays, without importing numpy
+    if callable(tolist) and type(value).__module__ == "numpy":
+        return plain_value(tolist(), where)
+    raise TypeError(f"{where} holds a {type(value).__name__} ({value!r:.60}), which is not plain "
+                    "JSON data; store a number, a string, a list or a dict instead")
+
+
+def plain_row(row: Mapping[str, Any]) -> tuple[ResultRow, list[str]]:
+    """The row as plain JSON data, and one message per key that was refused (and dropped)."""
+    clean: dict[str, Any] = {}
+    refused: list[str] = []
+    for key, value in row.items():
+        try:
+            clean[key] = plain_value(value, f"row key {key!r} of {row.get('nodeid', '?')}")
+        except TypeError as exc:
+            refused.append(f"{exc}; the key was left out")
+    return clean, refused  # type: ignore[return-value]

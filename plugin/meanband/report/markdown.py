@@ -163,11 +163,10 @@ def _uncertainty_section(rows: Sequence[Mapping[str, Any]]) -> list[str]:
 
 
 def write_markdown(text: str, path: str | os.PathLike[str]) -> Path:
-    """Write the Markdown to ``path`` (replacing it), creating its directory if needed."""
-    target = Path(path)
-    target.parent.mkdir(parents=True, exist_ok=True)
-    target.write_text(text, encoding="utf-8")
-    return target
+    """Write the Markdown to ``path`` atomically (replacing it), creating its directory if needed."""
+    from meanband.store.atomic import write_atomic
+
+    return write_atomic(path, text)
 
 
 def append_job_summary(

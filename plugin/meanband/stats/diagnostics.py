@@ -125,6 +125,9 @@ class Diagnostics:
 def lag1_autocorrelation(x: np.ndarray, mean: float) -> float:
     """r(1) exactly as NIST StRD defines it: sum of lagged products over the sum of squares."""
     d = x - mean
+    scale = float(np.max(np.abs(d))) if d.size else 0.0
+    if scale > 0.0 and math.isfinite(scale):
+        d = d / scale  # scale before squaring: no underflow near 1e-300, no overflow near 1e300
     denominator = sum_of_products(d, d)
     if denominator == 0.0:
         return math.nan
@@ -161,10 +164,10 @@ def diagnose(values: Iterable[float] | np.ndarray, *, alpha: float = 0.05) -> Di
 
         # One set of sums over the deviations serves r(1), skewness and K^2: a million trials
         # cost a few passes and no new array, not a pass and a temporary per statistic.
-        sum2 = sd * sd * (n - 1)
-        lag1 = sum_of_products(dev[:-1], dev[1:]) / sum2 if sum2 > 0 else math.nan
-        # Standardise (in place: dev is our own copy) so cubes and fourth powers stay in range.
+        # Standardise first (in place: dev is our own copy), so products, cubes and fourth
+        # powers stay in range at any scale (1e-300 or 1e300); sum(z^2) is n - 1.
         z = np.divide(dev, sd, out=dev)
+        lag1 = sum_of_products(z[:-1], z[1:]) / (n - 1)
         sum3 = float(np.einsum("i,i,i->", z, z, z))
         squares = np.multiply(z, z, out=z)
         sum4 = sum_of_products(squares, squares)

@@ -50,6 +50,10 @@ def _bounds(center: float, reach_low: float, reach_high: float, side: str) -> tu
     return low, high
 
 
+#: log of the largest finite float64: exp() of anything above it overflows.
+_LARGEST_LOG = math.log(np.finfo(np.float64).max)
+
+
 def _exp_bounds(low: float, high: float) -> tuple[float, float]:
     """Back-transform log-scale bounds; an open lower end stays -inf as for every upper bound."""
     return (-math.inf if low == -math.inf else math.exp(low)), math.exp(high)
@@ -104,6 +108,12 @@ def cox_interval(x: np.ndarray, confidence: float, side: str) -> Interval:
     reach = crit * math.sqrt(s2 / n + s2 * s2 / (2.0 * (n - 1)))
     low, high = _bounds(center, reach, reach, side)
     _, sd = location_scale(x)
+    if center > _LARGEST_LOG or (math.isfinite(high) and high > _LARGEST_LOG):
+        raise TrialError(
+            f"method='cox': the upper bound exp({high:.4g}) is beyond the largest float64 "
+            f"number, because the spread of log(trials) (sd {log_sd:.3g}) is huge for {n} trials; "
+            "collect more trials, or use method='bootstrap' or method='t'"
+        )
     low, high = _exp_bounds(low, high)
     return Interval(
         math.exp(center), low, high, confidence, side, n, float(n - 1), sd,

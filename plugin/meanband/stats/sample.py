@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from collections.abc import Iterable, Sequence
+import numbers
+from collections.abc import Iterable, Mapping, Sequence
 
 import numpy as np
 
@@ -25,10 +26,13 @@ _MAX_LISTED_POSITIONS = 8
 
 def as_sample(values: Iterable[float] | np.ndarray, *, minimum: int = 2) -> np.ndarray:
     """Return ``values`` as a 1-D float64 array, refusing NaN, infinities and too few values."""
-    if isinstance(values, Iterable) and not (
+    if isinstance(values, np.ma.MaskedArray):
+        values = values.compressed()  # the mask says which values are not trials: honour it
+    elif isinstance(values, Iterable) and not (
         isinstance(values, Sequence) or hasattr(values, "__array__")
     ):
         values = list(values)  # generators, map objects, dict views: numpy cannot read them
+    _refuse_non_numbers(values)
     try:
         x = np.asarray(values, dtype=np.float64)
     except (TypeError, ValueError) as exc:
@@ -54,6 +58,31 @@ def as_sample(values: Iterable[float] | np.ndarray, *, minimum: int = 2) -> np.n
     return x
 
 
+def _refuse_non_numbers(values: object) -> None:
+    """Only real numbers are trials: numeric strings, bools, dates and dicts are refused, since
+    numpy would quietly read ``"1.5"`` as 1.5 and ``True`` as 1.0."""
+    if isinstance(values, (str, bytes, Mapping)):
+        raise TrialError(f"trials must be numbers, got a {type(values).__name__} ({values!r:.40}); "
+                         "pass a list or array of numbers")
+    if hasattr(values, "dtype"):
+        kind = np.dtype(values.dtype).kind
+        if kind in "iuf":
+            return
+        if kind != "O":
+            raise TrialError(f"trials must be numbers (real ones), got an array of dtype "
+                             f"{values.dtype}; convert them to float first")
+        values = np.asarray(values).ravel().tolist()
+    if not isinstance(values, (list, tuple)):
+        return
+    kinds = set(map(type, values))  # a handful of types, however many trials
+    wrong = sorted(t.__name__ for t in kinds if issubclass(t, (bool, np.bool_))
+                   or not issubclass(t, (numbers.Real, np.integer, np.floating, list, tuple)))
+    if wrong:  # nested lists go on to numpy, which names their shape
+        raise TrialError(f"trials must be numbers (real ones), got values of type {', '.join(wrong)}; "
+                         "convert them to numbers first (a numeric string or a bool is not a "
+                         "trial)")
+
+
 def check_probability(value: object, what: str = "confidence") -> float:
     """Return ``value`` as a float strictly between 0 and 1, or raise naming ``what``.
 
@@ -67,7 +96,9 @@ def check_probability(value: object, what: str = "confidence") -> float:
     except (TypeError, ValueError) as exc:
         raise TrialError(f"{what} must be a number between 0 and 1, got {value!r}") from exc
     if not (0.0 < level < 1.0) or math.isnan(level):
-        hint = f"; did you mean {level / 100:g}?" if 1.0 < level < 100.0 else ""
+        # A percentage such as 95 or 99.9 was meant as a fraction; 1.5 is no percentage of a
+        # level anyone uses, and "0.015" would mislead.
+        hint = f"; did you mean {level / 100:g}?" if 50.0 <= level < 100.0 else ""
         raise TrialError(f"{what} must lie strictly between 0 and 1, got {value!r}{hint}")
     return level
 
@@ -101,8 +132,19 @@ def deviations(x: np.ndarray) -> tuple[float, float, np.ndarray]:
     mean_d += correction
     d -= correction
     n = x.size
-    sd = math.sqrt(sum_of_products(d, d) / (n - 1)) if n > 1 else math.nan
+    sd = _scaled_sd(d) if n > 1 else math.nan
     return float(shift + mean_d), sd, d
+
+
+def _scaled_sd(d: np.ndarray) -> float:
+    """sqrt(sum(d^2) / (n - 1)), scaled by max|d| before squaring, so deviations near 1e-300
+    do not underflow to a zero spread and deviations near 1e300 do not overflow (the scaling
+    of LAPACK's dnrm2, Blue 1978)."""
+    scale = float(np.max(np.abs(d)))
+    if scale == 0.0 or not math.isfinite(scale):
+        return scale if math.isfinite(scale) else math.inf
+    scaled = d / scale
+    return scale * math.sqrt(sum_of_products(scaled, scaled) / (d.size - 1))
 
 
 def sum_of_products(a: np.ndarray, b: np.ndarray) -> float:

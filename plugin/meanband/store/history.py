@@ -7,6 +7,9 @@ import json
 import math
 import os
 import sqlite3
+import stat
+import time
+import urllib.parse
 from collections.abc import Callable, Iterable, Mapping
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
@@ -140,19 +143,28 @@ class HistoryStore:
     """A meanband history file. Use as a context manager; every write is one transaction.
 
     ``create=False`` opens an existing store only (for reading and the command line);
-    ``timeout`` is how long to wait for another process's write lock before giving up.
+    ``read_only=True`` opens it for reading only (SQLite ``mode=ro``, and ``immutable=1`` when
+    the file or its folder cannot be written, e.g. a baseline restored read-only from a CI
+    cache); ``timeout`` is how long to wait for another process's write lock before giving up.
     """
 
     def __init__(
-        self, path: str | os.PathLike[str], *, create: bool = True, timeout: float = DEFAULT_TIMEOUT
+        self, path: str | os.PathLike[str], *, create: bool = True, timeout: float = DEFAULT_TIMEOUT,
+        read_only: bool = False,
     ) -> None:
         self.path = Path(path)
         self.timeout = float(timeout)
+        self.read_only = read_only and not create
         _check_file(self.path, create)
         try:
             if create:
                 self.path.parent.mkdir(parents=True, exist_ok=True)
-            self._conn = sqlite3.connect(self.path, timeout=self.timeout, isolation_level=None)
+            if self.read_only:
+                self._conn = sqlite3.connect(_read_only_uri(self.path), timeout=self.timeout,
+                                             isolation_level=None, uri=True)
+            else:
+                self._conn = sqlite3.connect(self.path, timeout=self.timeout,
+                                             isolation_level=None)
         except (OSError, sqlite3.Error) as exc:
             raise StoreError(
                 f"cannot open the history store {self.path}: {exc}; check that the location "
@@ -170,6 +182,49 @@ class HistoryStore:
     def _prepare(self) -> None:
         conn = self._conn
         conn.execute("PRAGMA foreign_keys = ON")
+        if self.read_only:
+            self._check_schema(upgrade=False)
+            return
+        # Check and create the schema in one write transaction, so two processes starting a new
+        # store at once cannot see each other's half-made schema; a busy store is retried.
+        deadline = time.monotonic() + self.timeout
+        for attempt in range(1000):
+            try:
+                conn.execute("BEGIN")  # a consistent read: is the schema there and current?
+                try:
+                    current = self._user_version() == SCHEMA_VERSION
+                    if current:
+                        self._check_schema(upgrade=False)
+                finally:
+                    conn.execute("COMMIT")
+                if current:
+                    self._use_wal()
+                    return
+                conn.execute("BEGIN IMMEDIATE")
+                try:
+                    self._check_schema(upgrade=True)
+                    conn.execute("COMMIT")
+                except BaseException:
+                    if conn.in_transaction:
+                        conn.execute("ROLLBACK")
+                    raise
+                self._use_wal()
+                return
+            except sqlite3.OperationalError as exc:
+                busy = "locked" in str(exc) or "busy" in str(exc)
+                if not busy or time.monotonic() >= deadline:
+                    raise
+                time.sleep(min(0.05, 0.001 * 2 ** min(attempt, 6)))
+
+    def _use_wal(self) -> None:
+        mode = self._conn.execute("PRAGMA journal_mode = WAL").fetchone()[0]
+        if str(mode).lower() != "wal":
+            # Some file systems cannot share memory for WAL; the rollback journal is still safe.
+            self._conn.execute("PRAGMA journal_mode = DELETE")
+
+    def _check_schema(self, *, upgrade: bool) -> None:
+        """Refuse a newer, foreign or damaged file; bring an older meanband store up to date."""
+        conn = self._conn
         version = self._user_version()
         if version > SCHEMA_VERSION:
             raise StoreError(
@@ -197,28 +252,21 @@ class HistoryStore:
                     "sqlite3 shell's .recover) and a new store will be started"
                 )
         if version < SCHEMA_VERSION:
-            self._upgrade()
-        mode = conn.execute("PRAGMA journal_mode = WAL").fetchone()[0]
-        if str(mode).lower() != "wal":
-            # Some file systems cannot share memory for WAL; the rollback journal is still safe.
-            conn.execute("PRAGMA journal_mode = DELETE")
-
-    def _user_version(self) -> int:
-        return int(self._conn.execute("PRAGMA user_version").fetchone()[0])
-
-    def _upgrade(self) -> None:
-        conn = self._conn
-        conn.execute("BEGIN IMMEDIATE")
-        try:
-            version = self._user_version()  # another process may have upgraded meanwhile
+            if not upgrade:
+                if version == 0:
+                    return  # an empty file: it holds no runs yet
+                raise StoreError(
+                    f"the history store {self.path} has schema version {version}, older than "
+                    f"this meanband's ({SCHEMA_VERSION}), and was opened read-only; record a run "
+                    "into it once (which upgrades it) or read it with the meanband that wrote it"
+                )
             for step in MIGRATIONS[version:]:
                 step(conn)
             # PRAGMA takes no bound parameters; the value is our own integer.
             conn.execute(f"PRAGMA user_version = {len(MIGRATIONS):d}")
-            conn.execute("COMMIT")
-        except BaseException:
-            conn.execute("ROLLBACK")
-            raise
+
+    def _user_version(self) -> int:
+        return int(self._conn.execute("PRAGMA user_version").fetchone()[0])
 
     # -- context and errors ----------------------------------------------------------------
 
@@ -388,6 +436,16 @@ class _ErrorTranslator:
         raise StoreError(f"the history store {self.path} could not be used: {text}") from exc
 
 
+def _read_only_uri(path: Path) -> str:
+    """An SQLite URI that opens ``path`` for reading only; immutable where nothing can be written
+    beside it (no lock or WAL index can be made there, and no writer can be at work)."""
+    absolute = path.resolve()
+    query = "mode=ro"
+    if not os.access(absolute, os.W_OK) or not os.access(absolute.parent, os.W_OK):
+        query += "&immutable=1"
+    return f"file:{urllib.parse.quote(str(absolute))}?{query}"
+
+
 def _check_file(path: Path, create: bool) -> None:
     """Refuse anything at ``path`` that is not an SQLite file, before SQLite touches it."""
     if path.is_dir():
@@ -395,13 +453,25 @@ def _check_file(path: Path, create: bool) -> None:
             f"the history store path {path} is a directory; give a file path, e.g. "
             f"{path / 'history.sqlite'}"
         )
-    if not path.exists():
+    try:
+        mode = path.stat().st_mode
+    except (FileNotFoundError, NotADirectoryError):
         if not create:
             raise StoreError(
                 f"no history store at {path}; record a run first with --meanband-record, or "
-                "give the right file with --store PATH"
-            )
+                "give the right file (--meanband-store PATH, or --store PATH for the meanband "
+                "command)"
+            ) from None
         return
+    except OSError as exc:
+        raise StoreError(f"cannot read the history store {path}: {os.strerror(exc.errno or 0)}"
+                         ) from exc
+    if not stat.S_ISREG(mode):
+        # Opening a FIFO or a device would wait for a writer that never comes.
+        raise StoreError(
+            f"the history store path {path} is not a regular file (it is a FIFO, socket or "
+            f"device); it was left untouched. {_ELSEWHERE[0].upper()}{_ELSEWHERE[1:]}"
+        )
     try:
         with path.open("rb") as handle:
             head = handle.read(len(_SQLITE_MAGIC))
@@ -460,10 +530,28 @@ def _finite_or_none(value: Any) -> float | None:
 
 
 def _stored_check(r: tuple[Any, ...]) -> StoredCheck:
-    row = json.loads(r[11])
+    where = f"run {r[0]}, check {r[1]}" + (f" [{r[2]}]" if r[2] else "")
+    try:
+        row = json.loads(r[11])
+        if not isinstance(row, dict):
+            raise ValueError(f"its row is a JSON {type(row).__name__}, not an object")
+        values = _trials(r[12], "trials")
+        warmup = _trials(r[13], "warm-up trials")
+    except (ValueError, TypeError, RecursionError) as exc:
+        raise StoreError(
+            f"the history store holds damaged data for {where}: {exc}; the store was left "
+            "untouched. Record a new baseline, or remove that run with 'meanband history prune'"
+        ) from exc
     r = (*r[:7], math.nan if r[7] is None else r[7], *r[8:])
-    values = np.frombuffer(r[12], dtype=_TRIAL_DTYPE).astype(np.float64)
-    warmup = np.frombuffer(r[13], dtype=_TRIAL_DTYPE).astype(np.float64)
     return StoredCheck(
         r[0], r[1], r[2], r[3], r[4], r[5], r[6], r[7], r[8], r[9], r[10], row, values, warmup
     )
+
+
+def _trials(blob: Any, what: str) -> np.ndarray:
+    """Stored float64 bytes back to an array; anything else is damage."""
+    if not isinstance(blob, bytes):
+        raise TypeError(f"its {what} are a {type(blob).__name__}, not float64 bytes")
+    if len(blob) % _TRIAL_DTYPE.itemsize:
+        raise ValueError(f"its {what} are {len(blob)} bytes, not a whole number of float64 values")
+    return np.frombuffer(blob, dtype=_TRIAL_DTYPE).astype(np.float64)

@@ -175,17 +175,9 @@ def dumps(report: Mapping[str, Any], *, indent: int | None = None) -> str:
 
 def write_report(report: Mapping[str, Any], path: str | os.PathLike[str]) -> Path:
     """Write ``report`` to ``path`` atomically (a reader never sees half a file)."""
-    target = Path(path)
-    text = dumps(report)
-    target.parent.mkdir(parents=True, exist_ok=True)
-    partial = target.with_name(f".{target.name}.partial")
-    try:
-        partial.write_text(text, encoding="utf-8")
-        os.replace(partial, target)
-    except OSError:
-        partial.unlink(missing_ok=True)
-        raise
-    return target
+    from meanband.store.atomic import write_atomic
+
+    return write_atomic(path, dumps(report))
 
 
 # --- reading -----------------------------------------------------------------------------------
@@ -201,6 +193,9 @@ def loads(text: str, *, source: str = "<report>") -> dict[str, Any]:
         document = json.loads(text, parse_constant=_refuse_constant)
     except ValueError as exc:
         raise ReportError(f"{source}: not a JSON report: {exc}") from exc
+    except RecursionError as exc:
+        raise ReportError(f"{source}: not a JSON report: its values are nested too deeply to "
+                          "read (a report is a few levels deep); was the right file given?") from exc
     validate_report(document, source=source)
     document["rows"] = decode_rows(document["rows"])
     return document  # type: ignore[no-any-return]
