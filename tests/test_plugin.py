@@ -511,3 +511,10 @@ def test_it(trials):
     result = run_suite("--meanband-power", "0.8")
     result.stdout.fnmatch_lines(["*to decide  about * trials would likely decide it (80% power,*"])
     assert "90% power" not in result.stdout.str()
+
+
+def test_pytest_help_works_with_the_plugin(run_suite):
+    # Before: a bare % in an option's help broke argparse's help formatting.
+    result = run_suite("--help")
+    assert result.ret == 0
+    result.stdout.fnmatch_lines(["*--meanband-max-increase*"])

@@ -27,9 +27,9 @@ _HELP = {
     "baseline": "Compare every check with the same check in a stored run: the newest run with "
     "LABEL, run number N, or the newest run when no label is given (--meanband-baseline=main).",
     "max_increase": "How much slower than its baseline a timing may be before it counts as "
-    "regressed, e.g. '5%' (default 5%).",
+    "regressed, e.g. '5%%' (default 5%%).",
     "max_change": "How far a measured value (not a timing) may move from its baseline either "
-    "way, e.g. '2%' (default 5%).",
+    "way, e.g. '2%%' (default 5%%).",
     "record_partial": "Record the run even when it ran only part of its tests (-x stopped it, "
     "or -k, -m, --lf or --deselect narrowed it); by default such a run is not recorded.",
     "store_timeout": "Seconds to wait for another process that is writing the history store "
