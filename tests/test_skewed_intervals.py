@@ -6,7 +6,7 @@ import math
 
 import numpy as np
 import pytest
-from hypothesis import given, settings
+from hypothesis import example, given, settings
 from hypothesis import strategies as st
 from meanband import TrialError
 from meanband.stats.interval import t_interval
@@ -244,6 +244,9 @@ def test_one_sided_bound_is_the_end_of_the_two_sided_interval_at_2c_minus_1(
 
 @settings(max_examples=40, deadline=None)
 @given(samples, st.floats(0.01, 100.0), st.floats(-1000.0, 1000.0))
+# Found by hypothesis: tied resamples once read rounding of e2 - e1^2 as a spread.
+@example(np.array([30.189826161629764, 26.0, 26.0, 26.0, 1.0, 15.0]), 33.0, 0.0)
+@example(np.array([26.75, 26.8343915188942, 1.0, 2.0]), 1.5, 0.0)
 def test_scale_and_shift_equivariance(x: np.ndarray, factor: float, offset: float) -> None:
     # Common practice: an interval of the mean moves with the units and the origin of the data.
     y = factor * x + offset
@@ -253,13 +256,15 @@ def test_scale_and_shift_equivariance(x: np.ndarray, factor: float, offset: floa
         # rel as well: on tiny, very skewed samples Hall's bound can lie far beyond the data.
         expected = (factor * base[0] + offset, factor * base[1] + offset)
         assert moved == pytest.approx(expected, rel=1e-8, abs=tol)
-    for method in (bootstrap_t_bounds, hall_bootstrap_bounds):
+    # The resampled skewness comes from raw moments by matrix products, which cancel on nearly
+    # tied resamples of a tiny sample: Hall's bootstrap bound keeps about five digits there.
+    for method, rel in ((bootstrap_t_bounds, 1e-6), (hall_bootstrap_bounds, 1e-5)):
         base, moved = _bootstrap_bounds(method, x, 0.95, "two-sided"), _bootstrap_bounds(method, y, 0.95, "two-sided")
         if not all(np.isfinite([*base, *moved])):
             continue  # a tied, tiny sample can give an open bootstrap bound on one scale only
-        tol = 1e-6 * (abs(offset) + factor * float(np.max(np.abs(x))))
+        tol = rel * (abs(offset) + factor * float(np.max(np.abs(x))))
         expected = (factor * base[0] + offset, factor * base[1] + offset)
-        assert moved == pytest.approx(expected, rel=1e-6, abs=tol)
+        assert moved == pytest.approx(expected, rel=rel, abs=tol)
 
 
 @settings(max_examples=30, deadline=None)

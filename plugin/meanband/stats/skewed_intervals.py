@@ -231,6 +231,9 @@ class Pivots:
     hall: np.ndarray
 
 
+_CANCELLATION = 1e-12  # relative rounding floor of e2 - e1^2 (eps is 2.2e-16; a wide margin)
+
+
 def resample_pivots(
     samples: np.ndarray, *, n_resamples: int = BOOTSTRAP_RESAMPLES, rng: np.random.Generator | None = None
 ) -> Pivots:
@@ -256,7 +259,10 @@ def resample_pivots(
         flat = (idx + n * np.arange(count)[:, np.newaxis]).ravel()
         weights = np.bincount(flat, minlength=count * n).reshape(count, n).T.astype(np.float64) / n
         e1, e2, e3 = d @ weights, d2 @ weights, d3 @ weights  # resampled raw moments of d
-        var_n = np.maximum(e2 - e1 * e1, 0.0)
+        var_n = e2 - e1 * e1
+        # e2 - e1^2 cancels: a resample of tied values leaves rounding of order eps * e2, which
+        # would read as a tiny spread and an enormous T*. Below that noise the spread is zero.
+        var_n = np.where(var_n > _CANCELLATION * e2, var_n, 0.0)
         sd_star = np.sqrt(var_n * n / (n - 1))
         m3_star = e3 - 3.0 * e1 * e2 + 2.0 * e1**3
         with np.errstate(invalid="ignore", divide="ignore"):
