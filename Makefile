@@ -6,7 +6,7 @@ STAMP := $(VENV)/.installed-stamp
 # Hermetic runs: no plugin but ours (and xdist where asked) may change a result.
 HERMETIC := PYTEST_DISABLE_PLUGIN_AUTOLOAD=1
 
-.PHONY: demo test lint bench study pictures clean tuning-demo
+.PHONY: demo test lint bench study pictures clean tuning-demo explore
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -16,6 +16,10 @@ $(STAMP): pyproject.toml
 
 test: $(STAMP)
 	$(HERMETIC) $(PY) -m pytest -p meanband -p xdist -n 2 -q tests
+
+# Property tests with fresh random examples and many more of them (slow; by hand).
+explore: $(STAMP)
+	HYPOTHESIS_PROFILE=explore $(HERMETIC) $(PY) -m pytest -p meanband -p xdist -n 2 -q tests
 
 lint: $(STAMP)
 	$(VENV)/bin/ruff check plugin tests benchmarks sample_suites studies

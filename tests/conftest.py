@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import os
 from pathlib import Path
 
 # In-process pytester runs drop modules first imported inside them; numpy's and scipy's
@@ -11,8 +12,15 @@ import meanband.record.recorder  # noqa: F401
 import numpy  # noqa: F401
 import pytest
 import scipy.stats  # noqa: F401
+from hypothesis import settings
 
 DATA = Path(__file__).parent / "data"
+
+# `make test` runs the property tests from a fixed seed, so main stays green on a clean clone;
+# `make explore` draws fresh random examples (500 where a test sets no count of its own).
+settings.register_profile("fixed", derandomize=True)
+settings.register_profile("explore", max_examples=500, deadline=None)
+settings.load_profile(os.environ.get("HYPOTHESIS_PROFILE", "fixed"))
 
 
 @pytest.fixture
