@@ -37,3 +37,22 @@ def run_suite(pytester: pytest.Pytester, monkeypatch: pytest.MonkeyPatch):
         return pytester.runpytest(*extra, *args)
 
     return run
+
+
+@pytest.fixture(scope="session")
+def postgres_server():
+    """One throwaway PostgreSQL server per test process, or a loud, counted skip."""
+    from postgres_server import UNAVAILABLE_PREFIX, ServerUnavailable, start_server
+
+    try:
+        server = start_server()
+    except ServerUnavailable as exc:
+        pytest.skip(f"{UNAVAILABLE_PREFIX}: {exc}")
+    yield server
+    server.stop()
+
+
+@pytest.fixture
+def postgres_url(postgres_server) -> str:
+    """The URL of a fresh, empty database on the test server."""
+    return postgres_server.new_database()
