@@ -10,19 +10,18 @@ runs in practice.
 
 A split chosen to be where the series differs most always looks significant if it is then tested
 as though it had been fixed beforehand. So each change point found is judged on its own with a
-permutation test of the *maximum* two-sample t statistic over every split of its local segment
-(the runs between its neighbouring change points): under "no change there" the runs of that
-segment are exchangeable, so shuffling them and taking the largest statistic over all splits
-reproduces the selection (the max-statistic method of Westfall & Young, 1993; for change points
-see Antoch & Hušková, 2001). The p-values of the change points of one series are then adjusted
-by Holm's step-down method (Holm, 1979), so the chance of confirming any false change point in a
-series is at most ``alpha``.
+permutation test: its two-sample t statistic is referred to the distribution of the *maximum*
+t statistic over every split of a shuffled stretch of runs. Under "no change in this stretch"
+the runs are exchangeable, and the maximum over all splits reproduces the selection, whichever
+split was picked (the max-statistic method of Westfall & Young, 1993; for change points see
+Antoch & Hušková, 2001).
 
-The local segments are themselves bounded by change points found on the same data, which can
-make a stretch of noise look like a shift in a short segment. So a series first has to pass the
-same max-t permutation test over all of its runs (is there any change at all?) before any of its
-change points is confirmed: a gate that keeps the chance of a false confirmation in a series with
-no change at most ``alpha`` (a closed test: Marcus, Peritz & Gabriel, 1976).
+The stretches are bounded only by change points already confirmed, never by unconfirmed ones
+(bounds found on the same data would let a short stretch of noise pass as a shift). The test
+steps down: first the whole series (is there any change at all?), then, after each confirmed
+change point, the stretches on either side, with a Bonferroni factor for the number of stretches
+under test and Holm's running maximum across steps (Holm, 1979). PELT's other change points keep
+their place with the verdict "not established".
 """
 
 from __future__ import annotations
@@ -146,17 +145,40 @@ def find_change_points(
     penalty = 2.0 * noise**2 * math.log(signal.size)
     breaks = _pelt(signal, penalty)
     rng = np.random.default_rng(seed)
-    _statistic, series_p = _max_t_test(signal, MIN_SEGMENT, permutations, rng)
+    nulls: dict[tuple[int, int], np.ndarray] = {}
+
+    def test(where: int, start: int, stop: int) -> tuple[float, float]:
+        if (start, stop) not in nulls:
+            nulls[start, stop] = _null_maxima(signal[start:stop], permutations, rng)
+        statistic = _statistic_at(signal[start:stop], where - start)
+        return statistic, _p_value(statistic, nulls[start, stop])
+
+    whole = signal - signal.mean()
+    series_p = _p_value(float(_split_statistics(whole[None, :])[0].max()),
+                        _null_maxima(signal, permutations, rng))
+    # Step down: test every unconfirmed change point inside the stretch bounded by the change
+    # points confirmed so far; confirm the strongest while it passes alpha over the number of
+    # stretches under test (Bonferroni across stretches, Holm's running maximum across steps).
+    confirmed: set[int] = set()
+    judged: dict[int, tuple[float, float, float]] = {}
+    running = 0.0
+    while pending := [w for w in breaks if w not in confirmed]:
+        bounds = sorted(confirmed | {0, signal.size})
+        stretch = {w: (max(e for e in bounds if e < w), min(e for e in bounds if e > w))
+                   for w in pending}
+        stretches = len(set(stretch.values()))
+        results = {w: test(w, *stretch[w]) for w in pending}
+        for w, (statistic, p_value) in results.items():
+            judged[w] = (statistic, p_value, max(running, min(1.0, stretches * p_value)))
+        best = min(pending, key=lambda w: (results[w][1], -results[w][0]))  # ties: larger t
+        running = judged[best][2]
+        if running > alpha:
+            break
+        confirmed.add(best)
     edges = [0, *breaks, signal.size]
-    raw: list[tuple[int, float, float]] = []
-    for j, where in enumerate(breaks, start=1):
-        segment = signal[edges[j - 1]:edges[j + 1]]
-        statistic, p_value = _max_t_test(segment, where - edges[j - 1], permutations, rng)
-        raw.append((where, statistic, p_value))
-    adjusted = _holm([p for _w, _s, p in raw])
     points = []
-    for (where, statistic, p_value), p_adj, j in zip(raw, adjusted, range(1, len(raw) + 1),
-                                                     strict=True):
+    for j, where in enumerate(breaks, start=1):
+        statistic, p_value, p_adj = judged[where]
         before = float(np.mean(values[edges[j - 1]:where]))
         after = float(np.mean(values[where:edges[j + 1]]))
         if scale == "log":
@@ -168,7 +190,7 @@ def find_change_points(
         points.append(ChangePoint(
             index=where, before=before, after=after, shift=shift, statistic=statistic,
             p_value=p_value, adjusted_p=p_adj,
-            verdict=SHIFT if max(p_adj, series_p) <= alpha else NOT_ESTABLISHED,
+            verdict=SHIFT if where in confirmed else NOT_ESTABLISHED,
         ))
     return Trend(noise=noise, penalty=penalty, change_points=tuple(points), series_p=series_p,
                  **common)  # type: ignore[arg-type]
@@ -209,19 +231,23 @@ def _split_statistics(rows: np.ndarray) -> np.ndarray:
     return np.where(scale > 0, t, np.where(np.abs(left_mean - right_mean) > 0, np.inf, 0.0))
 
 
-def _max_t_test(
-    segment: np.ndarray, split: int, permutations: int, rng: np.random.Generator
-) -> tuple[float, float]:
-    """The t statistic at ``split`` and the permutation p-value of the max over all splits."""
+def _statistic_at(segment: np.ndarray, split: int) -> float:
+    centred = segment - segment.mean()
+    return float(_split_statistics(centred[None, :])[0][split - MIN_SEGMENT])
+
+
+def _null_maxima(segment: np.ndarray, permutations: int, rng: np.random.Generator) -> np.ndarray:
+    """The largest split statistic of each of ``permutations`` shuffles of ``segment``."""
     centred = segment - segment.mean()  # exact cancellation for shuffles of large values
-    observed_all = _split_statistics(centred[None, :])[0]
-    observed = float(observed_all[split - MIN_SEGMENT])
-    largest = float(observed_all.max())
     shuffled = rng.permuted(np.broadcast_to(centred, (permutations, centred.size)), axis=1)
-    null = _split_statistics(shuffled).max(axis=1)
-    # The split PELT chose is judged by the largest statistic of its segment (normally itself).
-    exceed = int(np.count_nonzero(null >= largest * (1.0 - 1e-12)))
-    return observed, (1.0 + exceed) / (1.0 + permutations)
+    maxima: np.ndarray = _split_statistics(shuffled).max(axis=1)
+    return maxima
+
+
+def _p_value(statistic: float, null_maxima: np.ndarray) -> float:
+    """Permutation p-value (Phipson & Smyth, 2010: count the observed arrangement too)."""
+    exceed = int(np.count_nonzero(null_maxima >= statistic * (1.0 - 1e-12)))
+    return (1.0 + exceed) / (1.0 + null_maxima.size)
 
 
 def _holm(p_values: Sequence[float]) -> list[float]:
