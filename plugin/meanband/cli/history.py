@@ -30,7 +30,7 @@ REGRESSION_FOUND = 1
 def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) -> None:
     """Add ``history`` and its subcommands to the ``meanband`` command."""
     history = subparsers.add_parser(
-        "history", help="Stored runs: list, show, compare, export, prune",
+        "history", help="Stored runs: list, show, compare, export, trend, copy, prune",
         description="Read and tidy the history store that --meanband-record writes.",
     )
     history.set_defaults(handler=lambda args: _usage(history))
@@ -75,6 +75,27 @@ def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) ->
     )
     _store_option(export)
     export.set_defaults(handler=_guarded(_export))
+
+    trend = commands.add_parser(
+        "trend", help="Each check's run means over time, and where they changed",
+        description="Run means with their intervals, oldest first, and change points in them "
+        "found by PELT; each change point gets a permutation verdict that allows for the split "
+        "having been chosen on the same data (see docs/history.md).",
+    )
+    trend.add_argument("--label", metavar="LABEL", default=None,
+                       help="Only runs with this label (e.g. main)")
+    trend.add_argument("--last", type=int, metavar="N", default=None,
+                       help="Only the newest N runs (default all)")
+    trend.add_argument("--check", metavar="TEXT", default=None,
+                       help="Only checks whose node id or series contains TEXT")
+    trend.add_argument("--alpha", type=float, default=0.05,
+                       help="Chance of confirming a change that is not there, per check "
+                       "(default 0.05)")
+    trend.add_argument("--plots", metavar="DIR", default=None,
+                       help="Also draw one trend picture per check into DIR")
+    trend.add_argument("--plot-format", default="png", help="png, svg or png,svg (default png)")
+    _store_option(trend)
+    trend.set_defaults(handler=_guarded(_trend))
 
     prune = commands.add_parser("prune", help="Delete all but the newest runs")
     prune.add_argument("--keep", type=int, required=True, metavar="N", help="How many runs to keep")
@@ -219,6 +240,41 @@ def _export(args: argparse.Namespace) -> int:
         raise StoreError(f"cannot write {args.output}: {reason}; choose a writable path with "
                          "--output") from exc
     print(f"wrote run {run.id} ({len(checks)} checks) to {args.output}")
+    return 0
+
+
+def _trend(args: argparse.Namespace) -> int:
+    from meanband.report.trend import build_trends, trend_lines, write_trend_plots
+    if not 0.0 < args.alpha < 1.0:
+        raise TrialError(f"--alpha must lie between 0 and 1, got {args.alpha}")
+    if args.last is not None and args.last < 1:
+        raise StoreError(f"--last must be 1 or more, got {args.last}")
+    with HistoryStore(args.store, create=False, read_only=True) as store:
+        runs = [r for r in store.runs() if args.label is None or r.label == args.label]
+        if args.last is not None:
+            runs = runs[:args.last]
+        history = [(run, store.checks(run.id)) for run in reversed(runs)]
+    if not runs:
+        which = f" labelled {args.label!r}" if args.label is not None else ""
+        print(f"no runs{which} in {args.store}")
+        return 0
+    if args.check:
+        history = [(run, [c for c in checks if args.check in c.nodeid or args.check in c.series])
+                   for run, checks in history]
+    trends = build_trends(history, alpha=args.alpha)
+    if not trends:
+        print(f"no check with trials in the {len(runs)} run(s) chosen")
+        return 0
+    for trend in trends:
+        print("\n".join(trend_lines(trend)))
+    if args.plots:
+        from meanband.errors import ReportError
+
+        try:
+            written = write_trend_plots(trends, args.plots, formats=args.plot_format)
+        except (ReportError, OSError) as exc:
+            raise StoreError(f"cannot draw the trend pictures: {exc}") from exc
+        print(f"wrote {len(written)} picture(s) to {args.plots}")
     return 0
 
 
