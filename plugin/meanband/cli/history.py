@@ -10,12 +10,12 @@ import math
 import os
 import sys
 from collections.abc import Callable, Sequence
-from pathlib import Path
 from typing import Any
 
 from meanband import defaults
 from meanband.errors import TrialError
 from meanband.report.tables import format_table
+from meanband.store.database import store_location, where
 from meanband.store.history import DEFAULT_STORE, HistoryStore, RunInfo, StoredCheck, StoreError
 from meanband.units import format_number, format_value
 
@@ -108,8 +108,9 @@ _RUN_HELP = "A run id (7 or #7), a label (newest run with it), or 'latest'."
 
 def _store_option(parser: argparse.ArgumentParser) -> None:
     parser.add_argument(
-        "--store", metavar="PATH", type=Path, default=DEFAULT_STORE,
-        help=f"The history store (default {DEFAULT_STORE} in the current directory)",
+        "--store", metavar="PATH|URL", type=store_location, default=DEFAULT_STORE,
+        help=f"The history store: a file, or a PostgreSQL URL (default {DEFAULT_STORE} in the "
+        "current directory)",
     )
 
 
@@ -138,7 +139,7 @@ def _list(args: argparse.Namespace) -> int:
     with HistoryStore(args.store, create=False, read_only=True) as store:
         runs = store.runs()
     if not runs:
-        print(f"no runs in {args.store}")
+        print(f"no runs in {where(args.store)}")
         return 0
     rows = [
         [
@@ -256,7 +257,7 @@ def _trend(args: argparse.Namespace) -> int:
         history = [(run, store.checks(run.id)) for run in reversed(runs)]
     if not runs:
         which = f" labelled {args.label!r}" if args.label is not None else ""
-        print(f"no runs{which} in {args.store}")
+        print(f"no runs{which} in {where(args.store)}")
         return 0
     if args.check:
         history = [(run, [c for c in checks if args.check in c.nodeid or args.check in c.series])
@@ -282,7 +283,7 @@ def _prune(args: argparse.Namespace) -> int:
     with HistoryStore(args.store, create=False) as store:
         deleted = store.prune(args.keep)
         left = len(store.runs())
-    print(f"deleted {deleted} run(s) from {args.store}; {left} kept")
+    print(f"deleted {deleted} run(s) from {where(args.store)}; {left} kept")
     return 0
 
 

@@ -11,6 +11,7 @@ from typing import Any
 
 from meanband import defaults
 from meanband.errors import TrialError
+from meanband.store.database import store_location
 
 __all__ = ["load_rows", "register", "rows_from_file", "rows_from_store"]
 
@@ -39,8 +40,9 @@ def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) ->
     )
     source = plan.add_mutually_exclusive_group()
     source.add_argument(
-        "--store", metavar="PATH", type=Path, default=None,
-        help="The history store (default .meanband/history.sqlite in the current directory)",
+        "--store", metavar="PATH|URL", type=store_location, default=None,
+        help="The history store: a file or a PostgreSQL URL (default "
+        ".meanband/history.sqlite in the current directory)",
     )
     source.add_argument(
         "--rows", metavar="FILE", type=Path, default=None,
@@ -82,9 +84,10 @@ def rows_from_store(path: str | Path, run: str | None = None) -> tuple[list[Row]
     Each stored check's ``row`` holds the row without its trials, which come back from the
     store's float64 column as ``values``.
     """
+    from meanband.store.database import is_database_url
     from meanband.store.history import HistoryStore
 
-    if not Path(path).exists():
+    if not is_database_url(path) and not Path(path).exists():
         raise SourceError(
             f"no history store at {path}; record runs with --meanband-record, point --store at "
             "the store, or read rows from a file with --rows FILE"

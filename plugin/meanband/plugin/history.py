@@ -20,8 +20,9 @@ if TYPE_CHECKING:
 HISTORY_PLUGIN_NAME = "meanband-history"
 
 _HELP = {
-    "store": "History store file for --meanband-record and --meanband-baseline "
-    "(default .meanband/history.sqlite under the rootdir).",
+    "store": "History store for --meanband-record and --meanband-baseline: a file, or a "
+    "PostgreSQL URL (postgresql://USER@HOST/DB) shared by many machines (default "
+    ".meanband/history.sqlite under the rootdir).",
     "record": "Store this run's checks and trials in the history store, under LABEL (default: "
     "the git branch). Write the label with '=': --meanband-record=main.",
     "baseline": "Compare every check with the same check in a stored run: the newest run with "
@@ -39,7 +40,7 @@ _HELP = {
 
 def pytest_addoption(parser: pytest.Parser) -> None:
     group = parser.getgroup("meanband")
-    group.addoption("--meanband-store", dest="meanband_store", metavar="PATH", default=None,
+    group.addoption("--meanband-store", dest="meanband_store", metavar="PATH|URL", default=None,
                     help=_HELP["store"])
     group.addoption("--meanband-record", dest="meanband_record", metavar="LABEL", nargs="?",
                     const="", default=None, help=_HELP["record"])
@@ -85,8 +86,7 @@ def pytest_configure(config: pytest.Config) -> None:
                                  defaults.MAX_CHANGE),
     )
     timeout = resolve_value(config, "store_timeout", _timeout_seconds, defaults.STORE_TIMEOUT)
-    store = resolve_path(config, "store", DEFAULT_STORE)
-    assert store is not None
+    store = _store_location(config, DEFAULT_STORE)
     plugin = HistoryPlugin(config, store, limits, timeout, record)
     if baseline is not None:
         try:
@@ -94,6 +94,19 @@ def pytest_configure(config: pytest.Config) -> None:
         except StoreError as exc:
             raise pytest.UsageError(f"--meanband-baseline: {exc}") from None
     config.pluginmanager.register(plugin, HISTORY_PLUGIN_NAME)
+
+
+def _store_location(config: pytest.Config, default: Path) -> Path | str:
+    """A PostgreSQL URL as given (option or ini key); a file path by the rule for paths."""
+    from meanband.plugin.options import given
+    from meanband.store.database import is_database_url
+
+    found = given(config, "store")
+    if found is not None and is_database_url(str(found.value)):
+        return str(found.value)
+    store = resolve_path(config, "store", default)
+    assert store is not None
+    return store
 
 
 def _relative(option: str) -> Any:
@@ -117,7 +130,7 @@ class HistoryPlugin:
     """Compares rows with the baseline as they arrive; records the run at the end."""
 
     def __init__(
-        self, config: pytest.Config, store: Path, limits: Limits, timeout: float,
+        self, config: pytest.Config, store: Path | str, limits: Limits, timeout: float,
         record: str | None,
     ) -> None:
         self.config = config
@@ -229,7 +242,9 @@ class HistoryPlugin:
         if self.recorded is not None:
             run_id, label = self.recorded
             named = f" '{label}'" if label else ""
-            lines += ["", f"meanband: recorded run {run_id}{named} in {self.store}"]
+            from meanband.store.database import where
+
+            lines += ["", f"meanband: recorded run {run_id}{named} in {where(self.store)}"]
         if self.record_skipped is not None:
             lines += ["", f"meanband: {self.record_skipped}"]
         if self.record_error is not None:

@@ -9,10 +9,12 @@ keeps the password of a URL out of every message.
 
 from __future__ import annotations
 
+import os
 import re
 import sqlite3
 import urllib.parse
 from collections.abc import Iterable, Sequence
+from pathlib import Path
 from typing import Any
 
 __all__ = [
@@ -21,6 +23,8 @@ __all__ = [
     "Database",
     "is_database_url",
     "mask_url",
+    "store_location",
+    "where",
 ]
 
 SQLITE = "sqlite"
@@ -43,6 +47,17 @@ _PG_TYPES = [
 def is_database_url(location: object) -> bool:
     """True for a PostgreSQL URL (``postgresql://...`` or ``postgres://...``)."""
     return isinstance(location, str) and location.lower().startswith(_SCHEMES)
+
+
+def store_location(text: str) -> str | Path:
+    """A ``--store`` argument: a PostgreSQL URL stays a string (a Path would fold its ``//``)."""
+    return text if is_database_url(text) else Path(text)
+
+
+def where(location: str | os.PathLike[str]) -> str:
+    """A store location fit to print: a file path as it is, a URL with its password masked."""
+    text = os.fspath(location)
+    return mask_url(text) if is_database_url(text) else text
 
 
 def mask_url(url: str) -> str:
