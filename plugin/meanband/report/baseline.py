@@ -36,7 +36,10 @@ def baseline_lines(rows: Sequence[ResultRow]) -> list[str]:
     for row in compared:
         runs.setdefault(int(row["baseline"]["run"]), row["baseline"])
     for info in runs.values():
-        lines += ["", f"baseline: {_run_words(info)}"]
+        several = info.get("runs") or []
+        made_of = (f" (newest of {len(several)} runs: {', '.join(str(r) for r in several)})"
+                   if len(several) > 1 else "")
+        lines += ["", f"baseline: {_run_words(info)}{made_of}"]
         judged = [r["baseline"] for r in compared
                   if r["baseline"].get("p_value") is not None and r["baseline"]["run"] == info["run"]]
         if judged:
