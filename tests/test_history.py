@@ -106,6 +106,58 @@ def test_find_run_by_latest_label_and_id(store_path: Path) -> None:
             store.find_run("nightly")
 
 
+def test_baseline_runs_are_the_newest_runs_of_a_label(store_path: Path) -> None:
+    with HistoryStore(store_path) as store:
+        ids = [store.record_run([make_row("a")], label=label, environment=ENV)
+               for label in ("main", "main", "feature", "main", "main")]
+        assert [r.id for r in store.baseline_runs("main", 3)] == [ids[4], ids[3], ids[1]]
+        assert [r.id for r in store.baseline_runs("main", 10)] == [ids[4], ids[3], ids[1], ids[0]]
+        assert [r.id for r in store.baseline_runs("feature", 3)] == [ids[2]]
+        # A run number or "latest" names one run, whatever its label.
+        assert [r.id for r in store.baseline_runs(ids[1], 3)] == [ids[1]]
+        assert [r.id for r in store.baseline_runs("latest", 3)] == [ids[4]]
+        with pytest.raises(StoreError, match="at least 1 run"):
+            store.baseline_runs("main", 0)
+
+
+def test_fingerprint_and_noise_floors_round_trip(store_path: Path) -> None:
+    fingerprint = {"cpu_model": "Invented CPU 9", "cpu_count": 2, "governor": "performance"}
+    with HistoryStore(store_path) as store:
+        run_id = store.record_run([make_row("a")], label="main",
+                                  environment={**ENV, "fingerprint": fingerprint})
+        bare = store.record_run([make_row("a")], label="main", environment=ENV)
+        assert store.find_run(run_id).fingerprint == fingerprint
+        assert store.find_run(bare).fingerprint is None
+        floors = [history.NoiseFloor("a", "", 0.04, 2, 3, 0.01, 0.5),
+                  history.NoiseFloor("b", "volts", 0.002, 4, 5)]
+        assert store.save_noise_floors("main", floors) == 2
+        newer = history.NoiseFloor("a", "", 0.03, 3, 4)
+        store.save_noise_floors("main", [newer])
+        read = store.noise_floors("main")
+        assert read[("a", "")].between_sd == 0.03 and read[("a", "")].runs == 4
+        assert read[("b", "volts")].df == 4 and read[("b", "volts")].position_p is None
+        assert read[("a", "")].measured  # stamped when saved
+        assert store.noise_floors("feature") == {}
+
+
+def test_version_1_store_is_upgraded_keeping_its_runs(store_path: Path) -> None:
+    store_path.parent.mkdir(parents=True)
+    conn = sqlite3.connect(store_path)
+    history.MIGRATIONS[0](conn)
+    conn.execute("PRAGMA user_version = 1")
+    conn.execute("INSERT INTO runs (label, started, host, machine, system, python, meanband) "
+                 "VALUES ('main', '2026-11-30T10:00:00+00:00', 'bench-7', 'x86_64', 'Linux', "
+                 "'CPython 3.11', '0.1.0')")
+    conn.commit()
+    conn.close()
+    with HistoryStore(store_path) as store:
+        (run,) = store.runs()
+        assert run.label == "main" and run.fingerprint is None
+        assert store.noise_floors("main") == {}
+    with sqlite3.connect(store_path) as conn:
+        assert conn.execute("PRAGMA user_version").fetchone()[0] == history.SCHEMA_VERSION == 2
+
+
 def test_empty_store_and_missing_store_are_clear_errors(store_path: Path) -> None:
     with pytest.raises(StoreError, match=r"no history store at .*--meanband-record"):
         HistoryStore(store_path, create=False)

@@ -5,6 +5,7 @@ from __future__ import annotations
 import hashlib
 import math
 import re
+from xml.etree import ElementTree
 
 import numpy as np
 import pytest
@@ -46,7 +47,7 @@ def baseline_line(result: pytest.RunResult, test: str) -> str:
     raise AssertionError(f"no baseline line for {test}:\n" + "\n".join(result.outlines))
 
 
-def test_twenty_percent_slowdown_is_a_regression_and_fails_the_session(
+def test_twenty_percent_slowdown_fails_its_test_with_the_baseline_block(
     pytester: pytest.Pytester, run_suite
 ) -> None:
     write_suite(pytester, data(1))
@@ -56,23 +57,69 @@ def test_twenty_percent_slowdown_is_a_regression_and_fails_the_session(
     first.stdout.fnmatch_lines(["meanband: recorded run 1 'main' in *history.sqlite"])
     assert (pytester.path / ".meanband" / "history.sqlite").exists()
 
-    slower = data(2, slowdown=1.2)
+    slower = data(2, slowdown=1.3)
     write_suite(pytester, slower)
-    second = run_suite("--meanband-baseline=main")
-    second.assert_outcomes(passed=2)  # the tests pass; the session fails on the regression
+    # No run-to-run allowance, so the interval is Welch's on the logs and can be checked.
+    second = run_suite("--meanband-baseline=main", "--meanband-run-noise=0",
+                       "--junitxml=junit.xml")
+    second.assert_outcomes(failed=1, passed=1)  # the regression is the test's own failure
     assert second.ret == 1
     line = baseline_line(second, "test_quote")
     assert line.endswith("regressed")
     # Reference: scipy.stats.ttest_ind(equal_var=False) on the logs, CI exponentiated.
     ci = stats.ttest_ind(np.log(slower["quote"]), np.log(data(1)["quote"]),
                          equal_var=False).confidence_interval(0.95)
-    assert f"[{math.exp(ci.low):.3f}, {math.exp(ci.high):.3f}]" in line
+    interval = f"[{math.exp(ci.low):.3f}, {math.exp(ci.high):.3f}]"
+    assert interval in line
     assert "<= 1.05x" in line
     second.stdout.fnmatch_lines([
+        "*_ test_quote _*",
+        "meanband baseline: test_fares.py::test_quote: REGRESSED against run 1 'main' of *",
+        f"  ratio *x {interval.replace('[', '[[]')} at 95%; allowed <= 1.05x",
+        "  mean * (n=40) against * (n=40 over 1 run)",
+        "  p-value * that it is within the limit; threshold 0.0125 (Holm, family-wise over 2 "
+        "comparisons)",
+        "  run-to-run noise allowed for: 0.0% between runs (none measured)",
+    ])
+    second.stdout.fnmatch_lines([
         "meanband: REGRESSION: 1 check(s) slower or moved beyond the allowed change from run 1 "
-        "'main'; the session fails:",
+        "'main'; their tests failed:",
         "  test_fares.py::test_quote",
     ])
+    # The plugin's source never shows in the failure: the block is the whole message.
+    failure = second.stdout.str().split("_ test_quote _", 1)[1].split("= meanband =", 1)[0]
+    assert "def " not in failure and "Recorder" not in failure
+    # JUnit carries the failure and the baseline figures.
+    junit = ElementTree.parse(pytester.path / "junit.xml").getroot()
+    case = next(c for c in junit.iter("testcase") if c.get("name") == "test_quote")
+    assert case.find("failure") is not None
+    props = {p.get("name"): p.get("value") for p in case.iter("property")}
+    assert props["meanband.baseline.regression"] == "True"
+    assert props["meanband.baseline.status"] == "regressed"
+    assert float(props["meanband.baseline.ratio_low"]) == pytest.approx(math.exp(ci.low), rel=1e-6)
+    assert float(props["meanband.baseline.ratio_high"]) == pytest.approx(math.exp(ci.high),
+                                                                         rel=1e-6)
+    rail = next(c for c in junit.iter("testcase") if c.get("name") == "test_rail")
+    assert rail.find("failure") is None
+    rail_props = {p.get("name"): p.get("value") for p in rail.iter("property")}
+    assert rail_props["meanband[volts].baseline.regression"] == "False"
+
+
+def test_regressed_test_is_reached_by_last_failed_and_stops_x(
+    pytester: pytest.Pytester, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    monkeypatch.setenv("PYTEST_DISABLE_PLUGIN_AUTOLOAD", "1")
+    write_suite(pytester, data(1))
+    assert pytester.runpytest("-p", "meanband", "--meanband-record=main").ret == 0
+    write_suite(pytester, data(2, slowdown=1.3))
+    flags = ("-p", "meanband", "--meanband-baseline=main", "--meanband-run-noise=0")
+    pytester.runpytest(*flags).assert_outcomes(failed=1, passed=1)
+    again = pytester.runpytest(*flags, "--lf", "-v")
+    again.assert_outcomes(failed=1)
+    again.stdout.fnmatch_lines(["*test_fares.py::test_quote FAILED*"])
+    assert "test_rail" not in again.stdout.str()
+    stopped = pytester.runpytest(*flags, "-x")
+    stopped.assert_outcomes(failed=1)  # test_rail never ran
 
 
 def test_same_distribution_is_not_a_regression(pytester: pytest.Pytester, run_suite) -> None:
@@ -126,16 +173,19 @@ def test_record_and_baseline_under_xdist_write_once(pytester: pytest.Pytester, r
     write_suite(pytester, data(1))
     first = run_suite("-n", "2", "--meanband-record=main")
     assert first.ret == 0
-    write_suite(pytester, data(2, slowdown=1.2))
-    second = run_suite("-n", "2", "--meanband-baseline=main", "--meanband-record=feature")
+    write_suite(pytester, data(2, slowdown=1.3))
+    second = run_suite("-n", "2", "--meanband-baseline=main", "--meanband-record=feature",
+                       "--meanband-run-noise=0")
     assert second.ret == 1
+    second.assert_outcomes(failed=1, passed=1)  # workers judge each check while it runs
+    second.stdout.fnmatch_lines(["meanband baseline: test_fares.py::test_quote: REGRESSED *"])
     assert baseline_line(second, "test_quote").endswith("regressed")
     with HistoryStore(pytester.path / ".meanband" / "history.sqlite", create=False) as store:
         runs = store.runs()
         assert [(r.label, r.checks) for r in runs] == [("feature", 2), ("main", 2)]
         stored = {c.nodeid: c for c in store.checks(runs[0].id)}
     # The trials that crossed from the workers are stored exactly.
-    assert stored["test_fares.py::test_quote"].values.tolist() == data(2, slowdown=1.2)["quote"]
+    assert stored["test_fares.py::test_quote"].values.tolist() == data(2, slowdown=1.3)["quote"]
 
 
 def test_baseline_key_reaches_other_plugins(pytester: pytest.Pytester, run_suite) -> None:
@@ -259,7 +309,8 @@ def test_zero_timings_fall_back_to_fieller_with_a_note(pytester: pytest.Pytester
                         "    trials.extend([0.0, 2e-6, 1e-6, 3e-6, 2e-6, 1e-6], unit='s')\n")
     run_suite("--meanband-record=main")
     result = run_suite("--meanband-baseline=main")
-    result.stdout.fnmatch_lines(["  test_fares.py::test_quote: some timings are zero or negative*Fieller*"])
+    result.stdout.fnmatch_lines(["  test_fares.py::test_quote: *some timings are zero or negative, "
+                                 "so they were compared on the relative scale*"])
 
 
 def test_cannot_tell_yet_says_how_many_trials_would_decide(
@@ -268,7 +319,8 @@ def test_cannot_tell_yet_says_how_many_trials_would_decide(
     write_suite(pytester, data(1))
     run_suite("--meanband-record=main")
     write_suite(pytester, data(6, slowdown=1.05))  # right on the limit, 30% noise, 40 trials
-    result = run_suite("--meanband-baseline=main")
+    # No run-to-run allowance: the trials alone leave it undecided, and more of them can decide.
+    result = run_suite("--meanband-baseline=main", "--meanband-run-noise=0")
     assert result.ret == 0  # undecided does not fail the session
     assert baseline_line(result, "test_quote").endswith("cannot tell yet")
     result.stdout.re_match_lines([
@@ -320,14 +372,15 @@ def test_interrupted_session_is_not_recorded(pytester: pytest.Pytester, run_suit
 
 
 def test_baseline_from_another_machine_gets_a_warning(pytester: pytest.Pytester, run_suite) -> None:
+    """A run stored before fingerprints existed: the machine words, as a note."""
     import sqlite3
 
     write_suite(pytester, data(1))
     run_suite("--meanband-record=main")
     store = pytester.path / ".meanband" / "history.sqlite"
-    conn = sqlite3.connect(store)  # pretend it was recorded on a CI runner
+    conn = sqlite3.connect(store)  # pretend it was recorded on a CI runner, without fingerprint
     try:
-        conn.execute("UPDATE runs SET host = 'ci-runner-3', cpus = 64")
+        conn.execute("UPDATE runs SET host = 'ci-runner-3', cpus = 64, fingerprint_json = NULL")
         conn.commit()
     finally:
         conn.close()
@@ -339,3 +392,60 @@ def test_baseline_from_another_machine_gets_a_warning(pytester: pytest.Pytester,
     assert "timing ratios compare the machines" in same.stdout.str()
     again = run_suite("--meanband-baseline=again")
     assert "timing ratios compare the machines" not in again.stdout.str()
+
+
+def test_baseline_with_another_fingerprint_cannot_be_compared(
+    pytester: pytest.Pytester, run_suite
+) -> None:
+    import json
+    import sqlite3
+
+    write_suite(pytester, data(1))
+    run_suite("--meanband-record=main")
+    store = pytester.path / ".meanband" / "history.sqlite"
+    conn = sqlite3.connect(store)
+    try:
+        (text,) = conn.execute("SELECT fingerprint_json FROM runs").fetchone()
+        fingerprint = json.loads(text)
+        assert {"cpu_model", "cpu_count", "python", "clock_source", "load"} <= set(fingerprint)
+        fingerprint.update(cpu_count=64, governor="performance")
+        conn.execute("UPDATE runs SET fingerprint_json = ?", (json.dumps(fingerprint),))
+        conn.commit()
+    finally:
+        conn.close()
+    write_suite(pytester, data(2, slowdown=2.0))
+    result = run_suite("--meanband-baseline=main")
+    result.assert_outcomes(passed=2)  # no verdict across machines
+    assert result.ret == 0
+    result.stdout.fnmatch_lines([
+        "*test_fares.py::test_quote: cannot compare: the baseline ran on a machine that times "
+        "differently (cpu count 64 -> *",
+        "meanband: WARNING: the baseline ran on a machine that times differently (cpu count 64 "
+        "-> *); no timing was compared. *--meanband-compare-anywhere",
+    ])
+    # A sensor reading does not depend on the CPU: it is still compared.
+    assert baseline_line(result, "test_rail [volts]").endswith("no regression")
+    forced = run_suite("--meanband-baseline=main", "--meanband-compare-anywhere")
+    forced.assert_outcomes(failed=1, passed=1)
+    forced.stdout.fnmatch_lines(["meanband: WARNING: compared with a baseline from a machine that "
+                                 "times differently (cpu count 64 -> *), as "
+                                 "--meanband-compare-anywhere asked"])
+
+
+def test_stale_baseline_is_a_loud_warning(pytester: pytest.Pytester, run_suite) -> None:
+    import sqlite3
+
+    write_suite(pytester, data(1))
+    run_suite("--meanband-record=main")
+    conn = sqlite3.connect(pytester.path / ".meanband" / "history.sqlite")
+    try:
+        conn.execute("UPDATE runs SET started = '2026-01-02T08:00:00+00:00'")
+        conn.commit()
+    finally:
+        conn.close()
+    result = run_suite("--meanband-baseline=main")
+    result.stdout.fnmatch_lines(["meanband: WARNING: the baseline's newest run (run 1, "
+                                 "2026-01-02T08:00:00+00:00) is * days old, older than 30 days; "
+                                 "record a fresh one with --meanband-record"])
+    fresh = run_suite("--meanband-baseline=main", "--meanband-baseline-max-age=3650")
+    assert "days old" not in fresh.stdout.str()

@@ -3,6 +3,10 @@
 from __future__ import annotations
 
 __all__ = [
+    "ASSUMED_RUN_NOISE",
+    "BASELINE_MAX_AGE_DAYS",
+    "BASELINE_RUNS",
+    "BASELINE_UNDECIDED",
     "CLOCK",
     "CONFIDENCE",
     "GC",
@@ -14,6 +18,7 @@ __all__ = [
     "NORMALITY_ALPHA",
     "OVERDUE_CALIBRATION",
     "POWER",
+    "REGRESSION_ADJUST",
     "STORE_TIMEOUT",
     "WARMUP",
     "N",
@@ -46,3 +51,13 @@ OVERDUE_CALIBRATION = "note"
 MIN_UNCERTAINTY_RATIO = 4.0
 #: Seconds to wait for another process that holds the history store's write lock.
 STORE_TIMEOUT = 10.0
+#: How many of a label's newest runs make its baseline.
+BASELINE_RUNS = 5
+#: Run-to-run spread (log scale) assumed when no stored runs or calibration measured it.
+ASSUMED_RUN_NOISE = 0.03
+#: Control of false "regressed" verdicts across all checks of a run: "holm", "bh" or "none".
+REGRESSION_ADJUST = "holm"
+#: What a baseline comparison that cannot tell yet does to its test: "pass" (with a note) or "fail".
+BASELINE_UNDECIDED = "pass"
+#: A baseline whose newest run is older than this many days gets a loud note.
+BASELINE_MAX_AGE_DAYS = 30.0

@@ -5,6 +5,8 @@ from __future__ import annotations
 import itertools
 import math
 import os
+from collections.abc import Generator
+from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -15,7 +17,7 @@ from meanband.plugin.options import resolve_path, resolve_value
 
 if TYPE_CHECKING:
     from meanband.stats.regression import Limits
-    from meanband.store.history import StoredCheck
+    from meanband.store.baseline import Baseline
 
 HISTORY_PLUGIN_NAME = "meanband-history"
 
@@ -25,8 +27,21 @@ _HELP = {
     ".meanband/history.sqlite under the rootdir).",
     "record": "Store this run's checks and trials in the history store, under LABEL (default: "
     "the git branch). Write the label with '=': --meanband-record=main.",
-    "baseline": "Compare every check with the same check in a stored run: the newest run with "
-    "LABEL, run number N, or the newest run when no label is given (--meanband-baseline=main).",
+    "baseline": "Compare every check with the same check in stored runs: the newest runs with "
+    "LABEL, run number N, or the newest run when no label is given (--meanband-baseline=main). "
+    "A regressed check fails its test.",
+    "baseline_runs": "How many of the label's newest runs make the baseline; their spread is "
+    "the run-to-run noise the comparison allows for (default 5).",
+    "regression_adjust": "Control of false 'regressed' verdicts across the run's checks: holm "
+    "(family-wise, the default), bh (false discovery rate) or none.",
+    "baseline_undecided": "What a comparison that cannot tell yet does to its test: pass (with "
+    "a note, the default) or fail.",
+    "baseline_max_age": "A baseline whose newest run is older than this many days gets a "
+    "warning (default 30).",
+    "run_noise": "Run-to-run spread of a timing assumed when no stored runs or calibration "
+    "measured it, e.g. '3%%' (the default); 0 compares a one-run baseline on its trials alone.",
+    "compare_anywhere": "Compare with a baseline recorded on a machine or Python that times "
+    "differently (by default such checks are 'cannot compare').",
     "max_increase": "How much slower than its baseline a timing may be before it counts as "
     "regressed, e.g. '5%%' (default 5%%).",
     "max_change": "How far a measured value (not a timing) may move from its baseline either "
@@ -37,6 +52,9 @@ _HELP = {
     "(default 10).",
 }
 
+#: Key of workerinput under which the controller hands workers the baseline to read.
+_WORKER_KEY = "meanband_baseline"
+
 
 def pytest_addoption(parser: pytest.Parser) -> None:
     group = parser.getgroup("meanband")
@@ -46,6 +64,18 @@ def pytest_addoption(parser: pytest.Parser) -> None:
                     const="", default=None, help=_HELP["record"])
     group.addoption("--meanband-baseline", dest="meanband_baseline", metavar="LABEL", nargs="?",
                     const="latest", default=None, help=_HELP["baseline"])
+    group.addoption("--meanband-baseline-runs", dest="meanband_baseline_runs", metavar="K",
+                    default=None, help=_HELP["baseline_runs"])
+    group.addoption("--meanband-regression-adjust", dest="meanband_regression_adjust",
+                    metavar="METHOD", default=None, help=_HELP["regression_adjust"])
+    group.addoption("--meanband-baseline-undecided", dest="meanband_baseline_undecided",
+                    metavar="ACTION", default=None, help=_HELP["baseline_undecided"])
+    group.addoption("--meanband-baseline-max-age", dest="meanband_baseline_max_age",
+                    metavar="DAYS", default=None, help=_HELP["baseline_max_age"])
+    group.addoption("--meanband-run-noise", dest="meanband_run_noise", metavar="FRACTION",
+                    default=None, help=_HELP["run_noise"])
+    group.addoption("--meanband-compare-anywhere", dest="meanband_compare_anywhere",
+                    action="store_true", default=False, help=_HELP["compare_anywhere"])
     group.addoption("--meanband-max-increase", dest="meanband_max_increase", metavar="FRACTION",
                     default=None, help=_HELP["max_increase"])
     group.addoption("--meanband-max-change", dest="meanband_max_change", metavar="FRACTION",
@@ -54,21 +84,42 @@ def pytest_addoption(parser: pytest.Parser) -> None:
                     action="store_true", default=False, help=_HELP["record_partial"])
     group.addoption("--meanband-store-timeout", dest="meanband_store_timeout", metavar="SECONDS",
                     default=None, help=_HELP["store_timeout"])
-    for name in ("store", "max_increase", "max_change", "store_timeout"):
+    for name in ("store", "max_increase", "max_change", "store_timeout", "baseline_runs",
+                 "regression_adjust", "baseline_undecided", "baseline_max_age", "run_noise"):
         parser.addini(f"meanband_{name}", _HELP[name], type="string", default=None)
 
 
+@dataclass(frozen=True)
+class BaselineSettings:
+    """How checks are judged against the baseline, resolved once from options and ini."""
+
+    limits: Limits
+    keep: int
+    adjustment: str
+    undecided: str
+    max_age: float
+    anywhere: bool
+    run_noise: float
+
+
 def pytest_configure(config: pytest.Config) -> None:
-    if hasattr(config, "workerinput"):
-        return  # only the controller reads and writes the store
     record = config.getoption("meanband_record")
     baseline = config.getoption("meanband_baseline")
     if record is None and baseline is None:
         return
     from meanband.errors import StoreError
-    from meanband.stats.regression import Limits
+    from meanband.store.database import store_location
     from meanband.store.history import DEFAULT_STORE
 
+    worker = getattr(config, "workerinput", None)
+    if worker is not None:
+        handed = worker.get(_WORKER_KEY)
+        if handed is not None:  # the controller chose the runs; read them without a writer
+            plugin = HistoryPlugin(config, store_location(handed["store"]), _settings(config),
+                                   float(handed["timeout"]), None)
+            plugin.load_runs(handed["runs"], handed["mismatch"])
+            config.pluginmanager.register(plugin, HISTORY_PLUGIN_NAME)
+        return
     args = [str(a) for a in config.invocation_params.args]
     for option, value in (("--meanband-record", record), ("--meanband-baseline", baseline)):
         # "--meanband-record tests/" takes the path as the label; "--meanband-record=main" is
@@ -79,15 +130,10 @@ def pytest_configure(config: pytest.Config) -> None:
                 f"{option} took {value!r} as its label, but that is a path; write the label "
                 f"with '=' ({option}=LABEL) or put the option after the paths"
             )
-    limits = Limits(
-        max_increase=resolve_value(config, "max_increase", _relative("--meanband-max-increase"),
-                                   defaults.MAX_INCREASE),
-        max_change=resolve_value(config, "max_change", _relative("--meanband-max-change"),
-                                 defaults.MAX_CHANGE),
-    )
+    settings = _settings(config)
     timeout = resolve_value(config, "store_timeout", _timeout_seconds, defaults.STORE_TIMEOUT)
     store = _store_location(config, DEFAULT_STORE)
-    plugin = HistoryPlugin(config, store, limits, timeout, record)
+    plugin = HistoryPlugin(config, store, settings, timeout, record)
     if baseline is not None:
         try:
             plugin.load_baseline(baseline)
@@ -109,6 +155,29 @@ def _store_location(config: pytest.Config, default: Path) -> Path | str:
     return store
 
 
+def _settings(config: pytest.Config) -> BaselineSettings:
+    from meanband.stats.multiplicity import check_adjustment
+    from meanband.stats.regression import Limits
+
+    return BaselineSettings(
+        limits=Limits(
+            max_increase=resolve_value(config, "max_increase",
+                                       _relative("--meanband-max-increase"), defaults.MAX_INCREASE),
+            max_change=resolve_value(config, "max_change", _relative("--meanband-max-change"),
+                                     defaults.MAX_CHANGE),
+        ),
+        keep=resolve_value(config, "baseline_runs", _run_count, defaults.BASELINE_RUNS),
+        adjustment=resolve_value(config, "regression_adjust", check_adjustment,
+                                 defaults.REGRESSION_ADJUST),
+        undecided=resolve_value(config, "baseline_undecided", _pass_or_fail,
+                                defaults.BASELINE_UNDECIDED),
+        max_age=resolve_value(config, "baseline_max_age", _days, defaults.BASELINE_MAX_AGE_DAYS),
+        anywhere=bool(config.getoption("meanband_compare_anywhere")),
+        run_noise=resolve_value(config, "run_noise", _relative("--meanband-run-noise"),
+                                defaults.ASSUMED_RUN_NOISE),
+    )
+
+
 def _relative(option: str) -> Any:
     """A parser of relative amounts ("5%" or 0.05) whose errors name ``option``."""
     from meanband.stats.ratio import parse_fraction
@@ -126,32 +195,99 @@ def _timeout_seconds(given: Any) -> float:
     return seconds
 
 
+def _run_count(given: Any) -> int:
+    try:
+        count = int(str(given).strip())
+    except ValueError:
+        raise ValueError(f"{given!r} is not a whole number of runs") from None
+    if count < 1:
+        raise ValueError(f"a baseline needs at least 1 run, got {count}")
+    return count
+
+
+def _pass_or_fail(given: Any) -> str:
+    word = str(given).strip().lower()
+    if word not in ("pass", "fail"):
+        raise ValueError(f"{given!r} is neither 'pass' nor 'fail'")
+    return word
+
+
+def _days(given: Any) -> float:
+    try:
+        days = float(given)
+    except ValueError:
+        raise ValueError(f"{given!r} is not a number of days") from None
+    if not math.isfinite(days) or days <= 0:
+        raise ValueError(f"the age must be more than 0 days, got {given!r}")
+    return days
+
+
 class HistoryPlugin:
-    """Compares rows with the baseline as they arrive; records the run at the end."""
+    """Compares each check with the baseline while its test runs; records the run at the end.
+
+    A regressed check fails its own test (so pytest's outcome, JUnit, ``--lf`` and ``-x`` see
+    it); what only the whole run can decide (the full step-down of the suite-level adjustment)
+    fails the session.
+    """
 
     def __init__(
-        self, config: pytest.Config, store: Path | str, limits: Limits, timeout: float,
+        self, config: pytest.Config, store: Path | str, settings: BaselineSettings, timeout: float,
         record: str | None,
     ) -> None:
         self.config = config
         self.store = store
-        self.limits = limits
+        self.settings = settings
         self.timeout = timeout
         self.record = record
-        self.baseline_run: Any = None
-        self.baseline_checks: dict[tuple[str, str], StoredCheck] = {}
+        self.baseline: Baseline | None = None
+        self.mismatch: list[str] = []
+        self.comparisons = 0
         self.session: pytest.Session | None = None
         self.recorded: tuple[int, str] | None = None
         self.record_error: str | None = None
         self.record_skipped: str | None = None
+        self.late: list[str] = []
         self._environment: dict[str, Any] | None = None
 
+    @property
+    def limits(self) -> Limits:
+        return self.settings.limits
+
+    # -- reading the baseline once ---------------------------------------------------------
+
     def load_baseline(self, ref: str) -> None:
+        from meanband.store.baseline import load_baseline
+        from meanband.store.environment import fingerprint_difference
         from meanband.store.history import HistoryStore
 
         with HistoryStore(self.store, create=False, read_only=True, timeout=self.timeout) as store:
-            self.baseline_run = store.find_run(ref)
-            self.baseline_checks = {c.key: c for c in store.checks(self.baseline_run.id)}
+            self.baseline = load_baseline(store, ref, self.settings.keep,
+                                          assumed=self.settings.run_noise)
+        now = self.environment().get("fingerprint")
+        differences: list[str] = []
+        for run in self.baseline.runs:
+            for words in fingerprint_difference(run.fingerprint, now):
+                if words not in differences:
+                    differences.append(words)
+        self.mismatch = differences
+
+    def load_runs(self, run_ids: list[int], mismatch: list[str]) -> None:
+        """A worker reads exactly the runs the controller chose, read-only."""
+        from meanband.store.baseline import read_baseline
+        from meanband.store.history import HistoryStore
+
+        with HistoryStore(self.store, create=False, read_only=True, timeout=self.timeout) as store:
+            self.baseline = read_baseline(store, run_ids, assumed=self.settings.run_noise)
+        self.mismatch = list(mismatch)
+
+    @pytest.hookimpl(optionalhook=True)
+    def pytest_configure_node(self, node: Any) -> None:
+        """pytest-xdist: hand each worker the store and the run ids of the baseline."""
+        if self.baseline is not None:
+            node.workerinput[_WORKER_KEY] = {
+                "store": str(self.store), "runs": self.baseline.run_ids,
+                "mismatch": self.mismatch, "timeout": self.timeout,
+            }
 
     def environment(self) -> dict[str, Any]:
         """This run's commit, machine and Python, looked up once."""
@@ -164,32 +300,107 @@ class HistoryPlugin:
     def pytest_sessionstart(self, session: pytest.Session) -> None:
         self.session = session
 
-    def pytest_meanband_result(self, config: pytest.Config, row: dict[str, Any]) -> None:
-        if self.baseline_run is not None:
-            row["baseline"] = self._compare(row)
+    def pytest_collection_finish(self, session: pytest.Session) -> None:
+        """The size of the family of comparisons: baseline checks of the tests that will run."""
+        if self.baseline is None:
+            return
+        selected = {item.nodeid for item in session.items}
+        self.comparisons = sum(1 for nodeid, _ in self.baseline.checks if nodeid in selected)
 
-    def _compare(self, row: dict[str, Any]) -> dict[str, Any]:
-        from meanband.stats.regression import compare_check
+    # -- judging each check while its test runs --------------------------------------------
 
-        run = self.baseline_run
-        about = {"run": run.id, "label": run.label, "started": run.started, "commit": run.commit}
-        stored = self.baseline_checks.get((row.get("nodeid", ""), row.get("series", "")))
-        settings = row.get("settings") or {}
-        result = compare_check(
-            row.get("values") or [], None if stored is None else stored.values,
-            unit=row.get("unit"), source=row.get("source"),
-            baseline_unit=None if stored is None else stored.unit, baseline_run=f"run {run.id}",
-            confidence=settings.get("confidence", defaults.CONFIDENCE), limits=self.limits,
-            power=settings.get("power", defaults.POWER),
+    @pytest.hookimpl(wrapper=True)
+    def pytest_runtest_makereport(
+        self, item: pytest.Item, call: pytest.CallInfo[None]
+    ) -> Generator[None, pytest.TestReport, pytest.TestReport]:
+        report = yield
+        rows = getattr(report, "meanband_rows", None)
+        if self.baseline is None or not rows:
+            return report
+        from meanband.report.baseline import baseline_properties, failure_block
+
+        blocks: list[str] = []
+        for row in rows:
+            if row.get("baseline") is None:
+                row["baseline"] = self.compare(row)
+            info = row["baseline"]
+            # JUnit reads the properties of the item when the test is torn down.
+            properties = baseline_properties(row)
+            item.user_properties.extend(properties)
+            report.user_properties.extend(properties)
+            if self._fails_test(info):
+                blocks.append("\n".join(failure_block(row, self.settings.adjustment)))
+        if blocks:
+            text = "\n\n".join(blocks)
+            if report.passed:
+                report.outcome = "failed"
+                report.longrepr = text
+            else:
+                report.sections.append(("meanband baseline", text))
+        return report
+
+    def _fails_test(self, info: dict[str, Any]) -> bool:
+        from meanband.stats.regression import CANNOT_TELL, REGRESSED
+
+        status = info.get("status")
+        return status == REGRESSED or (status == CANNOT_TELL and
+                                       self.settings.undecided == "fail")
+
+    def compare(self, row: dict[str, Any]) -> dict[str, Any]:
+        """The row's ``baseline`` entry: the verdict against the baseline runs, or why none."""
+        from meanband.errors import TrialError
+        from meanband.stats.multiplicity import immediate_threshold
+        from meanband.stats.regression import (
+            CANNOT_COMPARE,
+            NO_BASELINE,
+            NOT_COMPARED,
+            compare_with_runs,
+            is_timing,
         )
+
+        assert self.baseline is not None
+        about: dict[str, Any] = {**self.baseline.describe(),
+                                 "adjustment": self.settings.adjustment,
+                                 "comparisons": self.comparisons}
+        key = (row.get("nodeid", ""), row.get("series", ""))
+        stored = self.baseline.checks.get(key)
+        where = _runs_words(self.baseline.run_ids)
+        if row.get("source") == "compare":
+            return {**about, "status": NOT_COMPARED,
+                    "reason": "an in-run comparison is its own gate"}
+        if stored is None or not stored.runs:
+            return {**about, "status": NO_BASELINE, "reason": f"{where} has no trials for this check"}
+        if stored.unit != row.get("unit"):
+            return {**about, "status": NOT_COMPARED,
+                    "reason": f"the unit changed from {stored.unit or 'none'} to "
+                              f"{row.get('unit') or 'none'} since {where}"}
+        timing = is_timing(row.get("unit"), row.get("source"))
+        if timing and self.mismatch and not self.settings.anywhere:
+            return {**about, "status": CANNOT_COMPARE,
+                    "reason": "the baseline ran on a machine that times differently ("
+                              + "; ".join(self.mismatch)
+                              + "); --meanband-compare-anywhere compares anyway"}
+        settings = row.get("settings") or {}
+        confidence = settings.get("confidence", defaults.CONFIDENCE)
+        alpha = (1.0 - confidence) / 2.0
+        threshold = immediate_threshold(alpha, self.comparisons, self.settings.adjustment)
+        try:
+            result = compare_with_runs(
+                row.get("values") or [], list(stored.runs), stored.between, timing=timing,
+                confidence=confidence, limits=self.limits, threshold=threshold,
+                power=settings.get("power", defaults.POWER),
+            )
+        except TrialError as exc:
+            return {**about, "status": NOT_COMPARED, "reason": str(exc)}
         return {**about, **result}
 
+    # -- the end of the session ------------------------------------------------------------
+
+    @pytest.hookimpl(tryfirst=True)
     def pytest_meanband_session_finish(
         self, config: pytest.Config, rows: list[dict[str, Any]]
     ) -> None:
-        from meanband.stats.regression import REGRESSED
-
-        failed = any((r.get("baseline") or {}).get("status") == REGRESSED for r in rows)
+        failed = bool(self._adjust_at_end(rows))
         if self.record is not None and rows:  # a run without checks is no baseline
             reason = self._not_recorded_reason()
             if reason is None:
@@ -198,6 +409,33 @@ class HistoryPlugin:
                 self.record_skipped = reason
         if failed and self.session is not None and self.session.exitstatus == pytest.ExitCode.OK:
             self.session.exitstatus = pytest.ExitCode.TESTS_FAILED
+
+    def _adjust_at_end(self, rows: list[dict[str, Any]]) -> list[str]:
+        """The full Holm step-down or BH step-up over all p-values of the run: checks it adds
+        are regressed too, but their tests have already reported, so the session fails."""
+        from meanband.report.rows import row_name
+        from meanband.stats.multiplicity import adjusted_rejections
+        from meanband.stats.regression import REGRESSED
+
+        judged = [r for r in rows if (r.get("baseline") or {}).get("p_value") is not None]
+        if not judged or self.settings.adjustment == "none":
+            return []
+        family = max(int(r["baseline"].get("comparisons") or 0) for r in judged)
+        by_level: dict[float, list[dict[str, Any]]] = {}
+        for row in judged:
+            alpha = (1.0 - float(row["baseline"]["ratio"]["confidence"])) / 2.0
+            by_level.setdefault(alpha, []).append(row)
+        for alpha, group in by_level.items():
+            p_values = [float(r["baseline"]["p_value"]) for r in group]
+            for row, rejected in zip(group, adjusted_rejections(
+                    p_values, alpha, self.settings.adjustment, family), strict=True):
+                info = row["baseline"]
+                if rejected and info["status"] != REGRESSED:
+                    info["status"] = REGRESSED
+                    info["found_at_end"] = True
+                    info.pop("suggested_n", None)
+                    self.late.append(row_name(row))
+        return self.late
 
     def _not_recorded_reason(self) -> str | None:
         """Why this run makes no baseline: it did not run, or ran only part of, its selection."""
@@ -235,10 +473,14 @@ class HistoryPlugin:
         lines: list[str] = []
         if not rows and self.record is not None:
             lines.append("meanband: no test recorded trials, so there was nothing to record")
-        if self.baseline_run is not None:
-            elsewhere = machine_difference(self.baseline_run, self.environment())
-            if elsewhere:
-                lines.append(f"note: {elsewhere}")
+        if self.baseline is not None:
+            lines += self._baseline_warnings()
+        if self.late:
+            which = self.settings.adjustment
+            lines += ["", f"meanband: REGRESSION: {len(self.late)} check(s) regressed by the "
+                      f"{'Holm step-down' if which == 'holm' else 'Benjamini-Hochberg step-up'} "
+                      "over the whole run, after their tests had passed; the session fails:"]
+            lines += [f"  {name}" for name in self.late]
         if self.recorded is not None:
             run_id, label = self.recorded
             named = f" '{label}'" if label else ""
@@ -250,6 +492,38 @@ class HistoryPlugin:
         if self.record_error is not None:
             lines += ["", f"meanband: ERROR: this run was not recorded: {self.record_error}"]
         return lines
+
+    def _baseline_warnings(self) -> list[str]:
+        assert self.baseline is not None
+        lines: list[str] = []
+        age = self.baseline.age_days()
+        if age is not None and age > self.settings.max_age:
+            lines.append(
+                f"meanband: WARNING: the baseline's newest run ({_runs_words([self.baseline.newest.id])}, "
+                f"{self.baseline.newest.started}) is {age:.0f} days old, older than "
+                f"{self.settings.max_age:g} days; record a fresh one with --meanband-record"
+            )
+        if self.mismatch:
+            if self.settings.anywhere:
+                lines.append("meanband: WARNING: compared with a baseline from a machine that "
+                             f"times differently ({'; '.join(self.mismatch)}), as "
+                             "--meanband-compare-anywhere asked")
+            else:
+                lines.append("meanband: WARNING: the baseline ran on a machine that times "
+                             f"differently ({'; '.join(self.mismatch)}); no timing was compared. "
+                             "Record a baseline on this kind of machine, or add "
+                             "--meanband-compare-anywhere")
+        elsewhere = [machine_difference(run, self.environment()) for run in self.baseline.runs
+                     if run.fingerprint is None]
+        for words in dict.fromkeys(w for w in elsewhere if w):
+            lines.append(f"note: {words}")
+        return lines
+
+
+def _runs_words(run_ids: list[int]) -> str:
+    if len(run_ids) == 1:
+        return f"run {run_ids[0]}"
+    return "runs " + ", ".join(str(i) for i in run_ids)
 
 
 def machine_difference(run: Any, environment: dict[str, Any]) -> str | None:

@@ -238,6 +238,13 @@ class BaselineRecord(_BaselineCore, total=False):
     n_baseline: int
     suggested_n: int | None
     note: str
+    runs: list[int]
+    adjustment: str
+    comparisons: int
+    p_value: float
+    threshold: float
+    noise: dict[str, Any]
+    found_at_end: bool
 
 
 class _SuggestionCore(TypedDict):

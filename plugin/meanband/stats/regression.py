@@ -12,10 +12,12 @@ import numpy as np
 from meanband import defaults
 from meanband.errors import TrialError
 from meanband.stats.ratio import RatioInterval, judge_ratio, ratio_interval
+from meanband.stats.run_noise import Between, TwoLevelRatio
 from meanband.stats.verdict import Verdict
 from meanband.units import SECONDS
 
 __all__ = [
+    "CANNOT_COMPARE",
     "CANNOT_TELL",
     "DEFAULT_MAX_CHANGE",
     "DEFAULT_MAX_INCREASE",
@@ -26,6 +28,7 @@ __all__ = [
     "Limits",
     "compare_check",
     "compare_samples",
+    "compare_with_runs",
     "is_timing",
 ]
 
@@ -33,6 +36,8 @@ REGRESSED = "regressed"
 NO_REGRESSION = "no regression"
 CANNOT_TELL = "cannot tell yet"
 NO_BASELINE = "no baseline"
+#: The baseline ran on a machine or interpreter that times differently.
+CANNOT_COMPARE = "cannot compare"
 
 #: A timing may grow by this fraction of its baseline before it counts as a regression.
 DEFAULT_MAX_INCREASE = defaults.MAX_INCREASE
@@ -174,3 +179,102 @@ def compare_check(
                                confidence=confidence, limits=limits, power=power)
     except TrialError as exc:
         return {"status": NOT_COMPARED, "reason": str(exc)}
+
+
+def compare_with_runs(
+    current: Iterable[float] | np.ndarray,
+    baseline_runs: list[np.ndarray],
+    between: Between,
+    *,
+    timing: bool,
+    confidence: float = defaults.CONFIDENCE,
+    limits: Limits | None = None,
+    threshold: float | None = None,
+    power: float = defaults.POWER,
+) -> dict[str, Any]:
+    """Compare ``current`` trials with a baseline of several runs, run-to-run noise included.
+
+    The interval is :func:`meanband.stats.run_noise.two_level_ratio`. A check is ``regressed``
+    when the p-value of "within the limit" is at most ``threshold`` (the one-sided
+    ``(1 - confidence) / 2`` unless a suite-level adjustment lowers it), ``no regression`` when
+    the interval lies inside the allowed range, and ``cannot tell yet`` otherwise.
+    Builtin types only.
+    """
+    from meanband.stats.run_noise import two_level_ratio
+
+    limits = limits or Limits()
+    xc = np.asarray(current, dtype=np.float64)
+    positive = bool(np.all(xc > 0) and all(np.all(r > 0) for r in baseline_runs))
+    interval = two_level_ratio(xc, baseline_runs, between, log=positive, confidence=confidence)
+    low, high = limits.band(timing)
+    p_value = interval.one_sided_p(high, above=True)
+    if math.isfinite(low):
+        p_value = min(p_value, interval.one_sided_p(low, above=False))
+    alpha = (1.0 - interval.confidence) / 2.0
+    limit = alpha if threshold is None else threshold
+    if p_value <= limit:
+        status = REGRESSED
+    elif low <= interval.low and interval.high <= high:
+        status = NO_REGRESSION
+    else:
+        status = CANNOT_TELL
+    result: dict[str, Any] = {
+        "status": status,
+        "timing": timing,
+        "ratio": {
+            "ratio": interval.ratio, "low": interval.low, "high": interval.high,
+            "confidence": interval.confidence, "df": interval.df, "bounded": True,
+            "method": "two-level log" if positive else "two-level relative",
+            "estimand": "geometric means" if positive else "means",
+        },
+        "limit_low": None if math.isinf(low) else low,
+        "limit_high": high,
+        "current_mean": interval.mean_current,
+        "baseline_mean": interval.mean_baseline,
+        "n_current": interval.n_current,
+        "n_baseline": interval.n_baseline,
+        "p_value": p_value,
+        "threshold": limit,
+        "noise": {"between_sd": interval.between_sd, "source": interval.between_source,
+                  "runs": interval.baseline_runs, "df": between.df},
+    }
+    if status == CANNOT_TELL:
+        result.update(_runs_or_trials_to_decide(xc, baseline_runs, interval, between,
+                                                (low, high), power))
+    if timing and not positive:
+        words = ("some timings are zero or negative, so they were compared on the relative "
+                 "scale rather than the log scale")
+        result["note"] = f"{result['note']}; {words}" if result.get("note") else words
+    return result
+
+
+def _runs_or_trials_to_decide(
+    xc: np.ndarray, baseline_runs: list[np.ndarray], interval: TwoLevelRatio, between: Between,
+    band: tuple[float, float], power: float,
+) -> dict[str, Any]:
+    """Trials per run that would likely decide an undecided comparison, or why none would.
+
+    The run-to-run part of the variance, ``tau^2 (1 + 1/K)``, does not shrink with more trials:
+    when it alone leaves the interval wider than the distance to the nearest edge, more trials
+    cannot decide and the note says what can. Otherwise the count solves
+    ``(z_(1-a/2) + z_power) * sqrt(run part + (s_c^2 + s_b^2) / n) = distance`` (normal
+    approximation, as in :mod:`meanband.stats.planning`).
+    """
+    from scipy import stats
+
+    edges = [interval._scale(e) for e in band if math.isfinite(e)]
+    distance = min(abs(interval.difference - e) for e in edges)
+    z = float(stats.norm.ppf(0.5 + interval.confidence / 2.0) + stats.norm.ppf(power))
+    run_part = between.variance * (1.0 + 1.0 / interval.baseline_runs)
+    needed = (distance / z) ** 2 - run_part if distance > 0 else -1.0
+    if needed <= 0:
+        return {"suggested_n": None, "note": (
+            f"run-to-run noise ({between.sd:.1%} between runs, {between.source}) leaves the "
+            "interval wider than its distance to the limit, so more trials per run will not "
+            "decide it; more baseline runs, an A/A calibration or a quieter machine can")}
+    scale = 1.0 if interval.log else abs(interval.mean_baseline)
+    pooled = np.concatenate(baseline_runs)
+    current = np.log(xc) if interval.log else xc / scale
+    base = np.log(pooled) if interval.log else pooled / scale
+    spread = float(np.var(current, ddof=1) + np.var(base, ddof=1))
+    return {"suggested_n": max(2, math.ceil(spread / needed))}

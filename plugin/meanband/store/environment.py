@@ -9,7 +9,14 @@ import subprocess
 from importlib import metadata
 from typing import Any
 
-__all__ = ["PACKAGES", "capture_environment", "python_words"]
+__all__ = [
+    "PACKAGES",
+    "TIMING_KEYS",
+    "capture_environment",
+    "fingerprint_difference",
+    "machine_fingerprint",
+    "python_words",
+]
 
 #: Packages whose versions a run records.
 PACKAGES = ("pytest-meanband", "pytest", "pluggy", "numpy", "scipy", "pytest-xdist")
@@ -42,6 +49,7 @@ def capture_environment(rootdir: str | os.PathLike[str] | None = None) -> dict[s
         "commit": None,
         "branch": None,
         "dirty": None,
+        "fingerprint": machine_fingerprint(),
     }
     commit = _git(rootdir, "rev-parse", "HEAD") if rootdir is not None else None
     if commit:
@@ -67,3 +75,84 @@ def _git(cwd: str | os.PathLike[str] | None, *args: str) -> str | None:
     except (OSError, subprocess.SubprocessError):
         return None
     return done.stdout.strip() if done.returncode == 0 else None
+
+
+#: The parts of a fingerprint that change timings by themselves: runs that differ in any of
+#: these are not compared (the load at start is kept for the record, since it varies anyway).
+TIMING_KEYS = ("cpu_model", "cpu_count", "implementation", "python", "system", "clock_source",
+               "governor", "boost")
+
+_SYS_CPU = "/sys/devices/system/cpu"
+
+
+def machine_fingerprint() -> dict[str, Any]:
+    """What a timing depends on besides the code: CPU, cores, interpreter, OS, clock, and where
+    Linux tells them, the frequency governor, the boost state and the load at start.
+
+    Builtin types only; an unreadable part is None (it then never blocks a comparison).
+    """
+    try:
+        load: float | None = round(os.getloadavg()[0], 2)
+    except (OSError, AttributeError):
+        load = None
+    return {
+        "cpu_model": _cpu_model(),
+        "cpu_count": os.cpu_count(),
+        "implementation": platform.python_implementation(),
+        # Patch releases keep the interpreter's speed; a minor release can change it.
+        "python": ".".join(platform.python_version_tuple()[:2]),
+        "system": platform.system(),
+        "kernel": platform.release() or None,
+        "clock_source": _read(f"{_SYS_CPU}/../clocksource/clocksource0/current_clocksource"),
+        "governor": _read(f"{_SYS_CPU}/cpu0/cpufreq/scaling_governor"),
+        "boost": _boost(),
+        "load": load,
+    }
+
+
+def fingerprint_difference(
+    then: dict[str, Any] | None, now: dict[str, Any] | None
+) -> list[str]:
+    """The timing-relevant parts in which two fingerprints differ, in words (empty: alike).
+
+    A part unknown on either side is not held against the comparison.
+    """
+    if not then or not now:
+        return []
+    words = []
+    for key in TIMING_KEYS:
+        a, b = then.get(key), now.get(key)
+        if a is not None and b is not None and a != b:
+            words.append(f"{key.replace('_', ' ')} {a} -> {b}")
+    return words
+
+
+def _cpu_model() -> str | None:
+    try:
+        with open("/proc/cpuinfo", encoding="utf-8", errors="replace") as handle:
+            for line in handle:
+                name, _, value = line.partition(":")
+                if name.strip() in ("model name", "Processor", "cpu model"):
+                    return value.strip() or None
+    except OSError:
+        pass
+    return platform.processor() or None
+
+
+def _boost() -> str | None:
+    """``on``/``off`` from the cpufreq boost switch or intel_pstate's no_turbo, else None."""
+    value = _read(f"{_SYS_CPU}/cpufreq/boost")
+    if value is not None:
+        return "on" if value == "1" else "off"
+    value = _read(f"{_SYS_CPU}/intel_pstate/no_turbo")
+    if value is not None:
+        return "off" if value == "1" else "on"
+    return None
+
+
+def _read(path: str) -> str | None:
+    try:
+        with open(path, encoding="utf-8", errors="replace") as handle:
+            return handle.read().strip() or None
+    except OSError:
+        return None

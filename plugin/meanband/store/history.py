@@ -28,6 +28,7 @@ __all__ = [
     "MIGRATIONS",
     "SCHEMA_VERSION",
     "HistoryStore",
+    "NoiseFloor",
     "RunInfo",
     "StoreError",
     "StoredCheck",
@@ -61,10 +62,35 @@ class RunInfo:
     python: str
     meanband: str
     checks: int
+    fingerprint: dict[str, Any] | None = None
 
     def to_dict(self) -> dict[str, Any]:
         """Builtin types only."""
         return {field.name: getattr(self, field.name) for field in dataclasses.fields(self)}
+
+
+@dataclass(frozen=True, slots=True)
+class NoiseFloor:
+    """The run-to-run spread of one check's run means, measured from runs of the same code.
+
+    ``between_sd`` is on the log scale (a relative spread: 0.03 is about 3% between runs) for
+    positive trials, and relative to the mean otherwise; ``df`` is its degrees of freedom.
+    ``position_shift`` is the mean log change from the first to the second half of a run's
+    trials, and ``position_p`` the two-sided p-value of that shift across the runs.
+    """
+
+    nodeid: str
+    series: str
+    between_sd: float
+    df: int
+    runs: int
+    position_shift: float | None = None
+    position_p: float | None = None
+    measured: str = ""
+
+    @property
+    def key(self) -> tuple[str, str]:
+        return (self.nodeid, self.series)
 
 
 @dataclass(frozen=True, slots=True, eq=False)
@@ -135,7 +161,27 @@ def _schema_1(conn: sqlite3.Connection) -> None:
     conn.execute("CREATE INDEX runs_by_label ON runs(label, id)")
 
 
-MIGRATIONS: list[Callable[[sqlite3.Connection], None]] = [_schema_1]
+def _schema_2(conn: sqlite3.Connection) -> None:
+    """Runs keep the machine fingerprint they ran on; a label keeps its run-to-run noise floors."""
+    conn.execute("ALTER TABLE runs ADD COLUMN fingerprint_json TEXT")
+    conn.execute(
+        """CREATE TABLE noise_floors (
+            id INTEGER PRIMARY KEY,
+            label TEXT NOT NULL,
+            nodeid TEXT NOT NULL,
+            series TEXT NOT NULL,
+            between_sd REAL NOT NULL,
+            df INTEGER NOT NULL,
+            runs INTEGER NOT NULL,
+            position_shift REAL,
+            position_p REAL,
+            measured TEXT NOT NULL
+        )"""
+    )
+    conn.execute("CREATE INDEX floors_by_label ON noise_floors(label, nodeid, series, id)")
+
+
+MIGRATIONS: list[Callable[[sqlite3.Connection], None]] = [_schema_1, _schema_2]
 SCHEMA_VERSION = len(MIGRATIONS)
 
 
@@ -306,13 +352,16 @@ class HistoryStore:
             try:
                 cursor = conn.execute(
                     "INSERT INTO runs (label, started, git_commit, git_branch, git_dirty, host, "
-                    "machine, cpus, system, python, meanband) VALUES (?,?,?,?,?,?,?,?,?,?,?)",
+                    "machine, cpus, system, python, meanband, fingerprint_json) "
+                    "VALUES (?,?,?,?,?,?,?,?,?,?,?,?)",
                     (
                         str(label), when, env.get("commit"), env.get("branch"),
                         None if env.get("dirty") is None else int(bool(env["dirty"])),
                         str(env.get("hostname", "")), str(env.get("machine", "")),
                         env.get("cpu_count"), str(env.get("platform", "")), python_words(env),
                         str(env.get("meanband", "")),
+                        None if env.get("fingerprint") is None
+                        else json.dumps(env["fingerprint"], sort_keys=True),
                     ),
                 )
                 run_id = int(cursor.lastrowid or 0)
@@ -389,6 +438,58 @@ class HistoryStore:
             f"no run labelled or numbered {text!r} in {self.path} ({known}; run ids "
             f"{runs[-1].id}..{runs[0].id}); record one with --meanband-record={text}"
         )
+
+    def baseline_runs(self, ref: str | int | None, keep: int) -> list[RunInfo]:
+        """The runs a baseline is made of, newest first: the ``keep`` newest runs with label
+        ``ref``, or the single run a number or ``"latest"`` names."""
+        if keep < 1:
+            raise StoreError(f"a baseline needs at least 1 run, got {keep}")
+        first = self.find_run(ref)
+        if ref is None or str(ref) in ("", "latest") or first.label != str(ref):
+            return [first]
+        return [run for run in self.runs() if run.label == first.label][:keep]
+
+    def save_noise_floors(self, label: str, floors: Iterable[NoiseFloor]) -> int:
+        """Store measured noise floors for ``label`` in one transaction; return how many.
+
+        Earlier floors stay (the newest one of a check is the one read), so a calibration can
+        be traced afterwards.
+        """
+        when = datetime.now(timezone.utc).isoformat(timespec="seconds")
+        conn = self._conn
+        count = 0
+        with self._translate_errors():
+            conn.execute("BEGIN IMMEDIATE")
+            try:
+                for floor in floors:
+                    conn.execute(
+                        "INSERT INTO noise_floors (label, nodeid, series, between_sd, df, runs, "
+                        "position_shift, position_p, measured) VALUES (?,?,?,?,?,?,?,?,?)",
+                        (str(label), floor.nodeid, floor.series, float(floor.between_sd),
+                         int(floor.df), int(floor.runs), _finite_or_none(floor.position_shift),
+                         _finite_or_none(floor.position_p), floor.measured or when),
+                    )
+                    count += 1
+                conn.execute("COMMIT")
+            except BaseException:
+                if conn.in_transaction:
+                    conn.execute("ROLLBACK")
+                raise
+        return count
+
+    def noise_floors(self, label: str) -> dict[tuple[str, str], NoiseFloor]:
+        """The newest measured floor of each check under ``label``."""
+        with self._translate_errors():
+            rows = self._conn.execute(
+                "SELECT nodeid, series, between_sd, df, runs, position_shift, position_p, "
+                "measured FROM noise_floors WHERE label = ? ORDER BY id",
+                (str(label),),
+            ).fetchall()
+        floors: dict[tuple[str, str], NoiseFloor] = {}
+        for r in rows:
+            floors[(r[0], r[1])] = NoiseFloor(r[0], r[1], float(r[2]), int(r[3]), int(r[4]),
+                                              r[5], r[6], r[7])
+        return floors
 
     def checks(self, run_id: int) -> list[StoredCheck]:
         """Every check of run ``run_id``, in the order they were recorded."""
@@ -486,13 +587,20 @@ def _check_file(path: Path, create: bool) -> None:
 
 _RUN_COLUMNS = (
     "id, label, started, git_commit, git_branch, git_dirty, host, machine, cpus, system, python, "
-    "meanband"
+    "meanband, fingerprint_json"
 )
 
 
 def _run_info(r: tuple[Any, ...]) -> RunInfo:
     dirty = None if r[5] is None else bool(r[5])
-    return RunInfo(r[0], r[1], r[2], r[3], r[4], dirty, r[6], r[7], r[8], r[9], r[10], r[11], r[12])
+    try:
+        fingerprint = None if r[12] is None else json.loads(r[12])
+    except (ValueError, RecursionError):
+        fingerprint = None  # a damaged fingerprint only loses the like-for-like check
+    if not isinstance(fingerprint, dict):
+        fingerprint = None
+    return RunInfo(r[0], r[1], r[2], r[3], r[4], dirty, r[6], r[7], r[8], r[9], r[10], r[11],
+                   r[13], fingerprint)
 
 
 def _check_columns(row: Mapping[str, Any]) -> tuple[Any, ...]:
