@@ -1,7 +1,9 @@
-"""The history store: past runs and their trials in one SQLite file, for baselines."""
+"""The history store: past runs and their trials, for baselines and trends; an SQLite file by
+default, or a PostgreSQL database that many CI machines share."""
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
 import json
 import math
@@ -10,7 +12,7 @@ import sqlite3
 import stat
 import time
 import urllib.parse
-from collections.abc import Callable, Iterable, Mapping
+from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
 from pathlib import Path
@@ -21,6 +23,14 @@ import numpy as np
 from meanband import defaults
 from meanband.errors import StoreError
 from meanband.stats.sample import ArrayEquality
+from meanband.store.database import (
+    POSTGRESQL,
+    SQLITE,
+    Database,
+    connect_error_text,
+    is_database_url,
+    mask_url,
+)
 from meanband.store.environment import capture_environment, python_words
 
 __all__ = [
@@ -120,7 +130,7 @@ class StoredCheck(ArrayEquality):
 
 # Each step upgrades the schema by one version: MIGRATIONS[i] takes version i to i + 1. A store
 # opened by a newer meanband is upgraded in place, inside one transaction.
-def _schema_1(conn: sqlite3.Connection) -> None:
+def _schema_1(conn: Database) -> None:
     conn.execute(
         """CREATE TABLE runs (
             id INTEGER PRIMARY KEY,
@@ -161,7 +171,7 @@ def _schema_1(conn: sqlite3.Connection) -> None:
     conn.execute("CREATE INDEX runs_by_label ON runs(label, id)")
 
 
-def _schema_2(conn: sqlite3.Connection) -> None:
+def _schema_2(conn: Database) -> None:
     """Runs keep the machine fingerprint they ran on; a label keeps its run-to-run noise floors."""
     conn.execute("ALTER TABLE runs ADD COLUMN fingerprint_json TEXT")
     conn.execute(
@@ -181,53 +191,94 @@ def _schema_2(conn: sqlite3.Connection) -> None:
     conn.execute("CREATE INDEX floors_by_label ON noise_floors(label, nodeid, series, id)")
 
 
-MIGRATIONS: list[Callable[[sqlite3.Connection], None]] = [_schema_1, _schema_2]
+# The SQL is the common subset of SQLite and PostgreSQL; the database layer spells the column
+# types for PostgreSQL (store/database.py).
+MIGRATIONS: list[Callable[[Database], None]] = [_schema_1, _schema_2]
+#: Tables of the store: on PostgreSQL, these names in a database without meanband's version
+#: table belong to something else.
+_OUR_TABLES = frozenset({"runs", "checks", "noise_floors"})
 SCHEMA_VERSION = len(MIGRATIONS)
 
 
 class HistoryStore:
-    """A meanband history file. Use as a context manager; every write is one transaction.
+    """A meanband history store. Use as a context manager; every write is one transaction.
 
-    ``create=False`` opens an existing store only (for reading and the command line);
-    ``read_only=True`` opens it for reading only (SQLite ``mode=ro``, and ``immutable=1`` when
-    the file or its folder cannot be written, e.g. a baseline restored read-only from a CI
-    cache); ``timeout`` is how long to wait for another process's write lock before giving up.
+    ``path`` is a file (SQLite) or a PostgreSQL URL (``postgresql://...``), whose credentials
+    come from the URL, the PG* environment variables or a service file. ``create=False``
+    opens an existing store only (for reading and the command line); ``read_only=True`` opens
+    it for reading only (SQLite ``mode=ro``, and ``immutable=1`` when the file or its folder
+    cannot be written, e.g. a baseline restored read-only from a CI cache; a read-only session
+    on PostgreSQL); ``timeout`` is how long to wait for another process's lock (or for the
+    server to answer) before giving up.
     """
 
     def __init__(
         self, path: str | os.PathLike[str], *, create: bool = True, timeout: float = DEFAULT_TIMEOUT,
         read_only: bool = False,
     ) -> None:
-        self.path = Path(path)
         self.timeout = float(timeout)
         self.read_only = read_only and not create
-        _check_file(self.path, create)
-        try:
-            if create:
-                self.path.parent.mkdir(parents=True, exist_ok=True)
-            if self.read_only:
-                self._conn = sqlite3.connect(_read_only_uri(self.path), timeout=self.timeout,
-                                             isolation_level=None, uri=True)
-            else:
-                self._conn = sqlite3.connect(self.path, timeout=self.timeout,
-                                             isolation_level=None)
-        except (OSError, sqlite3.Error) as exc:
-            raise StoreError(
-                f"cannot open the history store {self.path}: {exc}; check that the location "
-                f"exists and is writable, or {_ELSEWHERE}"
-            ) from exc
+        given = os.fspath(path)
+        self._db: Database
+        if is_database_url(given):
+            #: The file of an SQLite store; None for a PostgreSQL store.
+            self.path: Path | None = None
+            #: Where the store is, fit to print (a URL's password masked).
+            self.location = mask_url(given)
+            self.backend = POSTGRESQL
+            self._db = self._connect_postgresql(given)
+        else:
+            self.path = Path(given)
+            self.location = str(self.path)
+            self.backend = SQLITE
+            self._db = self._connect_sqlite(self.path, create)
         try:
             with self._translate_errors():
                 self._prepare()
         except BaseException:
-            self._conn.close()
+            self._db.close()
             raise
+
+    def _connect_sqlite(self, path: Path, create: bool) -> Database:
+        _check_file(path, create)
+        try:
+            if create:
+                path.parent.mkdir(parents=True, exist_ok=True)
+            if self.read_only:
+                return Database.sqlite(_read_only_uri(path), str(path), timeout=self.timeout,
+                                       uri=True)
+            return Database.sqlite(str(path), str(path), timeout=self.timeout)
+        except (OSError, sqlite3.Error) as exc:
+            raise StoreError(
+                f"cannot open the history store {path}: {exc}; check that the location "
+                f"exists and is writable, or {_ELSEWHERE}"
+            ) from exc
+
+    def _connect_postgresql(self, url: str) -> Database:
+        try:
+            import psycopg
+        except ImportError as exc:
+            raise StoreError(
+                f"the history store {self.location} is a PostgreSQL database, which needs the "
+                "psycopg driver: pip install 'pytest-meanband[postgresql]'"
+            ) from exc
+        try:
+            return Database.postgresql(url, timeout=self.timeout, read_only=self.read_only)
+        except psycopg.Error as exc:
+            raise StoreError(
+                f"cannot connect to the history store {self.location}: "
+                f"{connect_error_text(url, exc)}; check the URL, the PG* environment variables "
+                "or the service file, and that the server is up"
+            ) from exc
 
     # -- opening ---------------------------------------------------------------------------
 
     def _prepare(self) -> None:
-        conn = self._conn
-        conn.execute("PRAGMA foreign_keys = ON")
+        if self.backend == POSTGRESQL:
+            self._prepare_postgresql()
+            return
+        db = self._db
+        db.execute("PRAGMA foreign_keys = ON")
         if self.read_only:
             self._check_schema(upgrade=False)
             return
@@ -236,23 +287,22 @@ class HistoryStore:
         deadline = time.monotonic() + self.timeout
         for attempt in range(1000):
             try:
-                conn.execute("BEGIN")  # a consistent read: is the schema there and current?
+                db.begin(write=False)  # a consistent read: is the schema there and current?
                 try:
-                    current = self._user_version() == SCHEMA_VERSION
+                    current = db.version() == SCHEMA_VERSION
                     if current:
                         self._check_schema(upgrade=False)
                 finally:
-                    conn.execute("COMMIT")
+                    db.commit()
                 if current:
                     self._use_wal()
                     return
-                conn.execute("BEGIN IMMEDIATE")
+                db.begin(write=True)
                 try:
                     self._check_schema(upgrade=True)
-                    conn.execute("COMMIT")
+                    db.commit()
                 except BaseException:
-                    if conn.in_transaction:
-                        conn.execute("ROLLBACK")
+                    self._abort()
                     raise
                 self._use_wal()
                 return
@@ -262,63 +312,85 @@ class HistoryStore:
                     raise
                 time.sleep(min(0.05, 0.001 * 2 ** min(attempt, 6)))
 
+    def _prepare_postgresql(self) -> None:
+        db = self._db
+        if self.read_only or db.version() == SCHEMA_VERSION:
+            self._check_schema(upgrade=False)
+            return
+        # Jobs that meet a new or older database at once take turns under an advisory lock;
+        # PostgreSQL's DDL is transactional, so an upgrade is all or nothing.
+        db.begin(write=True)
+        try:
+            db.lock_schema()
+            self._check_schema(upgrade=True)
+            db.commit()
+        except BaseException:
+            self._abort()
+            raise
+
     def _use_wal(self) -> None:
-        mode = self._conn.execute("PRAGMA journal_mode = WAL").fetchone()[0]
+        mode = self._db.execute("PRAGMA journal_mode = WAL").fetchone()[0]
         if str(mode).lower() != "wal":
             # Some file systems cannot share memory for WAL; the rollback journal is still safe.
-            self._conn.execute("PRAGMA journal_mode = DELETE")
+            self._db.execute("PRAGMA journal_mode = DELETE")
 
     def _check_schema(self, *, upgrade: bool) -> None:
-        """Refuse a newer, foreign or damaged file; bring an older meanband store up to date."""
-        conn = self._conn
-        version = self._user_version()
+        """Refuse a newer, foreign or damaged store; bring an older meanband store up to date."""
+        db = self._db
+        version = db.version()
         if version > SCHEMA_VERSION:
             raise StoreError(
-                f"the history store {self.path} has schema version {version}, newer than this "
-                f"meanband understands ({SCHEMA_VERSION}); upgrade meanband to use it"
+                f"the history store {self.location} has schema version {version}, newer than "
+                f"this meanband understands ({SCHEMA_VERSION}); upgrade meanband to use it"
             )
         if version == 0:
-            foreign = [
-                name
-                for (name,) in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table'")
-            ]
+            tables = db.tables()
+            foreign = tables if self.backend == SQLITE else sorted(_OUR_TABLES & set(tables))
             if foreign:
+                kind = "an SQLite database" if self.backend == SQLITE else "a PostgreSQL database"
                 raise StoreError(
-                    f"{self.path} is an SQLite database but not a meanband history store "
+                    f"{self.location} is {kind} but not a meanband history store "
                     f"(it holds tables {', '.join(sorted(foreign))}); it was left untouched. "
                     f"Move it aside, or {_ELSEWHERE}"
                 )
-        if version > 0:
+        if version > 0 and self.backend == SQLITE:
             # Find damage before anything is written, so a damaged file is never made worse.
-            problems = [r[0] for r in conn.execute("PRAGMA quick_check").fetchall()]
+            problems = [r[0] for r in db.execute("PRAGMA quick_check").fetchall()]
             if problems != ["ok"]:
                 raise StoreError(
-                    f"the history store {self.path} is damaged ({'; '.join(problems[:3])}); it "
-                    "was left untouched. Move it aside (earlier runs may be rescued with the "
+                    f"the history store {self.location} is damaged ({'; '.join(problems[:3])}); "
+                    "it was left untouched. Move it aside (earlier runs may be rescued with the "
                     "sqlite3 shell's .recover) and a new store will be started"
                 )
         if version < SCHEMA_VERSION:
             if not upgrade:
-                if version == 0:
+                if version == 0 and self.backend == SQLITE:
                     return  # an empty file: it holds no runs yet
+                if version == 0:
+                    raise StoreError(
+                        f"the database {self.location} holds no meanband history yet; record a "
+                        "run into it first with --meanband-record"
+                    )
                 raise StoreError(
-                    f"the history store {self.path} has schema version {version}, older than "
-                    f"this meanband's ({SCHEMA_VERSION}), and was opened read-only; record a run "
-                    "into it once (which upgrades it) or read it with the meanband that wrote it"
+                    f"the history store {self.location} has schema version {version}, older "
+                    f"than this meanband's ({SCHEMA_VERSION}), and was opened read-only; record "
+                    "a run into it once (which upgrades it) or read it with the meanband that "
+                    "wrote it"
                 )
             for step in MIGRATIONS[version:]:
-                step(conn)
-            # PRAGMA takes no bound parameters; the value is our own integer.
-            conn.execute(f"PRAGMA user_version = {len(MIGRATIONS):d}")
+                step(db)
+            db.set_version(len(MIGRATIONS))
 
-    def _user_version(self) -> int:
-        return int(self._conn.execute("PRAGMA user_version").fetchone()[0])
+    def _abort(self) -> None:
+        """Roll back after a failure; a connection that is already gone has nothing to undo."""
+        with contextlib.suppress(Exception):
+            self._db.rollback()
 
     # -- context and errors ----------------------------------------------------------------
 
     def close(self) -> None:
-        """Close the connection; the store stays as it is on disk."""
-        self._conn.close()
+        """Close the connection; the store stays as it is."""
+        self._db.close()
 
     def __enter__(self) -> HistoryStore:
         return self
@@ -327,7 +399,7 @@ class HistoryStore:
         self.close()
 
     def _translate_errors(self) -> _ErrorTranslator:
-        return _ErrorTranslator(self.path, self.timeout)
+        return _ErrorTranslator(self.location, self.timeout, self._db)
 
     # -- writing ---------------------------------------------------------------------------
 
@@ -346,11 +418,11 @@ class HistoryStore:
         """
         env = dict(environment) if environment is not None else capture_environment(None)
         when = started or datetime.now(timezone.utc).isoformat(timespec="seconds")
-        conn = self._conn
+        db = self._db
         with self._translate_errors():
-            conn.execute("BEGIN IMMEDIATE")
+            db.begin(write=True)
             try:
-                cursor = conn.execute(
+                run_id = db.insert_id(
                     "INSERT INTO runs (label, started, git_commit, git_branch, git_dirty, host, "
                     "machine, cpus, system, python, meanband, fingerprint_json) "
                     "VALUES (?,?,?,?,?,?,?,?,?,?,?,?)",
@@ -364,18 +436,43 @@ class HistoryStore:
                         else json.dumps(env["fingerprint"], sort_keys=True),
                     ),
                 )
-                run_id = int(cursor.lastrowid or 0)
-                for row in rows:
-                    conn.execute(
-                        "INSERT INTO checks (run_id, nodeid, series, kind, unit, source, n, mean, "
-                        "low, high, verdict, row_json, trials, warmup) "
-                        "VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?)",
-                        (run_id, *_check_columns(row)),
-                    )
-                conn.execute("COMMIT")
+                db.executemany(_INSERT_CHECK, ((run_id, *_check_columns(row)) for row in rows))
+                db.commit()
             except BaseException:
-                if conn.in_transaction:
-                    conn.execute("ROLLBACK")
+                self._abort()
+                raise
+        return run_id
+
+    def copy_run(self, run: RunInfo, checks: Sequence[StoredCheck]) -> int:
+        """Store a run read from another store, keeping its label, time, commit and machine
+        and its trials byte for byte; return its id here (ids are this store's own)."""
+        db = self._db
+        with self._translate_errors():
+            db.begin(write=True)
+            try:
+                run_id = db.insert_id(
+                    "INSERT INTO runs (label, started, git_commit, git_branch, git_dirty, host, "
+                    "machine, cpus, system, python, meanband, fingerprint_json) "
+                    "VALUES (?,?,?,?,?,?,?,?,?,?,?,?)",
+                    (
+                        run.label, run.started, run.commit, run.branch,
+                        None if run.dirty is None else int(run.dirty), run.host, run.machine,
+                        run.cpus, run.system, run.python, run.meanband,
+                        None if run.fingerprint is None
+                        else json.dumps(run.fingerprint, sort_keys=True),
+                    ),
+                )
+                db.executemany(_INSERT_CHECK, (
+                    (run_id, c.nodeid, c.series, c.kind, c.unit, c.source, c.n,
+                     _finite_or_none(c.mean), c.low, c.high, c.verdict,
+                     json.dumps(c.row, sort_keys=True),
+                     np.asarray(c.values, dtype=_TRIAL_DTYPE).tobytes(),
+                     np.asarray(c.warmup, dtype=_TRIAL_DTYPE).tobytes())
+                    for c in checks
+                ))
+                db.commit()
+            except BaseException:
+                self._abort()
                 raise
         return run_id
 
@@ -383,22 +480,22 @@ class HistoryStore:
         """Delete all but the ``keep`` newest runs; return how many were deleted."""
         if keep < 0:
             raise StoreError(f"--keep must be 0 or more, got {keep}")
+        db = self._db
         with self._translate_errors():
-            self._conn.execute("BEGIN IMMEDIATE")
+            db.begin(write=True)
             try:
-                cursor = self._conn.execute(
+                cursor = db.execute(
                     "DELETE FROM runs WHERE id NOT IN "
                     "(SELECT id FROM runs ORDER BY id DESC LIMIT ?)",
                     (keep,),
                 )
-                self._conn.execute("COMMIT")
+                deleted = int(cursor.rowcount)
+                db.commit()
             except BaseException:
-                if self._conn.in_transaction:
-                    self._conn.execute("ROLLBACK")
+                self._abort()
                 raise
-            deleted = int(cursor.rowcount)
-            if deleted:
-                self._conn.execute("VACUUM")
+            if deleted and self.backend == SQLITE:
+                db.execute("VACUUM")  # PostgreSQL's autovacuum reclaims the space itself
         return deleted
 
     # -- reading ---------------------------------------------------------------------------
@@ -406,7 +503,7 @@ class HistoryStore:
     def runs(self) -> list[RunInfo]:
         """All runs, newest first."""
         with self._translate_errors():
-            rows = self._conn.execute(
+            rows = self._db.execute(
                 f"SELECT {_RUN_COLUMNS}, (SELECT COUNT(*) FROM checks WHERE run_id = runs.id) "
                 "FROM runs ORDER BY id DESC"
             ).fetchall()
@@ -418,7 +515,7 @@ class HistoryStore:
         runs = self.runs()
         if not runs:
             raise StoreError(
-                f"the history store {self.path} holds no runs yet; record one with "
+                f"the history store {self.location} holds no runs yet; record one with "
                 "--meanband-record[=LABEL]"
             )
         if ref is None or ref == "" or ref == "latest":
@@ -435,7 +532,7 @@ class HistoryStore:
         labels = sorted({r.label for r in runs if r.label})
         known = f"labels present: {', '.join(labels)}" if labels else "no run has a label"
         raise StoreError(
-            f"no run labelled or numbered {text!r} in {self.path} ({known}; run ids "
+            f"no run labelled or numbered {text!r} in {self.location} ({known}; run ids "
             f"{runs[-1].id}..{runs[0].id}); record one with --meanband-record={text}"
         )
 
@@ -456,13 +553,13 @@ class HistoryStore:
         be traced afterwards.
         """
         when = datetime.now(timezone.utc).isoformat(timespec="seconds")
-        conn = self._conn
+        db = self._db
         count = 0
         with self._translate_errors():
-            conn.execute("BEGIN IMMEDIATE")
+            db.begin(write=True)
             try:
                 for floor in floors:
-                    conn.execute(
+                    db.execute(
                         "INSERT INTO noise_floors (label, nodeid, series, between_sd, df, runs, "
                         "position_shift, position_p, measured) VALUES (?,?,?,?,?,?,?,?,?)",
                         (str(label), floor.nodeid, floor.series, float(floor.between_sd),
@@ -470,17 +567,16 @@ class HistoryStore:
                          _finite_or_none(floor.position_p), floor.measured or when),
                     )
                     count += 1
-                conn.execute("COMMIT")
+                db.commit()
             except BaseException:
-                if conn.in_transaction:
-                    conn.execute("ROLLBACK")
+                self._abort()
                 raise
         return count
 
     def noise_floors(self, label: str) -> dict[tuple[str, str], NoiseFloor]:
         """The newest measured floor of each check under ``label``."""
         with self._translate_errors():
-            rows = self._conn.execute(
+            rows = self._db.execute(
                 "SELECT nodeid, series, between_sd, df, runs, position_shift, position_p, "
                 "measured FROM noise_floors WHERE label = ? ORDER BY id",
                 (str(label),),
@@ -494,7 +590,7 @@ class HistoryStore:
     def checks(self, run_id: int) -> list[StoredCheck]:
         """Every check of run ``run_id``, in the order they were recorded."""
         with self._translate_errors():
-            rows = self._conn.execute(
+            rows = self._db.execute(
                 "SELECT run_id, nodeid, series, kind, unit, source, n, mean, low, high, verdict, "
                 "row_json, trials, warmup FROM checks WHERE run_id = ? ORDER BY id",
                 (run_id,),
@@ -503,10 +599,11 @@ class HistoryStore:
 
 
 class _ErrorTranslator:
-    """Turn sqlite3 errors into StoreError messages that name the file and the remedy."""
+    """Turn driver errors into StoreError messages that name the store and the remedy (and
+    never show a password)."""
 
-    def __init__(self, path: Path, timeout: float) -> None:
-        self.path, self.timeout = path, timeout
+    def __init__(self, location: str, timeout: float, db: Database) -> None:
+        self.location, self.timeout, self.db = location, timeout, db
 
     def __enter__(self) -> None:
         return None
@@ -514,27 +611,58 @@ class _ErrorTranslator:
     def __exit__(
         self, exc_type: type[BaseException] | None, exc: BaseException | None, tb: Any
     ) -> None:
-        if exc is None or not isinstance(exc, sqlite3.Error):
+        if exc is None or isinstance(exc, StoreError):
             return
+        if isinstance(exc, sqlite3.Error):
+            self._sqlite(exc)
+        if self.db.backend == POSTGRESQL:
+            self._postgresql(exc)
+
+    def _sqlite(self, exc: sqlite3.Error) -> None:
         text = str(exc)
         if "locked" in text or "busy" in text:
             raise StoreError(
-                f"the history store {self.path} stayed locked by another process for "
+                f"the history store {self.location} stayed locked by another process for "
                 f"{self.timeout:g} s; let that run finish and try again, or raise the wait with "
                 "--meanband-store-timeout"
             ) from exc
         if "readonly" in text or "read-only" in text or "unable to open" in text:
             raise StoreError(
-                f"cannot write the history store {self.path} ({text}); make the location "
+                f"cannot write the history store {self.location} ({text}); make the location "
                 f"writable or {_ELSEWHERE}"
             ) from exc
         if isinstance(exc, sqlite3.DatabaseError) and not isinstance(exc, sqlite3.OperationalError):
             raise StoreError(
-                f"the history store {self.path} is damaged ({text}); it was left untouched. "
+                f"the history store {self.location} is damaged ({text}); it was left untouched. "
                 "Move it aside (earlier runs may be rescued with the sqlite3 shell's .recover) "
                 "and a new store will be started"
             ) from exc
-        raise StoreError(f"the history store {self.path} could not be used: {text}") from exc
+        raise StoreError(f"the history store {self.location} could not be used: {text}") from exc
+
+    def _postgresql(self, exc: BaseException) -> None:
+        import psycopg
+        from psycopg import errors
+
+        if not isinstance(exc, psycopg.Error):
+            return
+        text = self.db.scrub(str(exc).strip())
+        if isinstance(exc, errors.LockNotAvailable):
+            raise StoreError(
+                f"the history store {self.location} stayed locked by another session for "
+                f"{self.timeout:g} s; let that job finish and try again, or raise the wait with "
+                "--meanband-store-timeout"
+            ) from exc
+        if isinstance(exc, errors.ReadOnlySqlTransaction | errors.InsufficientPrivilege):
+            raise StoreError(
+                f"cannot write the history store {self.location} ({text}); grant the role "
+                f"INSERT on its tables, or {_ELSEWHERE}"
+            ) from exc
+        if isinstance(exc, psycopg.OperationalError):
+            raise StoreError(
+                f"lost the connection to the history store {self.location} ({text}); nothing "
+                "of the unfinished transaction was kept. Try again when the server is back"
+            ) from exc
+        raise StoreError(f"the history store {self.location} could not be used: {text}") from exc
 
 
 def _read_only_uri(path: Path) -> str:
@@ -585,6 +713,10 @@ def _check_file(path: Path, create: bool) -> None:
         )
 
 
+_INSERT_CHECK = (
+    "INSERT INTO checks (run_id, nodeid, series, kind, unit, source, n, mean, low, high, "
+    "verdict, row_json, trials, warmup) VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?)"
+)
 _RUN_COLUMNS = (
     "id, label, started, git_commit, git_branch, git_dirty, host, machine, cpus, system, python, "
     "meanband, fingerprint_json"
