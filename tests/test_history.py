@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import os
 import sqlite3
@@ -9,12 +10,14 @@ import subprocess
 import sys
 import textwrap
 import threading
+from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 import pytest
 from meanband.store import history
+from meanband.store.database import Database
 from meanband.store.environment import capture_environment as describe_environment
 from meanband.store.history import HistoryStore, StoreError
 
@@ -48,12 +51,35 @@ def store_path(tmp_path: Path) -> Path:
     return tmp_path / ".meanband" / "history.sqlite"
 
 
+@pytest.fixture(params=["sqlite", "postgresql"])
+def store_at(request: pytest.FixtureRequest, store_path: Path) -> str | Path:
+    """The same store tests on both backends: a new SQLite file, or a new PostgreSQL database
+    on the throwaway test server (skipped, counted, where no server can be had)."""
+    if request.param == "sqlite":
+        return store_path
+    return str(request.getfixturevalue("postgres_url"))
+
+
+@contextlib.contextmanager
+def raw_database(location: str | Path) -> Iterator[Database]:
+    """A plain connection to a store's database, past HistoryStore, in autocommit."""
+    if isinstance(location, str):
+        db = Database.postgresql(location, timeout=10, read_only=False)
+    else:
+        location.parent.mkdir(parents=True, exist_ok=True)
+        db = Database.sqlite(str(location), str(location), timeout=10)
+    try:
+        yield db
+    finally:
+        db.close()
+
+
 # -- round trip ------------------------------------------------------------------------------------
 
 
-def test_round_trip_keeps_trials_bit_for_bit_and_the_row(store_path: Path) -> None:
+def test_round_trip_keeps_trials_bit_for_bit_and_the_row(store_at: str | Path) -> None:
     rows = [make_row("t.py::test_a"), make_row("t.py::test_b", "cold", unit="V")]
-    with HistoryStore(store_path) as store:
+    with HistoryStore(store_at) as store:
         run_id = store.record_run(rows, label="main", environment=ENV)
         run = store.find_run("main")
         checks = store.checks(run_id)
@@ -71,28 +97,32 @@ def test_round_trip_keeps_trials_bit_for_bit_and_the_row(store_path: Path) -> No
         assert check.high == 2e-4 and check.low is None  # open ends are stored as NULL
 
 
-def test_row_without_trials_is_stored_with_an_empty_mean(store_path: Path) -> None:
+def test_row_without_trials_is_stored_with_an_empty_mean(store_at: str | Path) -> None:
     row = {"nodeid": "t.py::test_empty", "series": "", "kind": "unchecked", "values": []}
-    with HistoryStore(store_path) as store:
+    with HistoryStore(store_at) as store:
         (check,) = store.checks(store.record_run([row], environment=ENV))
     assert check.n == 0 and check.values.size == 0 and np.isnan(check.mean)
 
 
-def test_schema_version_wal_and_no_pickle(store_path: Path) -> None:
-    with HistoryStore(store_path) as store:
+def test_schema_version_and_no_pickle(store_at: str | Path) -> None:
+    with HistoryStore(store_at) as store:
         store.record_run([make_row("t.py::test_a")], environment=ENV)
-    conn = sqlite3.connect(store_path)
-    try:
-        assert conn.execute("PRAGMA user_version").fetchone()[0] == history.SCHEMA_VERSION
-        assert conn.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
-        blob = conn.execute("SELECT trials FROM checks").fetchone()[0]
-    finally:
-        conn.close()
+    with raw_database(store_at) as db:
+        assert db.version() == history.SCHEMA_VERSION
+        blob = bytes(db.execute("SELECT trials FROM checks").fetchone()[0])
     assert len(blob) == 20 * 8 and not blob.startswith(b"\x80")  # raw float64, no pickle header
 
 
-def test_find_run_by_latest_label_and_id(store_path: Path) -> None:
+def test_sqlite_store_uses_wal(store_path: Path) -> None:
     with HistoryStore(store_path) as store:
+        store.record_run([make_row("t.py::test_a")], environment=ENV)
+    with contextlib.closing(sqlite3.connect(store_path)) as conn:
+        assert conn.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
+        assert conn.execute("PRAGMA user_version").fetchone()[0] == history.SCHEMA_VERSION
+
+
+def test_find_run_by_latest_label_and_id(store_at: str | Path) -> None:
+    with HistoryStore(store_at) as store:
         first = store.record_run([make_row("a")], label="main", environment=ENV)
         second = store.record_run([make_row("a")], label="feature", environment=ENV)
         third = store.record_run([make_row("a")], label="main", environment=ENV)
@@ -106,8 +136,8 @@ def test_find_run_by_latest_label_and_id(store_path: Path) -> None:
             store.find_run("nightly")
 
 
-def test_baseline_runs_are_the_newest_runs_of_a_label(store_path: Path) -> None:
-    with HistoryStore(store_path) as store:
+def test_baseline_runs_are_the_newest_runs_of_a_label(store_at: str | Path) -> None:
+    with HistoryStore(store_at) as store:
         ids = [store.record_run([make_row("a")], label=label, environment=ENV)
                for label in ("main", "main", "feature", "main", "main")]
         assert [r.id for r in store.baseline_runs("main", 3)] == [ids[4], ids[3], ids[1]]
@@ -120,9 +150,9 @@ def test_baseline_runs_are_the_newest_runs_of_a_label(store_path: Path) -> None:
             store.baseline_runs("main", 0)
 
 
-def test_fingerprint_and_noise_floors_round_trip(store_path: Path) -> None:
+def test_fingerprint_and_noise_floors_round_trip(store_at: str | Path) -> None:
     fingerprint = {"cpu_model": "Invented CPU 9", "cpu_count": 2, "governor": "performance"}
-    with HistoryStore(store_path) as store:
+    with HistoryStore(store_at) as store:
         run_id = store.record_run([make_row("a")], label="main",
                                   environment={**ENV, "fingerprint": fingerprint})
         bare = store.record_run([make_row("a")], label="main", environment=ENV)
@@ -140,22 +170,26 @@ def test_fingerprint_and_noise_floors_round_trip(store_path: Path) -> None:
         assert store.noise_floors("feature") == {}
 
 
-def test_version_1_store_is_upgraded_keeping_its_runs(store_path: Path) -> None:
-    store_path.parent.mkdir(parents=True)
-    conn = sqlite3.connect(store_path)
-    history.MIGRATIONS[0](conn)
-    conn.execute("PRAGMA user_version = 1")
-    conn.execute("INSERT INTO runs (label, started, host, machine, system, python, meanband) "
-                 "VALUES ('main', '2026-11-30T10:00:00+00:00', 'bench-7', 'x86_64', 'Linux', "
-                 "'CPython 3.11', '0.1.0')")
-    conn.commit()
-    conn.close()
-    with HistoryStore(store_path) as store:
+def test_version_1_store_is_upgraded_keeping_its_runs(store_at: str | Path) -> None:
+    with raw_database(store_at) as db:
+        history.MIGRATIONS[0](db)
+        db.set_version(1)
+        db.execute("INSERT INTO runs (label, started, host, machine, system, python, meanband) "
+                   "VALUES ('main', '2026-11-30T10:00:00+00:00', 'bench-7', 'x86_64', 'Linux', "
+                   "'CPython 3.11', '0.1.0')")
+    with HistoryStore(store_at) as store:
         (run,) = store.runs()
         assert run.label == "main" and run.fingerprint is None
         assert store.noise_floors("main") == {}
-    with sqlite3.connect(store_path) as conn:
-        assert conn.execute("PRAGMA user_version").fetchone()[0] == history.SCHEMA_VERSION == 2
+    with raw_database(store_at) as db:
+        assert db.version() == history.SCHEMA_VERSION == 2
+
+
+def test_empty_database_is_a_clear_error_when_read(postgres_url: str) -> None:
+    with pytest.raises(StoreError, match="holds no meanband history yet"):
+        HistoryStore(postgres_url, create=False, read_only=True)
+    with HistoryStore(postgres_url) as store, pytest.raises(StoreError, match="holds no runs"):
+        store.find_run()
 
 
 def test_empty_store_and_missing_store_are_clear_errors(store_path: Path) -> None:
@@ -166,8 +200,8 @@ def test_empty_store_and_missing_store_are_clear_errors(store_path: Path) -> Non
         store.find_run()
 
 
-def test_prune_keeps_the_newest_runs(store_path: Path) -> None:
-    with HistoryStore(store_path) as store:
+def test_prune_keeps_the_newest_runs(store_at: str | Path) -> None:
+    with HistoryStore(store_at) as store:
         ids = [store.record_run([make_row("a"), make_row("b")], environment=ENV) for _ in range(5)]
         assert store.prune(2) == 3
         assert [r.id for r in store.runs()] == ids[:1:-1][:2]
@@ -179,33 +213,48 @@ def test_prune_keeps_the_newest_runs(store_path: Path) -> None:
 # -- schema upgrades ----------------------------------------------------------------------------
 
 
-def test_store_upgrades_itself_to_a_newer_schema(store_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
-    with HistoryStore(store_path) as store:
+def test_store_upgrades_itself_to_a_newer_schema(store_at: str | Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    with HistoryStore(store_at) as store:
         run_id = store.record_run([make_row("a")], label="old", environment=ENV)
 
-    def add_note_column(conn: sqlite3.Connection) -> None:
+    def add_note_column(conn: Database) -> None:
         conn.execute("ALTER TABLE runs ADD COLUMN note TEXT")
 
     monkeypatch.setattr(history, "MIGRATIONS", [*history.MIGRATIONS, add_note_column])
     monkeypatch.setattr(history, "SCHEMA_VERSION", len(history.MIGRATIONS))
-    with HistoryStore(store_path) as store:
+    with HistoryStore(store_at) as store:
         assert store.find_run("old").id == run_id  # earlier runs survive the upgrade
-    conn = sqlite3.connect(store_path)
-    try:
-        assert conn.execute("PRAGMA user_version").fetchone()[0] == history.SCHEMA_VERSION
-        assert "note" in [c[1] for c in conn.execute("PRAGMA table_info(runs)")]
-    finally:
-        conn.close()
+    with raw_database(store_at) as db:
+        assert db.version() == history.SCHEMA_VERSION
+        assert db.execute("SELECT note FROM runs").fetchall() == [(None,)]  # the new column
 
 
-def test_store_from_a_newer_meanband_is_refused(store_path: Path) -> None:
-    with HistoryStore(store_path) as store:
+def test_failed_upgrade_changes_nothing(store_at: str | Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    with HistoryStore(store_at) as store:
+        store.record_run([make_row("a")], label="old", environment=ENV)
+
+    def half_done(conn: Database) -> None:
+        conn.execute("ALTER TABLE runs ADD COLUMN note TEXT")
+        conn.execute("SELECT no_such_column FROM runs")  # the step fails part way
+
+    monkeypatch.setattr(history, "MIGRATIONS", [*history.MIGRATIONS, half_done])
+    monkeypatch.setattr(history, "SCHEMA_VERSION", len(history.MIGRATIONS))
+    with pytest.raises(StoreError):
+        HistoryStore(store_at)
+    monkeypatch.undo()
+    with raw_database(store_at) as db:
+        assert db.version() == history.SCHEMA_VERSION
+    with HistoryStore(store_at) as store:  # the old schema is whole: no note column, one run
+        assert [r.label for r in store.runs()] == ["old"]
+
+
+def test_store_from_a_newer_meanband_is_refused(store_at: str | Path) -> None:
+    with HistoryStore(store_at) as store:
         store.record_run([make_row("a")], environment=ENV)
-    conn = sqlite3.connect(store_path)
-    conn.execute("PRAGMA user_version = 99")
-    conn.close()
+    with raw_database(store_at) as db:
+        db.set_version(99)
     with pytest.raises(StoreError, match="schema version 99, newer"):
-        HistoryStore(store_path)
+        HistoryStore(store_at)
 
 
 # -- faults ------------------------------------------------------------------------------------------
@@ -335,28 +384,28 @@ def _saver(tmp_path: Path, store_path: Path, label: str, pause: float, go: str =
     )
 
 
-def test_two_runs_saving_at_once_both_land(tmp_path: Path, store_path: Path) -> None:
-    with HistoryStore(store_path) as store:
+def test_two_runs_saving_at_once_both_land(tmp_path: Path, store_at: str | Path) -> None:
+    with HistoryStore(store_at) as store:
         store.record_run([make_row("a")], label="earlier", environment=ENV)
     go = tmp_path / "go"
-    children = [_saver(tmp_path, store_path, label, 0.05, str(go)) for label in ("one", "two")]
+    children = [_saver(tmp_path, store_at, label, 0.05, str(go)) for label in ("one", "two")]
     for child in children:
         assert child.stdout is not None and child.stdout.readline().strip() == "open"
     go.write_text("")  # both start their transaction together
     for child in children:
         _out, err = child.communicate(timeout=120)
         assert child.returncode == 0, err
-    with HistoryStore(store_path) as store:
+    with HistoryStore(store_at) as store:
         runs = {r.label: r for r in store.runs()}
         assert set(runs) == {"earlier", "one", "two"}
         assert runs["one"].checks == runs["two"].checks == 5
 
 
-def test_run_killed_while_saving_leaves_earlier_runs_intact(tmp_path: Path, store_path: Path) -> None:
-    with HistoryStore(store_path) as store:
+def test_run_killed_while_saving_leaves_earlier_runs_intact(tmp_path: Path, store_at: str | Path) -> None:
+    with HistoryStore(store_at) as store:
         earlier = store.record_run([make_row("a"), make_row("b")], label="earlier", environment=ENV)
         kept = [c.values.tobytes() for c in store.checks(earlier)]
-    child = _saver(tmp_path, store_path, "killed", 60.0)
+    child = _saver(tmp_path, store_at, "killed", 60.0)
     try:
         assert child.stdout is not None
         assert child.stdout.readline().strip() == "open"
@@ -364,7 +413,7 @@ def test_run_killed_while_saving_leaves_earlier_runs_intact(tmp_path: Path, stor
         child.kill()  # SIGKILL on POSIX: no cleanup, no rollback by the child
     finally:
         child.wait(timeout=30)
-    with HistoryStore(store_path) as store:
+    with HistoryStore(store_at) as store:
         runs = store.runs()
         assert [r.label for r in runs] == ["earlier"]
         assert [c.values.tobytes() for c in store.checks(earlier)] == kept
@@ -400,9 +449,9 @@ def test_environment_without_git(tmp_path: Path, monkeypatch: pytest.MonkeyPatch
     assert env["cpu_count"] == os.cpu_count() and env["hostname"]
 
 
-def test_stored_checks_compare_with_equals(tmp_path: Path) -> None:
+def test_stored_checks_compare_with_equals(store_at: str | Path) -> None:
     # Before: == on a StoredCheck raised "the truth value of an array is ambiguous".
-    with HistoryStore(tmp_path / "h.sqlite") as store:
+    with HistoryStore(store_at) as store:
         run_id = store.record_run([make_row("t.py::a"), make_row("t.py::b")], environment=ENV)
         first, second = store.checks(run_id)
         again = store.checks(run_id)[0]
