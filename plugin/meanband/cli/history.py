@@ -97,6 +97,20 @@ def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) ->
     _store_option(trend)
     trend.set_defaults(handler=_guarded(_trend))
 
+    copy = commands.add_parser(
+        "copy", help="Copy runs from one store to another (file or PostgreSQL, either way)",
+        description="Copy the runs of SRC into DST, oldest first, each with its checks and raw "
+        "trials byte for byte, keeping label, time, commit and machine. Runs DST already holds "
+        "are skipped, so the command can be run again.",
+    )
+    copy.add_argument("source", metavar="SRC", type=store_location,
+                      help="The store to read: a file or a postgresql:// URL")
+    copy.add_argument("target", metavar="DST", type=store_location,
+                      help="The store to write (made if it does not exist)")
+    copy.add_argument("--run", metavar="RUN", default=None,
+                      help="Copy only this run. " + _RUN_HELP)
+    copy.set_defaults(handler=_guarded(_copy))
+
     prune = commands.add_parser("prune", help="Delete all but the newest runs")
     prune.add_argument("--keep", type=int, required=True, metavar="N", help="How many runs to keep")
     _store_option(prune)
@@ -276,6 +290,20 @@ def _trend(args: argparse.Namespace) -> int:
         except (ReportError, OSError) as exc:
             raise StoreError(f"cannot draw the trend pictures: {exc}") from exc
         print(f"wrote {len(written)} picture(s) to {args.plots}")
+    return 0
+
+
+def _copy(args: argparse.Namespace) -> int:
+    from meanband.store.transfer import copy_runs
+
+    with HistoryStore(args.source, create=False, read_only=True) as source, \
+            HistoryStore(args.target) as target:
+        result = copy_runs(source, target, args.run)
+    copied = ", ".join(f"{a}->{b}" for a, b in result.copied) or "none"
+    print(f"copied {len(result.copied)} run(s) from {where(args.source)} to "
+          f"{where(args.target)} (run ids {copied})")
+    if result.already_there:
+        print(f"{len(result.already_there)} run(s) were already there and were skipped")
     return 0
 
 
