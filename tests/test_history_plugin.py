@@ -449,3 +449,24 @@ def test_stale_baseline_is_a_loud_warning(pytester: pytest.Pytester, run_suite) 
                                  "record a fresh one with --meanband-record"])
     fresh = run_suite("--meanband-baseline=main", "--meanband-baseline-max-age=3650")
     assert "days old" not in fresh.stdout.str()
+
+
+@pytest.mark.parametrize("workers", [[], ["-n", "2"]])
+def test_record_and_baseline_through_a_postgresql_store(
+    pytester: pytest.Pytester, run_suite, postgres_url: str, workers: list[str]
+) -> None:
+    # Two CI jobs on different machines share one database: the first records main, the
+    # second (here slower by 30%) compares with it. Under xdist the workers read the baseline.
+    write_suite(pytester, data(1))
+    first = run_suite(f"--meanband-store={postgres_url}", "--meanband-record=main", *workers)
+    first.assert_outcomes(passed=2)
+    first.stdout.fnmatch_lines(["meanband: recorded run 1 'main' in postgresql://*"])
+    assert not (pytester.path / ".meanband").exists()  # nothing written on the runner
+    write_suite(pytester, data(2, slowdown=1.3))
+    pytester.makeini(f"[pytest]\nmeanband_store = {postgres_url}\n")  # the ini key works too
+    second = run_suite("--meanband-baseline=main", "--meanband-run-noise=0",
+                       "--meanband-record=feature", *workers)
+    second.assert_outcomes(failed=1, passed=1)
+    assert baseline_line(second, "test_quote").endswith("regressed")
+    with HistoryStore(postgres_url, create=False, read_only=True) as store:
+        assert [r.label for r in store.runs()] == ["feature", "main"]
