@@ -42,9 +42,12 @@ def _rows(seed: int, slowdown: float = 1.0, shift: float = 0.0) -> list[dict[str
     ]
 
 
-@pytest.fixture
-def store(tmp_path: Path) -> Path:
-    path = tmp_path / "history.sqlite"
+@pytest.fixture(params=["sqlite", "postgresql"])
+def store(request: pytest.FixtureRequest, tmp_path: Path) -> Any:
+    """Three runs in a new SQLite file, or in a new database on the PostgreSQL test server."""
+    path: Any = tmp_path / "history.sqlite"
+    if request.param == "postgresql":
+        path = request.getfixturevalue("postgres_url")
     with HistoryStore(path) as s:
         s.record_run(_rows(1), label="main", environment=ENV)
         s.record_run(_rows(2), label="same", environment=ENV)
@@ -58,7 +61,7 @@ def run(capsys: pytest.CaptureFixture[str], *argv: str) -> tuple[int, str, str]:
     return code, out, err
 
 
-def test_list_shows_runs_newest_first(store: Path, capsys: pytest.CaptureFixture[str]) -> None:
+def test_list_shows_runs_newest_first(store: Any, capsys: pytest.CaptureFixture[str]) -> None:
     code, out, err = run(capsys, "history", "list", "--store", str(store))
     assert code == 0 and err == ""
     lines = out.splitlines()
@@ -67,7 +70,7 @@ def test_list_shows_runs_newest_first(store: Path, capsys: pytest.CaptureFixture
     assert "feedfaceca " in out and "bench-7" in out
 
 
-def test_show_lists_each_check(store: Path, capsys: pytest.CaptureFixture[str]) -> None:
+def test_show_lists_each_check(store: Any, capsys: pytest.CaptureFixture[str]) -> None:
     code, out, _ = run(capsys, "history", "show", "main", "--store", str(store))
     assert code == 0
     assert "run 1 'main'" in out and "uncommitted changes" in out
@@ -77,7 +80,7 @@ def test_show_lists_each_check(store: Path, capsys: pytest.CaptureFixture[str]) 
 
 
 def test_compare_flags_the_slowdown_and_the_moved_value(
-    store: Path, capsys: pytest.CaptureFixture[str]
+    store: Any, capsys: pytest.CaptureFixture[str]
 ) -> None:
     code, out, _ = run(capsys, "history", "compare", "main", "slower", "--store", str(store))
     assert code == 1  # a regression is a finding
@@ -91,7 +94,7 @@ def test_compare_flags_the_slowdown_and_the_moved_value(
     assert "2 check(s) regressed from run 1 to run 3" in out
 
 
-def test_compare_of_like_runs_finds_no_regression(store: Path, capsys: pytest.CaptureFixture[str]) -> None:
+def test_compare_of_like_runs_finds_no_regression(store: Any, capsys: pytest.CaptureFixture[str]) -> None:
     code, out, _ = run(capsys, "history", "compare", "main", "same", "--store", str(store))
     assert code == 0
     verdicts = [line.rsplit("  ", 1)[-1] for line in out.splitlines() if line.startswith("test_")]
@@ -99,13 +102,13 @@ def test_compare_of_like_runs_finds_no_regression(store: Path, capsys: pytest.Ca
     assert set(verdicts) <= {"no regression", "cannot tell yet"}
 
 
-def test_compare_limits_are_options(store: Path, capsys: pytest.CaptureFixture[str]) -> None:
+def test_compare_limits_are_options(store: Any, capsys: pytest.CaptureFixture[str]) -> None:
     code, out, _ = run(capsys, "history", "compare", "main", "slower", "--store", str(store),
                        "--max-increase", "60%", "--max-change", "20%")
     assert code == 0 and "<= 1.6x" in out and "0.8x..1.2x" in out
 
 
-def test_export_json_holds_trials_and_is_strict(store: Path, capsys: pytest.CaptureFixture[str]) -> None:
+def test_export_json_holds_trials_and_is_strict(store: Any, capsys: pytest.CaptureFixture[str]) -> None:
     code, out, _ = run(capsys, "history", "export", "main", "--format", "json", "--store", str(store))
     assert code == 0
 
@@ -118,7 +121,7 @@ def test_export_json_holds_trials_and_is_strict(store: Path, capsys: pytest.Capt
     assert document["checks"][0]["decision"]["interval"]["low"] == "-inf"
 
 
-def test_export_csv_to_a_file(store: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+def test_export_csv_to_a_file(store: Any, tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
     target = tmp_path / "run.csv"
     code, out, _ = run(capsys, "history", "export", "#3", "--format", "csv", "--store", str(store),
                        "--output", str(target))
@@ -129,7 +132,7 @@ def test_export_csv_to_a_file(store: Path, tmp_path: Path, capsys: pytest.Captur
     assert rows[0]["low"] == "" and float(rows[0]["high"]) == 1e-3
 
 
-def test_prune_keeps_newest(store: Path, capsys: pytest.CaptureFixture[str]) -> None:
+def test_prune_keeps_newest(store: Any, capsys: pytest.CaptureFixture[str]) -> None:
     code, out, _ = run(capsys, "history", "prune", "--keep", "1", "--store", str(store))
     assert code == 0 and "deleted 2 run(s)" in out and "1 kept" in out
     _, out, _ = run(capsys, "history", "list", "--store", str(store))
@@ -146,7 +149,7 @@ def test_prune_keeps_newest(store: Path, capsys: pytest.CaptureFixture[str]) -> 
     ],
 )
 def test_bad_arguments_exit_2_with_message(
-    store: Path, capsys: pytest.CaptureFixture[str], argv: list[str], message: str
+    store: Any, capsys: pytest.CaptureFixture[str], argv: list[str], message: str
 ) -> None:
     code, out, err = run(capsys, *argv, "--store", str(store))
     assert code == 2 and out == ""
@@ -173,7 +176,7 @@ def test_usage_errors_exit_2(capsys: pytest.CaptureFixture[str]) -> None:
     assert "--keep" in capsys.readouterr().err
 
 
-def test_python_dash_m_meanband_runs_the_command(store: Path) -> None:
+def test_python_dash_m_meanband_runs_the_command(store: Any, tmp_path: Path) -> None:
     env = {**os.environ, "PYTHONPATH": PLUGIN_DIR}
     done = subprocess.run(
         [sys.executable, "-m", "meanband", "history", "show", "slower", "--store", str(store)],
@@ -182,7 +185,7 @@ def test_python_dash_m_meanband_runs_the_command(store: Path) -> None:
     assert done.returncode == 0, done.stderr
     assert "run 3 'slower'" in done.stdout
     failed = subprocess.run(
-        [sys.executable, "-m", "meanband", "history", "list", "--store", str(store.parent / "x")],
+        [sys.executable, "-m", "meanband", "history", "list", "--store", str(tmp_path / "x")],
         capture_output=True, text=True, env=env, timeout=60, check=False,
     )
     assert failed.returncode == 2 and "no history store" in failed.stderr
