@@ -8,12 +8,13 @@ import subprocess
 import sys
 import textwrap
 from pathlib import Path
+from typing import Any
 
 import pytest
 from meanband.cli import main as cli_main
 from meanband.errors import StoreError
 from meanband.store.history import HistoryStore
-from test_history import ENV, PLUGIN_DIR, make_row
+from test_history import ENV, PLUGIN_DIR, make_row, raw_database
 
 # Many processes create one new store at the same instant; a barrier (a file each child waits
 # for) lines them up, so the schema check and creation really overlap.
@@ -35,12 +36,18 @@ _CREATOR = textwrap.dedent(
 )
 
 
-def test_concurrent_creators_of_a_new_store_lose_no_run(tmp_path: Path) -> None:
+@pytest.mark.parametrize("backend", ["sqlite", "postgresql"])
+def test_concurrent_creators_of_a_new_store_lose_no_run(
+    tmp_path: Path, request: pytest.FixtureRequest, backend: str
+) -> None:
     script = tmp_path / "creator.py"
     script.write_text(_CREATOR.format(plugin=PLUGIN_DIR))
     lost = 0
     for attempt in range(4):
-        store, go = tmp_path / f"s{attempt}" / "h.sqlite", tmp_path / f"go{attempt}"
+        store: Any = tmp_path / f"s{attempt}" / "h.sqlite"
+        if backend == "postgresql":
+            store = request.getfixturevalue("postgres_server").new_database()
+        go = tmp_path / f"go{attempt}"
         children = [subprocess.Popen([sys.executable, str(script), str(store), str(go), str(i)],
                                      stderr=subprocess.PIPE, text=True) for i in range(6)]
         go.touch()  # the barrier opens: all six create the store at once
@@ -54,6 +61,17 @@ def test_concurrent_creators_of_a_new_store_lose_no_run(tmp_path: Path) -> None:
 @pytest.fixture
 def recorded(tmp_path: Path) -> Path:
     path = tmp_path / "cache" / "history.sqlite"
+    with HistoryStore(path) as store:
+        store.record_run([make_row("t::a")], label="main", environment=ENV)
+    return path
+
+
+@pytest.fixture(params=["sqlite", "postgresql"])
+def recorded_anywhere(request: pytest.FixtureRequest, tmp_path: Path) -> Any:
+    """One recorded run in a new SQLite file, or in a new PostgreSQL database."""
+    path: Any = tmp_path / "cache" / "history.sqlite"
+    if request.param == "postgresql":
+        path = request.getfixturevalue("postgres_url")
     with HistoryStore(path) as store:
         store.record_run([make_row("t::a")], label="main", environment=ENV)
     return path
@@ -73,13 +91,19 @@ def test_read_only_store_can_be_read(recorded: Path) -> None:
         recorded.chmod(0o644)
 
 
-def test_read_only_open_writes_nothing(recorded: Path) -> None:
-    before = recorded.read_bytes()
+def test_read_only_open_writes_nothing(recorded_anywhere: Any) -> None:
+    recorded = recorded_anywhere
+    before = recorded.read_bytes() if isinstance(recorded, Path) else None
     with HistoryStore(recorded, create=False, read_only=True) as store:
         assert len(store.checks(store.find_run().id)) == 1
         with pytest.raises(StoreError, match="cannot write"):
             store.record_run([make_row("t::b")], environment=ENV)
-    assert recorded.read_bytes() == before
+        with pytest.raises(StoreError, match="cannot write"):
+            store.prune(0)
+    if before is not None:
+        assert recorded.read_bytes() == before
+    with HistoryStore(recorded, create=False, read_only=True) as store:
+        assert [r.label for r in store.runs()] == ["main"]
 
 
 @pytest.mark.parametrize("column, value, says", [
@@ -88,11 +112,11 @@ def test_read_only_open_writes_nothing(recorded: Path) -> None:
     ("trials", b"\x00" * 5, "5 bytes"),
 ])
 def test_damaged_content_is_a_store_error_naming_run_and_check(
-    recorded: Path, column: str, value: object, says: str
+    recorded_anywhere: Any, column: str, value: object, says: str
 ) -> None:
-    with sqlite3.connect(recorded) as conn:
-        conn.execute(f"UPDATE checks SET {column} = ?", (value,))
-    with HistoryStore(recorded, create=False, read_only=True) as store:
+    with raw_database(recorded_anywhere) as db:
+        db.execute(f"UPDATE checks SET {column} = ?", (value,))
+    with HistoryStore(recorded_anywhere, create=False, read_only=True) as store:
         with pytest.raises(StoreError, match=says):
             store.checks(1)
 
