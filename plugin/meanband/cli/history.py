@@ -30,7 +30,7 @@ REGRESSION_FOUND = 1
 def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) -> None:
     """Add ``history`` and its subcommands to the ``meanband`` command."""
     history = subparsers.add_parser(
-        "history", help="Stored runs: list, show, compare, export, trend, copy, prune",
+        "history", help="Stored runs: list, show, compare, export, trend, copy, prune, calibrate",
         description="Read and tidy the history store that --meanband-record writes.",
     )
     history.set_defaults(handler=lambda args: _usage(history))
@@ -115,6 +115,10 @@ def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) ->
     prune.add_argument("--keep", type=int, required=True, metavar="N", help="How many runs to keep")
     _store_option(prune)
     prune.set_defaults(handler=_guarded(_prune))
+
+    from meanband.cli.calibrate import register_calibrate
+
+    register_calibrate(commands, _store_option, _guarded)
 
 
 _RUN_HELP = "A run id (7 or #7), a label (newest run with it), or 'latest'."

@@ -392,6 +392,9 @@ class HistoryPlugin:
             )
         except TrialError as exc:
             return {**about, "status": NOT_COMPARED, "reason": str(exc)}
+        floor = self.baseline.floors.get(key)
+        if floor is not None:
+            result["noise"]["floor"] = floor.between_sd
         return {**about, **result}
 
     # -- the end of the session ------------------------------------------------------------

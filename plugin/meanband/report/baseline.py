@@ -108,6 +108,9 @@ def format_noise(info: Mapping[str, Any]) -> str:
     where = {"baseline runs": f"{noise.get('runs')} runs", "suite": "suite",
              "calibration": "A/A", "assumed": "assumed",
              "none measured": "one run"}.get(source, source)
+    floor = noise.get("floor")
+    if floor is not None and source != "calibration":
+        where += f"; A/A {float(floor):.1%}"
     return f"{float(noise['between_sd']):.1%} ({where})"
 
 
