@@ -103,3 +103,25 @@ def test_run_intervals_are_student_t_and_short_runs_are_left_out(store: Path) ->
     low, high = stats.t.interval(0.95, x.size - 1, loc=x.mean(), scale=stats.sem(x))
     assert (lookup.points[0].low, lookup.points[0].high) == pytest.approx((low, high), rel=1e-12)
     assert len(rail.points) == RUNS + 1
+
+
+def test_plots_of_a_session_with_a_store_include_trends(pytester: pytest.Pytester, run_suite) -> None:
+    pytest.importorskip("matplotlib")
+    pytester.makepyfile(test_rates="""
+        import numpy as np
+        rng = np.random.default_rng()
+
+        def test_rate_table(trials):
+            trials.extend(rng.lognormal(np.log(2e-3), 0.05, 12), unit="s")
+            trials.check(high="10ms")
+    """)
+    # matplotlib is drawn in a child process: in-process runs drop modules they imported first.
+    first = run_suite("--meanband-record=main", "--meanband-plots=plots", subprocess=True)
+    first.stdout.fnmatch_lines(["*no trend pictures: *holds fewer than two runs*labelled 'main'*"])
+    for _ in range(3):
+        run_suite("--meanband-record=main").assert_outcomes(passed=1)
+    result = run_suite("--meanband-baseline=main", "--meanband-plots=plots", subprocess=True)
+    result.stdout.fnmatch_lines(["*wrote 1 trend picture(s) of the newest 60 stored runs to plots*"])
+    assert (pytester.path / "plots" / "trend-test_rates.py_test_rate_table.png").exists()
+    plain = run_suite("--meanband-plots=other", subprocess=True)
+    assert "trend picture" not in plain.stdout.str()  # no store in use, no trend

@@ -263,6 +263,35 @@ class ReportWriter:
                   f"{_shown(self.settings.plots)}")  # type: ignore[arg-type]
         for line in result.skipped_lines():
             self._say(f"meanband: {line}", yellow=True)
+        self._write_trend_plots(rows)
+
+    def _write_trend_plots(self, rows: list[ResultRow]) -> None:
+        """With a history store in use, one trend picture per check of this run: its stored
+        run means over time and their change points (``meanband history trend`` in pictures)."""
+        history = self.config.pluginmanager.get_plugin("meanband-history")
+        location = getattr(history, "store", None)
+        if location is None:
+            return
+        from meanband.errors import StoreError, TrialError
+        from meanband.report.trend import STORE_TREND_RUNS, store_trends, write_trend_plots
+        from meanband.store.database import where
+
+        label = getattr(history, "record", None) or None
+        keys = [(str(r.get("nodeid", "")), str(r.get("series", ""))) for r in rows]
+        try:
+            trends = store_trends(location, keys, label=label)
+        except (StoreError, TrialError) as exc:
+            self._say(f"meanband: no trend pictures: {exc}", yellow=True)
+            return
+        if not trends:
+            self._say(f"meanband: no trend pictures: {where(location)} holds fewer than two "
+                      "runs of these checks" + (f" labelled {label!r}" if label else ""))
+            return
+        written = write_trend_plots(trends, self.settings.plots,  # type: ignore[arg-type]
+                                    formats=self.settings.plot_formats)
+        self._say(f"meanband: wrote {len(written)} trend picture(s) of the newest "
+                  f"{STORE_TREND_RUNS} stored runs to {_shown(self.settings.plots)}"  # type: ignore[arg-type]
+                  )
 
 
 def _shown(path: Path) -> str:

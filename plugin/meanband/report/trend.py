@@ -19,7 +19,18 @@ from meanband.stats.changepoint import DEFAULT_ALPHA, DEFAULT_PERMUTATIONS, Tren
 from meanband.store.history import RunInfo, StoredCheck
 from meanband.units import SECONDS, format_number, format_value, time_scale
 
-__all__ = ["CheckTrend", "RunPoint", "build_trends", "trend_lines", "write_trend_plots"]
+__all__ = [
+    "STORE_TREND_RUNS",
+    "CheckTrend",
+    "RunPoint",
+    "build_trends",
+    "store_trends",
+    "trend_lines",
+    "write_trend_plots",
+]
+
+#: How many of the newest stored runs the trend pictures of a test session show.
+STORE_TREND_RUNS = 60
 
 
 @dataclass(frozen=True, slots=True)
@@ -86,6 +97,21 @@ def build_trends(
                                    seed=seed)
         trends.append(CheckTrend(nodeid, series, entries[-1][1], points, trend, confidence))
     return trends
+
+
+def store_trends(
+    location: str | os.PathLike[str], keys: Iterable[tuple[str, str]], *,
+    label: str | None = None, last: int = STORE_TREND_RUNS,
+) -> list[CheckTrend]:
+    """Trends of the checks ``keys`` over the newest ``last`` runs in a store (of one label)."""
+    from meanband.store.history import HistoryStore
+
+    wanted = set(keys)
+    with HistoryStore(location, create=False, read_only=True) as store:
+        runs = [r for r in store.runs() if label is None or r.label == label][:last]
+        history = [(run, [c for c in store.checks(run.id) if c.key in wanted])
+                   for run in reversed(runs)]
+    return [t for t in build_trends(history) if len(t.points) >= 2]
 
 
 def trend_lines(trend: CheckTrend) -> list[str]:
