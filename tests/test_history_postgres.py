@@ -120,3 +120,33 @@ def test_password_is_masked_in_the_summary(pytester: pytest.Pytester, postgres_u
     assert "Zebra-Lantern-9" not in text
     with HistoryStore(postgres_url, create=False) as store:
         assert store.find_run("main").checks == 1
+
+
+def test_credentials_from_environment_variables_and_a_service_file(
+    postgres_server, postgres_url: str, tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    database = postgres_url.rsplit("/", 1)[1]
+    with HistoryStore(postgres_url) as store:
+        store.record_run([make_row("a")], label="main", environment=ENV)
+    # libpq's standard variables fill in whatever the URL leaves out.
+    monkeypatch.setenv("PGHOST", "127.0.0.1")
+    monkeypatch.setenv("PGPORT", str(postgres_server.port))
+    monkeypatch.setenv("PGUSER", "postgres")
+    with HistoryStore(f"postgresql:///{database}", create=False, read_only=True) as store:
+        assert store.find_run("main").label == "main"
+    for name in ("PGHOST", "PGPORT", "PGUSER"):
+        monkeypatch.delenv(name)
+    services = tmp_path / "pg_service.conf"
+    services.write_text(f"[shared-history]\nhost=127.0.0.1\nport={postgres_server.port}\n"
+                        f"user=postgres\ndbname={database}\n")
+    monkeypatch.setenv("PGSERVICEFILE", str(services))
+    with HistoryStore("postgresql:///?service=shared-history", create=False, read_only=True) as store:
+        assert store.find_run("main").label == "main"
+
+
+def test_tls_options_pass_through_to_the_driver(postgres_url: str) -> None:
+    # The test server has no TLS: "require" must fail at the driver, "disable" must connect.
+    with HistoryStore(f"{postgres_url}?sslmode=disable") as store:
+        assert store.runs() == []
+    with pytest.raises(StoreError, match=r"(?i)ssl"):
+        HistoryStore(f"{postgres_url}?sslmode=require")
