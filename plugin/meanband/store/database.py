@@ -140,7 +140,10 @@ class Database:
 
     def execute(self, sql: str, params: Sequence[Any] = ()) -> Any:
         """Run one statement; returns a cursor with ``fetchone``/``fetchall``/``rowcount``."""
-        return self.conn.execute(self._sql(sql), tuple(params))
+        if self.backend == SQLITE:
+            return self.conn.execute(sql, tuple(params))
+        # Binary results: trials come back as their bytes, not as hex text to decode.
+        return self.conn.execute(self._sql(sql), tuple(params), binary=True)
 
     def executemany(self, sql: str, rows: Iterable[Sequence[Any]]) -> None:
         if self.backend == SQLITE:
