@@ -138,3 +138,36 @@ def test_baseline_of_several_runs_measures_their_spread(pytester: pytest.Pyteste
         "(baseline of runs 3, 2, 1)",
         "  run-to-run noise allowed for: *% between runs (*)",
     ])
+
+
+def test_busy_machine_on_one_side_cannot_compare(
+    pytester: pytest.Pytester, run_suite, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    from meanband.store import environment
+
+    pytester.makepyfile(test_routes=TIMING_SUITE.format(seed=1, run_shift=0.0))
+    monkeypatch.setattr(environment, "load_per_cpu", lambda: 0.2)  # an idle machine
+    assert run_suite("--meanband-record=main").ret == 0
+    pytester.makepyfile(test_routes=TIMING_SUITE.format(seed=2, run_shift=math.log(2.0)))
+    monkeypatch.setattr(environment, "load_per_cpu", lambda: 2.5)  # 2.5 runnable per core
+    result = run_suite("--meanband-baseline=main")
+    result.assert_outcomes(passed=2)  # twice as slow, but the queue may be why
+    result.stdout.fnmatch_lines([
+        "  test_routes.py::test_fare: cannot compare: the machine was busy at this check (load "
+        "2.50 per CPU) but idle when the baseline ran (0.20); --meanband-compare-anywhere "
+        "compares anyway",
+    ])
+    forced = run_suite("--meanband-baseline=main", "--meanband-compare-anywhere")
+    forced.assert_outcomes(failed=2)
+    monkeypatch.setattr(environment, "load_per_cpu", lambda: 0.4)  # idle again: compared
+    run_suite("--meanband-baseline=main").assert_outcomes(failed=2)
+
+
+def test_busy_words() -> None:
+    from meanband.store.environment import busy_difference
+
+    assert busy_difference(None, [0.1]) is None and busy_difference(0.5, []) is None
+    assert busy_difference(0.5, [0.1, 0.9, 0.2]) is None  # idle on both sides
+    assert busy_difference(1.5, [2.0, 1.1, 3.0]) is None  # busy on both sides
+    assert "idle at this check (load 0.30 per CPU) but busy" in (
+        busy_difference(0.3, [1.2, 1.4, 0.2]) or "")

@@ -36,6 +36,7 @@ class BaselineCheck:
     source: str | None
     runs: tuple[np.ndarray, ...] = field(repr=False)
     between: Between
+    loads: tuple[float, ...] = ()
 
 
 @dataclass(frozen=True, slots=True)
@@ -116,6 +117,8 @@ def assemble(
             newest.unit, newest.source, tuple(values),
             choose_between(own[key], pooled, floors.get(key),
                            assumed if is_timing(newest.unit, newest.source) else 0.0),
+            tuple(float(c.row["load"]) for c in stored[key]
+                  if isinstance(c.row.get("load"), int | float)),
         )
         for key, (newest, values) in kept.items()
     }
