@@ -171,3 +171,24 @@ def test_busy_words() -> None:
     assert busy_difference(1.5, [2.0, 1.1, 3.0]) is None  # busy on both sides
     assert "idle at this check (load 0.30 per CPU) but busy" in (
         busy_difference(0.3, [1.2, 1.4, 0.2]) or "")
+
+
+def test_the_suite_estimate_is_used_unless_a_check_is_noisier_beyond_chance() -> None:
+    from meanband.store.baseline import choose_between
+    from meanband.store.history import NoiseFloor
+    from scipy import stats
+
+    pooled = Between(0.02**2, 24.0, "suite", 3)
+    # Reference: the F distribution's 99th percentile (scipy.stats.f), the variance-ratio test.
+    critical = stats.f.ppf(0.99, 2, 24)
+    near = Between(pooled.variance * critical * 0.99, 2.0, "baseline runs", 3)
+    far = Between(pooled.variance * critical * 1.01, 2.0, "baseline runs", 3)
+    assert choose_between(near, pooled, None, 0.03) is pooled
+    assert choose_between(far, pooled, None, 0.03) is far
+    assert choose_between(near, None, None, 0.03) is near
+    floor = NoiseFloor("t", "", 0.05, 3, 4)
+    assert choose_between(near, pooled, floor, 0.03) == Between(0.05**2, 3.0, "calibration", 4)
+    small_floor = NoiseFloor("t", "", 0.001, 3, 4)
+    assert choose_between(near, pooled, small_floor, 0.03) is pooled
+    assert choose_between(None, None, None, 0.03) == Between(0.03**2, math.inf, "assumed", 1)
+    assert choose_between(None, None, None, 0.0).source == "none measured"
