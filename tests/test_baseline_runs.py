@@ -138,3 +138,57 @@ def test_baseline_of_several_runs_measures_their_spread(pytester: pytest.Pyteste
         "(baseline of runs 3, 2, 1)",
         "  run-to-run noise allowed for: *% between runs (*)",
     ])
+
+
+def test_busy_machine_on_one_side_cannot_compare(
+    pytester: pytest.Pytester, run_suite, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    from meanband.store import environment
+
+    pytester.makepyfile(test_routes=TIMING_SUITE.format(seed=1, run_shift=0.0))
+    monkeypatch.setattr(environment, "load_per_cpu", lambda: 0.2)  # an idle machine
+    assert run_suite("--meanband-record=main").ret == 0
+    pytester.makepyfile(test_routes=TIMING_SUITE.format(seed=2, run_shift=math.log(2.0)))
+    monkeypatch.setattr(environment, "load_per_cpu", lambda: 2.5)  # 2.5 runnable per core
+    result = run_suite("--meanband-baseline=main")
+    result.assert_outcomes(passed=2)  # twice as slow, but the queue may be why
+    result.stdout.fnmatch_lines([
+        "  test_routes.py::test_fare: cannot compare: the machine was busy at this check (load "
+        "2.50 per CPU) but idle when the baseline ran (0.20); --meanband-compare-anywhere "
+        "compares anyway",
+    ])
+    forced = run_suite("--meanband-baseline=main", "--meanband-compare-anywhere")
+    forced.assert_outcomes(failed=2)
+    monkeypatch.setattr(environment, "load_per_cpu", lambda: 0.4)  # idle again: compared
+    run_suite("--meanband-baseline=main").assert_outcomes(failed=2)
+
+
+def test_busy_words() -> None:
+    from meanband.store.environment import busy_difference
+
+    assert busy_difference(None, [0.1]) is None and busy_difference(0.5, []) is None
+    assert busy_difference(0.5, [0.1, 0.9, 0.2]) is None  # idle on both sides
+    assert busy_difference(1.5, [2.0, 1.1, 3.0]) is None  # busy on both sides
+    assert "idle at this check (load 0.30 per CPU) but busy" in (
+        busy_difference(0.3, [1.2, 1.4, 0.2]) or "")
+
+
+def test_the_suite_estimate_is_used_unless_a_check_is_noisier_beyond_chance() -> None:
+    from meanband.store.baseline import choose_between
+    from meanband.store.history import NoiseFloor
+    from scipy import stats
+
+    pooled = Between(0.02**2, 24.0, "suite", 3)
+    # Reference: the F distribution's 99th percentile (scipy.stats.f), the variance-ratio test.
+    critical = stats.f.ppf(0.99, 2, 24)
+    near = Between(pooled.variance * critical * 0.99, 2.0, "baseline runs", 3)
+    far = Between(pooled.variance * critical * 1.01, 2.0, "baseline runs", 3)
+    assert choose_between(near, pooled, None, 0.03) is pooled
+    assert choose_between(far, pooled, None, 0.03) is far
+    assert choose_between(near, None, None, 0.03) is near
+    floor = NoiseFloor("t", "", 0.05, 3, 4)
+    assert choose_between(near, pooled, floor, 0.03) == Between(0.05**2, 3.0, "calibration", 4)
+    small_floor = NoiseFloor("t", "", 0.001, 3, 4)
+    assert choose_between(near, pooled, small_floor, 0.03) is pooled
+    assert choose_between(None, None, None, 0.03) == Between(0.03**2, math.inf, "assumed", 1)
+    assert choose_between(None, None, None, 0.0).source == "none measured"

@@ -31,6 +31,9 @@ def runs_with_components(
     return [np.exp(centre + rng.normal(0.0, tau) + rng.normal(0.0, sigma, n)) for _ in range(k)]
 
 
+# statsmodels warns of a boundary on every fit of this model in its current release, even where
+# the estimate is well inside (it matches the ANOVA estimate below to 1e-5).
+@pytest.mark.filterwarnings("ignore:The MLE may be on the boundary")
 def test_between_run_variance_matches_a_random_effects_fit() -> None:
     # Reference: statsmodels MixedLM (REML) of a one-way random-effects model; for a balanced
     # design its variance estimate equals the ANOVA method of moments (MSB - MSW) / n whenever

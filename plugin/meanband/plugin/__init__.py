@@ -151,6 +151,11 @@ def pytest_runtest_makereport(
             item.user_properties.extend(_junit_properties(row, index if numbered else None))
     report = yield
     if rows:
+        from meanband.store.environment import load_per_cpu
+
+        load = load_per_cpu()
+        for row in rows:
+            row.setdefault("load", load)
         report.meanband_rows = rows  # type: ignore[attr-defined]
     return report
 

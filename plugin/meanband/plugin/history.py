@@ -352,11 +352,12 @@ class HistoryPlugin:
         from meanband.stats.multiplicity import immediate_threshold
         from meanband.stats.regression import (
             CANNOT_COMPARE,
-            NO_BASELINE,
             NOT_COMPARED,
             compare_with_runs,
             is_timing,
+            not_compared,
         )
+        from meanband.store.environment import busy_difference
 
         assert self.baseline is not None
         about: dict[str, Any] = {**self.baseline.describe(),
@@ -365,21 +366,21 @@ class HistoryPlugin:
         key = (row.get("nodeid", ""), row.get("series", ""))
         stored = self.baseline.checks.get(key)
         where = _runs_words(self.baseline.run_ids)
-        if row.get("source") == "compare":
-            return {**about, "status": NOT_COMPARED,
-                    "reason": "an in-run comparison is its own gate"}
-        if stored is None or not stored.runs:
-            return {**about, "status": NO_BASELINE, "reason": f"{where} has no trials for this check"}
-        if stored.unit != row.get("unit"):
-            return {**about, "status": NOT_COMPARED,
-                    "reason": f"the unit changed from {stored.unit or 'none'} to "
-                              f"{row.get('unit') or 'none'} since {where}"}
+        unmatched = not_compared(row.get("source"), stored is not None and bool(stored.runs),
+                                 row.get("unit"), None if stored is None else stored.unit, where)
+        if unmatched is not None:
+            return {**about, **unmatched}
+        assert stored is not None
         timing = is_timing(row.get("unit"), row.get("source"))
         if timing and self.mismatch and not self.settings.anywhere:
             return {**about, "status": CANNOT_COMPARE,
                     "reason": "the baseline ran on a machine that times differently ("
                               + "; ".join(self.mismatch)
                               + "); --meanband-compare-anywhere compares anyway"}
+        busy = busy_difference(row.get("load"), list(stored.loads)) if timing else None
+        if busy is not None and not self.settings.anywhere:
+            return {**about, "status": CANNOT_COMPARE,
+                    "reason": f"{busy}; --meanband-compare-anywhere compares anyway"}
         settings = row.get("settings") or {}
         confidence = settings.get("confidence", defaults.CONFIDENCE)
         alpha = (1.0 - confidence) / 2.0

@@ -331,6 +331,7 @@ class ResultRow(_RowCore, total=False):
     times: list[float]
     run: int
     pooled: PooledRecord
+    load: float | None
 
 
 #: Keys every row has, and keys a row may have.

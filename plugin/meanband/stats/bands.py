@@ -9,7 +9,7 @@ from typing import Any
 from meanband.errors import TrialError
 from meanband.units import SECONDS, parse_duration
 
-__all__ = ["Band", "Edge", "Tolerance", "make_band"]
+__all__ = ["Band", "Edge", "Tolerance", "make_band", "side_alpha"]
 
 Edge = float | int | str | None
 #: A tolerance: symmetric ``0.4``, or asymmetric ``(below, above)`` such as ``(0.3, 0.5)``.
@@ -111,3 +111,9 @@ def _edge_value(edge: Edge, unit: str | None, name: str) -> float:
     if math.isnan(value) or (name in ("center", "tolerance") and math.isinf(value)):
         raise TrialError(f"{name}= must be a finite number, got {edge!r}")
     return value
+
+
+def side_alpha(level: float, side: str) -> float:
+    """The tail probability one edge gets: half of ``1 - level`` for a two-sided interval, all
+    of it for a one-sided bound (``upper`` or ``lower``)."""
+    return (1.0 - level) / 2.0 if side == "two-sided" else 1.0 - level

@@ -14,7 +14,18 @@ from typing import TYPE_CHECKING, Any, ClassVar
 import numpy as np
 
 from meanband.errors import TrialError
-from meanband.stats.rules import conformance_probability
+from meanband.stats.rules import (
+    conformance_probability,
+)
+from meanband.stats.rules import (
+    distribution as _distribution,
+)
+from meanband.stats.rules import (
+    finite_or_none as _finite_or_none,
+)
+from meanband.stats.rules import (
+    outside_probability as _outside_probability,
+)
 
 if TYPE_CHECKING:
     from meanband.stats.uncertainty import UncertaintyBudget
@@ -821,28 +832,6 @@ def _probe_value(low: float, high: float) -> float:
     if math.isfinite(low) and math.isfinite(high):
         return (low + high) / 2.0
     return low if math.isfinite(low) else high
-
-
-def _outside_probability(y: float, u: float, df: float, low: float, high: float) -> float:
-    """1 - p_c from the two tails, so a tiny risk keeps its digits."""
-    if u == 0.0:
-        return 0.0 if low <= y <= high else 1.0
-    dist = _distribution(df)
-    return float(dist.cdf((low - y) / u) + dist.sf((high - y) / u))
-
-
-def _distribution(df: float) -> Any:
-    if math.isinf(df):
-        from scipy.stats import norm
-
-        return norm
-    from scipy.stats import t as student_t
-
-    return student_t(df)
-
-
-def _finite_or_none(value: float) -> float | None:
-    return float(value) if math.isfinite(value) else None
 
 
 def rule_spec(rule: DecisionRule) -> str:

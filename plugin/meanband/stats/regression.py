@@ -30,6 +30,7 @@ __all__ = [
     "compare_samples",
     "compare_with_runs",
     "is_timing",
+    "not_compared",
 ]
 
 REGRESSED = "regressed"
@@ -148,6 +149,24 @@ def _trials_to_decide(
 NOT_COMPARED = "not compared"
 
 
+def not_compared(
+    source: str | None, has_baseline: bool, unit: str | None, baseline_unit: str | None,
+    baseline_run: str,
+) -> dict[str, Any] | None:
+    """Why a check is not compared with its baseline (status and reason), or None when it is:
+    an in-run comparison is its own gate, a check new since the baseline has nothing to
+    compare with, and a changed unit makes the ratio meaningless."""
+    if source == "compare":
+        return {"status": NOT_COMPARED, "reason": "an in-run comparison is its own gate"}
+    if not has_baseline:
+        return {"status": NO_BASELINE, "reason": f"{baseline_run} has no trials for this check"}
+    if baseline_unit != unit:
+        return {"status": NOT_COMPARED,
+                "reason": f"the unit changed from {baseline_unit or 'none'} to {unit or 'none'} "
+                          f"since {baseline_run}"}
+    return None
+
+
 def compare_check(
     current: Iterable[float] | np.ndarray,
     baseline: Iterable[float] | np.ndarray | None,
@@ -166,14 +185,9 @@ def compare_check(
     gate; a check whose unit changed, or whose trials cannot be compared, gets ``not compared``
     with the reason. Otherwise :func:`compare_samples` decides. Builtin types only.
     """
-    if source == "compare":
-        return {"status": NOT_COMPARED, "reason": "an in-run comparison is its own gate"}
-    if baseline is None:
-        return {"status": NO_BASELINE, "reason": f"{baseline_run} has no trials for this check"}
-    if baseline_unit != unit:
-        return {"status": NOT_COMPARED,
-                "reason": f"the unit changed from {baseline_unit or 'none'} to {unit or 'none'} "
-                          f"since {baseline_run}"}
+    unmatched = not_compared(source, baseline is not None, unit, baseline_unit, baseline_run)
+    if unmatched is not None or baseline is None:
+        return unmatched or {}
     try:
         return compare_samples(current, baseline, timing=is_timing(unit, source),
                                confidence=confidence, limits=limits, power=power)

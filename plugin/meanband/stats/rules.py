@@ -60,8 +60,8 @@ class RuleOutcome:
             "rule": self.rule,
             "verdict": self.verdict.value,
             "guard_band": float(self.guard_band),
-            "acceptance_low": _finite_or_none(self.acceptance_low),
-            "acceptance_high": _finite_or_none(self.acceptance_high),
+            "acceptance_low": finite_or_none(self.acceptance_low),
+            "acceptance_high": finite_or_none(self.acceptance_high),
             "conformance_probability": _float_or_none(self.conformance_probability),
             "false_accept_probability": _float_or_none(self.false_accept_probability),
             "false_reject_probability": _float_or_none(self.false_reject_probability),
@@ -104,7 +104,7 @@ def conformance_probability(
         raise TrialError(f"degrees of freedom must be > 0 (or inf), got {df!r}")
     if standard_uncertainty == 0.0:
         return 1.0 if low <= mean <= high else 0.0
-    dist = _distribution(df)
+    dist = distribution(df)
     z_low = (low - mean) / standard_uncertainty
     z_high = (high - mean) / standard_uncertainty
     # Compute the smaller of p_c and 1 - p_c directly, so neither loses digits to cancellation.
@@ -185,11 +185,20 @@ def _outside(
     """1 - p_c, computed from the tails when p_c is close to 1."""
     if not u or df is None:
         return 1.0 - p_c
-    dist = _distribution(df)
-    return float(dist.cdf((low - mean) / u) + dist.sf((high - mean) / u))
+    return outside_probability(mean, u, df, low, high)
 
 
-def _distribution(df: float) -> Any:
+def outside_probability(y: float, u: float, df: float, low: float, high: float) -> float:
+    """The probability beyond ``[low, high]`` of a t (or normal) with centre ``y`` and scale
+    ``u``, from the two tails, so a tiny risk keeps its digits."""
+    if u == 0.0:
+        return 0.0 if low <= y <= high else 1.0
+    dist = distribution(df)
+    return float(dist.cdf((low - y) / u) + dist.sf((high - y) / u))
+
+
+def distribution(df: float) -> Any:
+    """Student's t with ``df`` degrees of freedom; the normal distribution for infinite df."""
     if math.isinf(df):
         from scipy.stats import norm
 
@@ -199,7 +208,8 @@ def _distribution(df: float) -> Any:
     return student_t(df)
 
 
-def _finite_or_none(value: float) -> float | None:
+def finite_or_none(value: float) -> float | None:
+    """A finite number as a float, an infinite or NaN one as None (for JSON rows)."""
     return float(value) if math.isfinite(value) else None
 
 

@@ -48,6 +48,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from meanband.errors import TrialError
+from meanband.stats.bands import side_alpha
 from meanband.stats.interval import Interval
 from meanband.stats.sample import as_sample, check_confidence, location_scale
 
@@ -101,10 +102,6 @@ def _check_tightest_at(tightest_at: int) -> int:
     return int(tightest_at)
 
 
-def _side_alpha(level: float, side: str) -> float:
-    return (1.0 - level) / 2.0 if side == "two-sided" else 1.0 - level
-
-
 def prior_variance(alpha: float, tightest_at: int) -> float:
     """tau^2 for the one-sided level ``alpha``: Howard et al. (2021) tuning, from memory."""
     log_inv = math.log(1.0 / alpha)
@@ -141,7 +138,7 @@ def anytime_multiplier(
     if counts.size and (not np.issubdtype(counts.dtype, np.integer) or counts.min() < 2):
         raise TrialError(f"trial counts must be whole numbers >= 2, got {n!r}")
     nf = counts.astype(np.float64)
-    alpha = _side_alpha(level, side)
+    alpha = side_alpha(level, side)
     tau2 = prior_variance(alpha, tightest_at)
     target = math.log(1.0 / alpha)
     from scipy.stats import t as student_t

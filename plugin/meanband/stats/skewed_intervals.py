@@ -19,6 +19,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from meanband.errors import TrialError
+from meanband.stats.bands import side_alpha
 from meanband.stats.interval import Interval, critical_t
 from meanband.stats.sample import as_sample, location_scale
 
@@ -296,10 +297,6 @@ def _quantile(sorted_rows: np.ndarray, prob: float) -> np.ndarray:
     return np.where((weight == 0.0) | (lower == upper) | np.isinf(lower), lower, between)
 
 
-def _tail(level: float, side: str) -> float:
-    return (1.0 - level) / 2.0 if side == "two-sided" else 1.0 - level
-
-
 def bootstrap_t_bounds(
     samples: np.ndarray,
     confidence: float,
@@ -318,7 +315,7 @@ def bootstrap_t_bounds(
     data = _as_rows(samples)
     mean, sd, sem, _, _ = row_moments(data)
     piv = resample_pivots(data, n_resamples=n_resamples, rng=rng) if pivots is None else pivots
-    a = _tail(level, side)
+    a = side_alpha(level, side)
     with np.errstate(invalid="ignore"):
         high = np.where(sd > 0.0, mean - _quantile(piv.student, a) * sem, mean)
         low = np.where(sd > 0.0, mean - _quantile(piv.student, 1.0 - a) * sem, mean)
@@ -345,7 +342,7 @@ def hall_bootstrap_bounds(
     mean, sd, sem, m3, _ = row_moments(data)
     g = _skewness(m3, sd)
     piv = resample_pivots(data, n_resamples=n_resamples, rng=rng) if pivots is None else pivots
-    a = _tail(level, side)
+    a = side_alpha(level, side)
     with np.errstate(invalid="ignore"):
         high = np.where(sd > 0.0, mean - sem * _hall_inverse(_quantile(piv.hall, a), g, n), mean)
         low = np.where(sd > 0.0, mean - sem * _hall_inverse(_quantile(piv.hall, 1.0 - a), g, n), mean)

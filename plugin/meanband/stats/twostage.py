@@ -43,7 +43,7 @@ import numpy as np
 
 from meanband import defaults
 from meanband.errors import TrialError
-from meanband.stats.bands import Band
+from meanband.stats.bands import Band, side_alpha
 from meanband.stats.decision import Decision
 from meanband.stats.diagnostics import diagnose
 from meanband.stats.interval import Interval
@@ -145,10 +145,6 @@ def check_max_n(max_n: Any, pilot_n: int) -> int:
     return int(max_n)
 
 
-def _alpha(level: float, side: str) -> float:
-    return (1.0 - level) / 2.0 if side == "two-sided" else 1.0 - level
-
-
 def _nearest_margin(mean: np.ndarray, low: float, high: float) -> np.ndarray:
     distances = [np.abs(mean - edge) for edge in (low, high) if math.isfinite(edge)]
     if not distances:
@@ -178,7 +174,7 @@ def second_stage_counts(
     level = check_confidence(confidence)
     side = _side(low, high)
     df = pilot_n - 1
-    reach = student_t.ppf(1.0 - _alpha(level, side), df) + student_t.ppf(power, df)
+    reach = student_t.ppf(1.0 - side_alpha(level, side), df) + student_t.ppf(power, df)
     sd = np.asarray(pilot_sd, dtype=np.float64)
     margin = _nearest_margin(np.asarray(pilot_mean, dtype=np.float64), low, high)
     with np.errstate(divide="ignore", invalid="ignore"):

@@ -36,6 +36,7 @@ class BaselineCheck:
     source: str | None
     runs: tuple[np.ndarray, ...] = field(repr=False)
     between: Between
+    loads: tuple[float, ...] = ()
 
 
 @dataclass(frozen=True, slots=True)
@@ -116,6 +117,8 @@ def assemble(
             newest.unit, newest.source, tuple(values),
             choose_between(own[key], pooled, floors.get(key),
                            assumed if is_timing(newest.unit, newest.source) else 0.0),
+            tuple(float(c.row["load"]) for c in stored[key]
+                  if isinstance(c.row.get("load"), int | float)),
         )
         for key, (newest, values) in kept.items()
     }
@@ -133,15 +136,28 @@ def _own_between(runs: list[np.ndarray]) -> Between | None:
 def choose_between(
     own: Between | None, pooled: Between | None, floor: NoiseFloor | None, assumed: float,
 ) -> Between:
-    """The run-to-run variance a check is judged with: the largest of its own estimate from the
-    baseline runs, the suite's pooled estimate and a calibrated floor; the assumed allowance
-    only when none of them exists (``assumed`` is 0 for a value that is not a timing: machine
-    noise does not move a sensor reading). Taking the largest errs towards "cannot tell yet"
-    rather than towards a false "regressed"."""
-    candidates = [b for b in (own, pooled) if b is not None]
+    """The run-to-run variance a check is judged with.
+
+    The suite's pooled estimate is steadier than a check's own (many checks, few runs each), so
+    it is used unless the check's own estimate is larger beyond chance: above the pooled one
+    times the 99th percentile of F(own df, pooled df), a variance-ratio test (Snedecor; common
+    practice for pooling variances). A calibrated floor then bounds it from below. The assumed
+    allowance applies only when nothing measured it (``assumed`` is 0 for a value that is not a
+    timing: machine noise does not move a sensor reading). Every step errs towards "cannot tell
+    yet" rather than towards a false "regressed".
+    """
+    chosen = pooled or own
+    if own is not None and pooled is not None and own is not pooled and pooled.df > 0:
+        from scipy import stats
+
+        critical = float(stats.f.ppf(0.99, own.df, pooled.df))
+        if own.variance > pooled.variance * critical:
+            chosen = own
     if floor is not None and math.isfinite(floor.between_sd):
-        candidates.append(Between(floor.between_sd**2, float(max(floor.df, 1)), "calibration",
-                                  floor.runs))
-    if not candidates:
+        calibrated = Between(floor.between_sd**2, float(max(floor.df, 1)), "calibration",
+                             floor.runs)
+        if chosen is None or calibrated.variance > chosen.variance:
+            chosen = calibrated
+    if chosen is None:
         return Between(assumed**2, math.inf, "assumed" if assumed > 0 else "none measured", 1)
-    return max(candidates, key=lambda b: b.variance)
+    return chosen

@@ -12,8 +12,10 @@ from typing import Any
 __all__ = [
     "PACKAGES",
     "TIMING_KEYS",
+    "busy_difference",
     "capture_environment",
     "fingerprint_difference",
+    "load_per_cpu",
     "machine_fingerprint",
     "python_words",
 ]
@@ -156,3 +158,33 @@ def _read(path: str) -> str | None:
             return handle.read().strip() or None
     except OSError:
         return None
+
+
+#: A one-minute load average per CPU at or above this means more runnable work than cores:
+#: timings taken then are slowed by the queue, not by the code.
+BUSY = 1.0
+
+
+def load_per_cpu() -> float | None:
+    """The one-minute load average divided by the CPU count, or None where it is unknown."""
+    try:
+        load = os.getloadavg()[0]
+    except (OSError, AttributeError):
+        return None
+    return round(load / (os.cpu_count() or 1), 3)
+
+
+def busy_difference(now: float | None, then: list[float]) -> str | None:
+    """Words for a busy machine on one side only (this run or its baseline runs), else None.
+
+    A timing taken while more work was runnable than there were cores is slowed by the queue,
+    so it is not compared with one taken on an idle machine (or the other way round).
+    """
+    if now is None or not then:
+        return None
+    before = sorted(then)[len(then) // 2]
+    if (now >= BUSY) == (before >= BUSY):
+        return None
+    return (f"the machine was {'busy' if now >= BUSY else 'idle'} at this check (load "
+            f"{now:.2f} per CPU) but {'busy' if before >= BUSY else 'idle'} when the baseline "
+            f"ran ({before:.2f})")
