@@ -33,9 +33,11 @@ def _rows(rng: np.random.Generator, slowdown: float) -> list[dict[str, Any]]:
     ]
 
 
-@pytest.fixture
-def store(tmp_path: Path) -> Path:
-    path = tmp_path / "history.sqlite"
+@pytest.fixture(params=["sqlite", "postgresql"])
+def store(request: pytest.FixtureRequest, tmp_path: Path) -> Any:
+    path: Any = tmp_path / "history.sqlite"
+    if request.param == "postgresql":
+        path = request.getfixturevalue("postgres_url")
     rng = np.random.default_rng(20261203)
     with HistoryStore(path) as s:
         for i in range(RUNS):
@@ -45,7 +47,7 @@ def store(tmp_path: Path) -> Path:
     return path
 
 
-def test_trend_names_the_run_and_commit_of_the_slowdown(store: Path, capsys: pytest.CaptureFixture[str]) -> None:
+def test_trend_names_the_run_and_commit_of_the_slowdown(store: Any, capsys: pytest.CaptureFixture[str]) -> None:
     assert main(["history", "trend", "--store", str(store), "--label", "main"]) == 0
     out = capsys.readouterr().out
     lookup, rail = out.split("test_bench.py")
@@ -56,13 +58,13 @@ def test_trend_names_the_run_and_commit_of_the_slowdown(store: Path, capsys: pyt
     assert "30 runs" in lookup and "no change point" in rail
 
 
-def test_trend_filters_runs_and_checks(store: Path, capsys: pytest.CaptureFixture[str]) -> None:
+def test_trend_filters_runs_and_checks(store: Any, capsys: pytest.CaptureFixture[str]) -> None:
     assert main(["history", "trend", "--store", str(store), "--last", "5", "--check", "rail"]) == 0
     out = capsys.readouterr().out
     assert "test_lookup" not in out and "5 runs" in out and "at least 6" in out
 
 
-def test_trend_draws_a_picture_per_check(store: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+def test_trend_draws_a_picture_per_check(store: Any, tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
     pytest.importorskip("matplotlib")
     plots = tmp_path / "plots"
     assert main(["history", "trend", "--store", str(store), "--label", "main", "--plots", str(plots)]) == 0
@@ -76,17 +78,17 @@ def test_trend_draws_a_picture_per_check(store: Path, tmp_path: Path, capsys: py
     (["--alpha", "2"], "--alpha must lie between 0 and 1"),
     (["--last", "0"], "--last must be 1 or more"),
 ])
-def test_trend_bad_arguments_exit_2(store: Path, argv: list[str], message: str, capsys: pytest.CaptureFixture[str]) -> None:
+def test_trend_bad_arguments_exit_2(store: Any, argv: list[str], message: str, capsys: pytest.CaptureFixture[str]) -> None:
     assert main(["history", "trend", "--store", str(store), *argv]) == 2
     assert message in capsys.readouterr().err
 
 
-def test_unknown_label_says_so(store: Path, capsys: pytest.CaptureFixture[str]) -> None:
+def test_unknown_label_says_so(store: Any, capsys: pytest.CaptureFixture[str]) -> None:
     assert main(["history", "trend", "--store", str(store), "--label", "nightly"]) == 0
     assert "no runs labelled 'nightly'" in capsys.readouterr().out
 
 
-def test_run_intervals_are_student_t_and_short_runs_are_left_out(store: Path) -> None:
+def test_run_intervals_are_student_t_and_short_runs_are_left_out(store: Any) -> None:
     # Reference: scipy.stats.t.interval for the mean with n - 1 degrees of freedom.
     from scipy import stats
 
