@@ -127,3 +127,27 @@ def test_plots_of_a_session_with_a_store_include_trends(pytester: pytest.Pyteste
     assert (pytester.path / "plots" / "trend-test_rates.py_test_rate_table.png").exists()
     plain = run_suite("--meanband-plots=other", subprocess=True)
     assert "trend picture" not in plain.stdout.str()  # no store in use, no trend
+
+
+def test_report_command_draws_trends_from_a_store(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    pytest.importorskip("matplotlib")
+    from meanband.store import report_json
+    from report_rows import sample_rows
+
+    rows = sample_rows()[:2]
+    history = tmp_path / "history.sqlite"
+    with HistoryStore(history) as s:
+        for i in range(3):
+            s.record_run(rows, label="main", environment=_env(i))
+    report = report_json.build_report(rows, environment=report_json.environment(),
+                                      configuration={"args": [], "options": {}})
+    path = report_json.write_report(report, tmp_path / "r.json")
+    img = tmp_path / "img"
+    main(["report", str(path), "--plots", str(img), "--plot-checks", "none",
+          "--trend-store", str(history), "--trend-label", "main"])
+    assert "wrote 2 trend picture(s) from the newest 60 runs of" in capsys.readouterr().out
+    assert len(list(img.glob("trend-*.png"))) == 2
+    assert main(["report", str(path), "--trend-store", str(history)]) == 2
+    assert "give --plots DIR" in capsys.readouterr().err
+    assert main(["report", str(path), "--plots", str(img), "--trend-store", str(tmp_path / "none.sqlite")]) == 2
+    assert "no history store at" in capsys.readouterr().err

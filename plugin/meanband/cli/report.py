@@ -6,6 +6,8 @@ import argparse
 import sys
 from typing import Any, TextIO
 
+from meanband.errors import MeanbandError
+
 __all__ = ["register", "run_merge", "run_report"]
 
 #: Exit codes: like pytest, 1 means some check did not pass; 2 is bad input.
@@ -53,7 +55,24 @@ def register(subparsers: Any) -> None:
     report.add_argument("--plot-checks", choices=("all", "failed", "none"), default="all",
                         help="which checks get a run chart, Q-Q plot and histogram: all "
                         "(default), failed (FAIL or UNDECIDED) or none")
+    report.add_argument("--trend-store", metavar="PATH|URL", default=None,
+                        help="with --plots: also draw each check's trend over the newest runs "
+                        "of this history store (a file or a PostgreSQL URL)")
+    report.add_argument("--trend-label", metavar="LABEL", default=None,
+                        help="with --trend-store: only runs with this label")
     report.set_defaults(handler=run_report)
+
+
+def _trend_plots(args: argparse.Namespace, rows: list[Any], out: TextIO) -> None:
+    from meanband.report.trend import STORE_TREND_RUNS, store_trends, write_trend_plots
+    from meanband.store.database import store_location, where
+
+    location = store_location(args.trend_store)
+    keys = [(str(r.get("nodeid", "")), str(r.get("series", ""))) for r in rows]
+    trends = store_trends(location, keys, label=args.trend_label)
+    written = write_trend_plots(trends, args.plots, formats=args.plot_format)
+    print(f"wrote {len(written)} trend picture(s) from the newest {STORE_TREND_RUNS} runs of "
+          f"{where(location)} to {args.plots}", file=out)
 
 
 def _formats(text: str) -> tuple[str, ...]:
@@ -124,7 +143,14 @@ def run_report(args: argparse.Namespace, out: TextIO | None = None,
             print(f"wrote {len(result.written)} plot files to {args.plots}", file=out)
             for line in result.skipped_lines():
                 print(line, file=err)
+            if args.trend_store:
+                _trend_plots(args, rows, out)
+        elif args.trend_store:
+            return _fail("report", "--trend-store draws into the --plots folder; give --plots DIR",
+                         err)
     except (ReportError, OSError) as exc:
+        return _fail("report", exc, err)
+    except MeanbandError as exc:  # a store that cannot be read
         return _fail("report", exc, err)
     totals = report["totals"]
     return EXIT_CHECKS_FAILED if totals["FAIL"] or totals["UNDECIDED"] else EXIT_OK
