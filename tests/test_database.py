@@ -70,3 +70,11 @@ def test_rollback_leaves_nothing(database: Database) -> None:
     database.rollback()
     assert not database.in_transaction
     assert database.execute("SELECT count(*) FROM t").fetchone()[0] == 0
+
+
+def test_mask_passwords_in_a_command_line() -> None:
+    from meanband.store.database import mask_passwords
+
+    line = "pytest --meanband-store=postgresql://ci:pa55@db/h?sslmode=require -x"
+    assert mask_passwords(line) == "pytest --meanband-store=postgresql://ci:***@db/h?sslmode=require -x"
+    assert mask_passwords("no url here") == "no url here"

@@ -157,15 +157,18 @@ def pytest_configure(config: pytest.Config) -> None:
 
 
 def configuration(config: pytest.Config) -> dict[str, Any]:
-    """The run's command line and meanband options, as builtin types."""
+    """The run's command line and meanband options, as builtin types; the password of a
+    store URL is masked."""
+    from meanband.store.database import mask_passwords
+
     options: dict[str, Any] = {}
     for name, value in sorted(vars(config.option).items()):
         if name.startswith("meanband"):
-            options[name] = value if isinstance(value, (str, int, float, bool, type(None))) \
-                else str(value)
+            options[name] = value if isinstance(value, (int, float, bool, type(None))) \
+                else mask_passwords(str(value))
     workers = getattr(config.option, "numprocesses", None)
     return {
-        "args": [str(arg) for arg in config.invocation_params.args],
+        "args": [mask_passwords(str(arg)) for arg in config.invocation_params.args],
         "options": options,
         "workers": workers if isinstance(workers, int) else None,
     }

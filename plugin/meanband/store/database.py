@@ -22,6 +22,7 @@ __all__ = [
     "SQLITE",
     "Database",
     "is_database_url",
+    "mask_passwords",
     "mask_url",
     "store_location",
     "where",
@@ -78,6 +79,15 @@ def mask_url(url: str) -> str:
     # By hand: urlunsplit drops the empty host of postgresql:///db.
     return (f"{parts.scheme}://{netloc}{parts.path}" + (f"?{query}" if query else "")
             + (f"#{parts.fragment}" if parts.fragment else ""))
+
+
+_URL_IN_TEXT = re.compile(r"(?i)postgres(?:ql)?://[^\s'\"]*")
+
+
+def mask_passwords(text: str) -> str:
+    """``text`` (a command line, an option value) with the password of every PostgreSQL URL
+    in it masked."""
+    return _URL_IN_TEXT.sub(lambda m: mask_url(m.group(0)), text)
 
 
 def _password(url: str) -> str | None:
