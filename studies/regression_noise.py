@@ -2,11 +2,14 @@
 detection of real slowdowns, with real timings taken by pytest runs of a 12-check suite.
 
 Records BASELINE_RUNS runs of an invented ticket-office suite under the label 'main', then runs
-the unchanged suite AA_RUNS times against that baseline and counts the runs with any false
-"regressed" (at the check or by the end-of-run step-down). Then it makes one check 10%, 20% and
-30% slower (more work per call) and counts how often that check is caught. The same unchanged
-runs are also judged as meanband did before baselines of several runs (the newest run alone,
-Welch's interval of the trials, no run-to-run term, no suite-level adjustment), for contrast.
+the unchanged suite AA_RUNS times as main's CI would: each run is compared with the newest
+BASELINE_RUNS runs of 'main' and then recorded there itself, so the baseline always holds runs
+from recent, different moments of the machine. It counts the runs with any false "regressed"
+(at the check or by the end-of-run step-down). Then it makes one check 10%, 20% and 30% slower
+(more work per call) and counts how often that check is caught against the same rolling
+baseline. The same unchanged runs are also judged as meanband did before baselines of several
+runs (the newest run alone, Welch's interval of the trials, no run-to-run term, no suite-level
+adjustment), for contrast.
 
 Run: .venv/bin/python studies/regression_noise.py [aa_runs] [slow_runs] [baseline_runs]
 (defaults 20, 10, 3: about five minutes on a 2-core machine).
@@ -119,6 +122,11 @@ def run(folder: Path, *args: str, slowdown: float = 1.0) -> dict:
     return json.loads(report.read_text(encoding="utf-8"))
 
 
+def newest_trials(folder: Path) -> dict[str, np.ndarray]:
+    with HistoryStore(folder / ".meanband" / "history.sqlite", create=False) as store:
+        return {c.nodeid: c.values for c in store.checks(store.find_run("main").id)}
+
+
 def regressed(report: dict) -> set[str]:
     found = set()
     for row in report["rows"]:
@@ -159,30 +167,30 @@ def main() -> None:
         (folder / "test_office.py").write_text(textwrap.dedent(SUITE), encoding="utf-8")
         for _ in range(BASELINE_RUNS):
             run(folder, "--meanband-record=main")
-        with HistoryStore(folder / ".meanband" / "history.sqlite", create=False) as store:
-            newest_run = store.find_run("main")
-            newest = {c.nodeid: c.values for c in store.checks(newest_run.id)}
-        checks = len(newest)
         load = os.getloadavg()[0]
         any_new, any_old, noise, set_aside, loads = 0, 0, [], 0, []
+        keep = f"--meanband-baseline-runs={BASELINE_RUNS}"
         for _ in range(AA_RUNS):
-            report = run(folder, "--meanband-baseline=main")
+            newest = newest_trials(folder)
+            report = run(folder, "--meanband-baseline=main", keep, "--meanband-record=main")
             any_new += bool(regressed(report))
             set_aside += not_compared(report)
             loads += [r["load"] for r in report["rows"] if r.get("load") is not None]
             any_old += bool(old_verdicts(report, newest))
             noise += [r["baseline"]["noise"]["between_sd"] for r in report["rows"]
                       if (r.get("baseline") or {}).get("noise")]
+        checks = len(newest)
         caught: dict[float, tuple[int, int]] = {}
         for slowdown in (1.1, 1.2, 1.3):
             hit = false = 0
             for _ in range(SLOW_RUNS):
-                report = run(folder, "--meanband-baseline=main", slowdown=slowdown)
+                report = run(folder, "--meanband-baseline=main", keep, slowdown=slowdown)
                 found = regressed(report)
                 hit += SLOWED in found
                 false += bool(found - {SLOWED})
             caught[slowdown] = (hit, false)
-    print(f"{checks} checks per run; baseline of {BASELINE_RUNS} runs; load average at start "
+    print(f"{checks} checks per run; rolling baseline of the newest {BASELINE_RUNS} runs; load "
+          f"average after the first baseline runs "
           f"{load:.2f} on {os.cpu_count()} CPUs; {time.monotonic() - started:.0f} s in all")
     if noise:
         print(f"run-to-run sd used: median {np.median(noise):.1%}, "

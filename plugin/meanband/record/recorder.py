@@ -65,7 +65,7 @@ class Series:
         ``n="until-decided"`` times ``block`` trials at a time (default 10) until an anytime-valid
         interval decides ``band``, at most ``max_n`` (``sequential.py``).
         """
-        if n == sequential.UNTIL_DECIDED:
+        if sequential.is_sequential(n):
             settings = self.settings.merged(warmup=warmup)
             self._claim(SECONDS, "time")
             warm_first = [settings.warmup]
@@ -77,7 +77,7 @@ class Series:
 
             self._refuse_pilot(pilot)
             return self._until_decided(take, settings, max_n=max_n, band=band, block=block,
-                                       default_block=10)
+                                       default_block=10, mode=str(n))
         _refuse_block(block)
         if n == "auto":
             settings = self.settings.merged(warmup=warmup)
@@ -165,11 +165,11 @@ class Series:
         max_n: int | None, band: dict[str, Edge] | Band | None, pilot: int | None,
         block: int | None = None,
     ) -> np.ndarray:
-        if n == sequential.UNTIL_DECIDED:
+        if sequential.is_sequential(n):
             self._claim(unit, "sample")
             self._refuse_pilot(pilot)
             return self._until_decided(collect, self.settings, max_n=max_n, band=band,
-                                       block=block, default_block=1)
+                                       block=block, default_block=1, mode=str(n))
         _refuse_block(block)
         if n == "auto":
             self._claim(unit, "sample")
@@ -228,10 +228,12 @@ class Series:
     def _until_decided(
         self, take: Callable[[int], np.ndarray], settings: Settings, *, max_n: int | None,
         band: dict[str, Edge] | Band | None, block: int | None, default_block: int,
+        mode: str = sequential.UNTIL_DECIDED,
     ) -> np.ndarray:
         self._sequential = sequential.collect(
             take, held=self._values.size, label=self._label(), unit=self.unit, band=band,
             settings=settings, max_n=max_n, block=block, default_block=default_block,
+            mode=mode,
         )
         self._append(self._sequential.values)
         return self._sequential.values
@@ -335,15 +337,16 @@ class Series:
         if self._sequential is not None:
             if instrument_uncertainty is not None or rule != GUARDED or process is not None:
                 raise TrialError(
-                    "instrument_uncertainty= and rule= cannot be used with n='until-decided': "
-                    "its verdict uses the anytime-valid interval; collect a fixed n for this check"
+                    f"instrument_uncertainty= and rule= cannot be used with "
+                    f"n={self._sequential.mode!r}: its verdict uses the sequential boundaries; "
+                    "collect a fixed n for this check"
                 )
             decision, notes, extra = self._sequential.check(
                 low, high, center, tolerance, held=self._values.size, unit=self.unit,
                 settings=settings,
             )
             notes = self._timing_notes + notes
-            recorded = {**settings.to_dict(), "n": sequential.UNTIL_DECIDED}
+            recorded = {**settings.to_dict(), "n": self._sequential.mode}
         elif self._adaptive is not None:
             if instrument_uncertainty is not None or rule != GUARDED or process is not None:
                 raise TrialError(

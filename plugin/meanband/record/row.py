@@ -263,11 +263,7 @@ class SuggestionRecord(_SuggestionCore, total=False):
     text: str
 
 
-class SequentialRecord(TypedDict):
-    """An ``n="until-decided"`` check: where collection stopped, after how many looks, in blocks
-    of how many trials, the cap, the first look, the sequence's tuning, and why it ended
-    (``decided``, ``max_n`` or ``time limit``)."""
-
+class _SequentialCore(TypedDict):
     stopped_at: int
     looks: int
     block: int
@@ -275,6 +271,18 @@ class SequentialRecord(TypedDict):
     first_look: int
     tightest_at: int
     reason: str
+
+
+class SequentialRecord(_SequentialCore, total=False):
+    """An ``n="until-decided"`` check: where collection stopped, after how many looks, in blocks
+    of how many trials, the cap, the first look, the sequence's tuning, and why it ended
+    (``decided``, ``max_n`` or ``time limit``). Planned looks (``n="looks:K"``) add the mode,
+    the planned counts, the spending shape and the z boundaries."""
+
+    mode: str
+    planned: list[int]
+    shape: str
+    bounds: list[float]
 
 
 class InstrumentRecord(TypedDict):

@@ -10,6 +10,8 @@ the timing loop undisturbed, and fewer looks only keep the guarantee.
 
 from __future__ import annotations
 
+import functools
+import math
 from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
@@ -19,18 +21,39 @@ import numpy as np
 from meanband.errors import TrialError
 from meanband.record.adaptive import planning_band
 from meanband.record.settings import Settings
-from meanband.stats.bands import Band, Edge, Tolerance, make_band
+from meanband.stats.bands import Band, Edge, Tolerance, make_band, side_alpha
 from meanband.stats.decision import Decision
 from meanband.stats.diagnostics import diagnose
 from meanband.stats.notes import assumption_notes
 from meanband.stats.sample import ArrayEquality
-from meanband.stats.sequential import DEFAULT_TIGHTEST_AT, StopDecision, stop_or_go_on
+from meanband.stats.sequential import (
+    DEFAULT_TIGHTEST_AT,
+    SHAPES,
+    GroupSequentialDesign,
+    StopDecision,
+    group_sequential_design,
+    planned_look,
+    stop_or_go_on,
+)
 from meanband.stats.verdict import Verdict
 
-__all__ = ["DEFAULT_MAX_N", "FIRST_LOOK", "UNTIL_DECIDED", "SequentialRun", "collect"]
+__all__ = [
+    "DEFAULT_MAX_N",
+    "FIRST_LOOK",
+    "PLANNED_LOOKS",
+    "UNTIL_DECIDED",
+    "SequentialRun",
+    "collect",
+    "is_sequential",
+    "parse_looks",
+]
 
 #: The value of ``n`` that asks for this mode.
 UNTIL_DECIDED = "until-decided"
+#: ``n="looks:K"`` or ``n="looks:K:SHAPE"``: K planned looks with group-sequential boundaries.
+PLANNED_LOOKS = "looks"
+#: Trials between planned looks at the least, so the spread has something to be estimated from.
+LOOK_TRIALS = 5
 #: Cap on the trials when ``max_n`` is not given, so a mean on an edge cannot run forever.
 DEFAULT_MAX_N = 200
 #: No look before this many trials: the anytime bound is wide (or infinite) on a few trials, and
@@ -50,6 +73,15 @@ class SequentialRun(ArrayEquality):
     max_n: int
     first_look: int
     reason: str  # "decided", "max_n" or "time limit"
+    design: GroupSequentialDesign | None = None
+    planned: tuple[int, ...] = ()
+
+    @property
+    def mode(self) -> str:
+        """The ``n`` this series was collected with."""
+        if self.design is None:
+            return UNTIL_DECIDED
+        return f"{PLANNED_LOOKS}:{len(self.planned)}:{self.design.shape}"
 
     def record(self) -> dict[str, Any]:
         """The row's ``sequential`` entry: builtin types only."""
@@ -61,11 +93,23 @@ class SequentialRun(ArrayEquality):
             "first_look": int(self.first_look),
             "tightest_at": DEFAULT_TIGHTEST_AT,
             "reason": self.reason,
+            **({} if self.design is None else {
+                "mode": self.mode, "planned": list(self.planned), "shape": self.design.shape,
+                "bounds": [float(b) for b in self.design.bounds],
+            }),
         }
 
     def note(self) -> dict[str, str]:
         """One line for the summary: where collection stopped and why."""
         n, verdict = self.values.size, self.last.verdict
+        if self.design is not None:
+            shape = "O'Brien-Fleming" if self.design.shape == "obrien-fleming" else "Pocock"
+            where = (f"planned looks: stopped at look {self.looks} of {len(self.planned)} "
+                     f"({n} trials), {verdict} ({shape} spending, looks at "
+                     f"{', '.join(str(c) for c in self.planned)})")
+            if self.reason == "time limit":
+                where += "; the time limit ended collection early"
+            return {"code": "planned-looks", "text": where}
         if self.reason == "decided":
             text = (f"until decided: stopped at {n} trials after {self.looks} look(s), {verdict} "
                     f"(anytime-valid interval, cap max_n={self.max_n})")
@@ -86,18 +130,18 @@ class SequentialRun(ArrayEquality):
             band = make_band(low, high, center=center, tolerance=tolerance, unit=unit)
             if (band.low, band.high) != (self.band.low, self.band.high):
                 raise TrialError(
-                    "this check's band differs from the band n='until-decided' looked at; call "
+                    f"this check's band differs from the band n={self.mode!r} looked at; call "
                     "check() without edges, or give the same band to both"
                 )
         if held != self.values.size:
             raise TrialError(
-                f"{held - self.values.size} trials were added after the n='until-decided' "
+                f"{held - self.values.size} trials were added after the n={self.mode!r} "
                 "collection; its verdict holds only for the trials it looked at"
             )
         if settings.confidence != self.last.interval.confidence:
             raise TrialError(
                 f"confidence {settings.confidence:g} differs from "
-                f"{self.last.interval.confidence:g}, at which n='until-decided' looked; set it "
+                f"{self.last.interval.confidence:g}, at which n={self.mode!r} looked; set it "
                 "on the marker or before collecting"
             )
         diagnostics = diagnose(self.values, alpha=settings.normality_alpha)
@@ -111,10 +155,30 @@ class SequentialRun(ArrayEquality):
         return decision, notes, {"sequential": self.record()}
 
 
+def is_sequential(n: object) -> bool:
+    """Whether ``n`` asks for collection that stops when decided (either kind)."""
+    return n == UNTIL_DECIDED or (isinstance(n, str) and n.startswith(PLANNED_LOOKS + ":"))
+
+
+def parse_looks(n: str) -> tuple[int, str]:
+    """``"looks:5"`` -> (5, "obrien-fleming"); ``"looks:4:pocock"`` -> (4, "pocock")."""
+    parts = n.split(":")
+    shapes = ", ".join(SHAPES)
+    if len(parts) not in (2, 3) or not parts[1].strip().isdigit() or int(parts[1]) < 1:
+        raise TrialError(
+            f"n={n!r}: write n='looks:K' or n='looks:K:SHAPE' with K planned looks (a whole "
+            f"number >= 1) and SHAPE one of {shapes}, e.g. n='looks:5'"
+        )
+    shape = parts[2].strip() if len(parts) == 3 else "obrien-fleming"
+    if shape not in SHAPES:
+        raise TrialError(f"n={n!r}: unknown spending shape {shape!r}; choose one of {shapes}")
+    return int(parts[1]), shape
+
+
 def collect(
     take: Callable[[int], np.ndarray], *, held: int, label: str, unit: str | None,
     band: dict[str, Edge] | Band | None, settings: Settings, max_n: int | None,
-    block: int | None, default_block: int,
+    block: int | None, default_block: int, mode: str = UNTIL_DECIDED,
 ) -> SequentialRun:
     """Take trials ``block`` at a time (``take(count)`` may return fewer when a time limit cut
     it short), looking after each block once ``FIRST_LOOK`` trials are in, until the anytime-
@@ -126,6 +190,11 @@ def collect(
         )
     planned = planning_band(band, unit)
     cap = DEFAULT_MAX_N if max_n is None else _whole(max_n, "max_n", 2)
+    if mode != UNTIL_DECIDED:
+        if block is not None:
+            raise TrialError(f"block= goes with n='until-decided'; n={mode!r} looks where it "
+                             "plans to (max_n / K trials apart)")
+        return _planned(take, planned, cap, settings, mode)
     size = default_block if block is None else _whole(block, "block", 1)
     first_look = min(FIRST_LOOK, cap)
     parts: list[np.ndarray] = []
@@ -162,6 +231,52 @@ def collect(
             "least 2 to judge: raise the limit"
         )
     return SequentialRun(values, planned, last, looks, size, cap, first_look, reason)
+
+
+def _planned(
+    take: Callable[[int], np.ndarray], band: Band, cap: int, settings: Settings, mode: str,
+) -> SequentialRun:
+    """K looks at equal steps up to ``cap`` with Lan-DeMets boundaries (stats/sequential.py)."""
+    looks, shape = parse_looks(mode)
+    per_edge = side_alpha(settings.confidence, band.side)
+    if cap < LOOK_TRIALS * looks:
+        raise TrialError(f"max_n={cap} is too small for {looks} looks of at least {LOOK_TRIALS} "
+                         f"trials each; give max_n >= {LOOK_TRIALS * looks}")
+    design = _design(looks, 1.0 - per_edge, shape, settings.power)
+    counts = tuple(math.ceil(f * cap) for f in design.fractions)
+    parts: list[np.ndarray] = []
+    taken = done = 0
+    last: StopDecision | None = None
+    reason = "max_n"
+    for look, count in enumerate(counts):
+        want = count - taken
+        got = take(want)
+        parts.append(got)
+        taken += got.size
+        if got.size < want:
+            reason = "time limit"
+            if taken >= 2:
+                done += 1
+                last = planned_look(np.concatenate(parts), band.low, band.high, design,
+                                    look, confidence=settings.confidence)
+            break
+        done += 1
+        last = planned_look(np.concatenate(parts), band.low, band.high, design, look,
+                            confidence=settings.confidence)
+        if last.stop:
+            reason = "decided"
+            break
+    if last is None:
+        raise TrialError(f"n={mode!r} took only {taken} trial before the time limit stopped it; "
+                         "it needs at least 2 to judge: raise the limit")
+    values = np.concatenate(parts)
+    return SequentialRun(values, band, last, done, 0, cap, counts[0], reason, design, counts)
+
+
+@functools.lru_cache(maxsize=64)
+def _design(looks: int, confidence: float, shape: str, power: float) -> GroupSequentialDesign:
+    """Boundaries depend only on these four; a suite of many checks computes them once."""
+    return group_sequential_design(looks, confidence=confidence, shape=shape, power=power)
 
 
 def _whole(value: Any, name: str, least: int) -> int:

@@ -67,6 +67,7 @@ __all__ = [
     "group_sequential_design",
     "inflation_factor",
     "log_mixture_ratio",
+    "planned_look",
     "prior_variance",
     "spending",
     "stop_or_go_on",
@@ -555,3 +556,54 @@ def group_sequential_design(
         expected_fraction_null=expected_fraction(bounds, t, 0.0) * inflation,
     )
 
+
+
+def planned_look(
+    values: Iterable[float] | np.ndarray,
+    low: float | None,
+    high: float | None,
+    design: GroupSequentialDesign,
+    look: int,
+    *,
+    confidence: float,
+) -> StopDecision:
+    """The verdict at planned look ``look`` (0-based) of ``design`` on the trials so far.
+
+    Each edge is judged at the look's boundary: the t statistic of the distance from the edge,
+    against the t quantile of n - 1 degrees of freedom at the boundary's nominal one-sided
+    probability 1 - Phi(z_k) (the small-sample adaptation of Jennison & Turnbull 2000, section
+    11.4). PASS when every finite edge is cleared on the inside, FAIL when the mean lies beyond
+    an edge by as much, UNDECIDED otherwise (at the last look too: the data did not decide).
+    ``design`` is one-sided at the level each edge gets: 1 - C for a budget, (1 - C) / 2 per
+    edge of a two-sided band.
+    """
+    from scipy.stats import norm
+    from scipy.stats import t as student_t
+
+    level = check_confidence(confidence)
+    low_v, high_v, side = _band_edges(low, high)
+    if isinstance(look, bool) or not 0 <= look < len(design.bounds):
+        raise TrialError(f"look {look!r} is not one of the design's {len(design.bounds)} looks")
+    x = as_sample(values, minimum=2)
+    mean, sd = location_scale(x)
+    n = x.size
+    sem = sd / math.sqrt(n)
+    bound = design.bounds[look]
+    critical = (math.inf if math.isinf(bound)
+                else float(student_t.isf(norm.sf(bound), n - 1)))
+    reach = critical * sem if sem > 0 else 0.0
+    lower, upper = mean - reach, mean + reach
+    verdict = str(_three_state(np.array([lower]), np.array([upper]), low_v, high_v, side)[0])
+    interval = Interval(
+        mean, -math.inf if side == "upper" else lower, math.inf if side == "lower" else upper,
+        level, side, n, float(n - 1), sd, sem, "group-sequential", critical, "mean",
+    )
+    counter = None
+    if side != "two-sided":
+        opposite = "lower" if side == "upper" else "upper"
+        counter = Interval(
+            mean, -math.inf if opposite == "upper" else lower,
+            math.inf if opposite == "lower" else upper, level, opposite, n, float(n - 1), sd,
+            sem, "group-sequential", critical, "mean",
+        )
+    return StopDecision(verdict, n, n, interval, counter)
