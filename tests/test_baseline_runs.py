@@ -192,3 +192,25 @@ def test_the_suite_estimate_is_used_unless_a_check_is_noisier_beyond_chance() ->
     assert choose_between(near, pooled, small_floor, 0.03) is pooled
     assert choose_between(None, None, None, 0.03) == Between(0.03**2, math.inf, "assumed", 1)
     assert choose_between(None, None, None, 0.0).source == "none measured"
+
+
+def test_timing_counts_far_apart_are_not_compared(pytester: pytest.Pytester, run_suite) -> None:
+    suite = """
+import numpy as np
+
+def test_route(trials):
+    rng = np.random.default_rng({seed})
+    trials.extend(np.exp(np.log(3e-4) + rng.normal(0, 0.05, {n})), unit="s")
+"""
+    pytester.makepyfile(test_routes=suite.format(seed=1, n=10))
+    assert run_suite("--meanband-record=main").ret == 0
+    pytester.makepyfile(test_routes=suite.format(seed=2, n=40))
+    result = run_suite("--meanband-baseline=main")
+    result.assert_outcomes(passed=1)
+    result.stdout.fnmatch_lines([
+        "  test_routes.py::test_route: not compared: this run has 40 trials and run 1 10 per "
+        "run: counts more than 2x apart make the ratio interval unreliable on skewed timings; "
+        "use the same n in both*",
+    ])
+    pytester.makepyfile(test_routes=suite.format(seed=3, n=20))  # 2x apart: still compared
+    assert "not compared" not in run_suite("--meanband-baseline=main").stdout.str()

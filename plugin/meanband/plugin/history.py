@@ -356,6 +356,7 @@ class HistoryPlugin:
             compare_with_runs,
             is_timing,
             not_compared,
+            unequal_counts,
         )
         from meanband.store.environment import busy_difference
 
@@ -377,6 +378,11 @@ class HistoryPlugin:
                     "reason": "the baseline ran on a machine that times differently ("
                               + "; ".join(self.mismatch)
                               + "); --meanband-compare-anywhere compares anyway"}
+        if timing:
+            per_run = round(sum(r.size for r in stored.runs) / len(stored.runs))
+            uneven = unequal_counts(len(row.get("values") or []), per_run, where)
+            if uneven is not None:
+                return {**about, **uneven}
         busy = busy_difference(row.get("load"), list(stored.loads)) if timing else None
         if busy is not None and not self.settings.anywhere:
             return {**about, "status": CANNOT_COMPARE,
