@@ -122,8 +122,11 @@ def trials(request: pytest.FixtureRequest) -> Recorder:
     def with_plan(source: str, values: dict[str, Any]) -> Settings:
         return resolve([*layers, *([(source, values)] if values else []), *tail])
 
+    from meanband.plugin.history import EARLIER_KEY
+
     recorder = Recorder(
         with_plan(f"plan entry for {item.nodeid}", plan), item.nodeid,
+        earlier=config.stash.get(EARLIER_KEY, {}).get(item.nodeid),
         series_settings={
             name: with_plan(f"plan entry for {item.nodeid} [{name}]", dict(values))
             for name, values in series_plans.items()

@@ -40,6 +40,9 @@ _HELP = {
     "warning (default 30).",
     "run_noise": "Run-to-run spread of a timing assumed when no stored runs or calibration "
     "measured it, e.g. '3%%' (the default); 0 compares a one-run baseline on its trials alone.",
+    "continue_sequence": "Retry of a CI job: n='until-decided' checks continue the trials that an "
+    "earlier try of the same commit in the same pipeline (GITHUB_RUN_ID, CI_PIPELINE_ID, ... or "
+    "MEANBAND_PIPELINE) stored, instead of looking at a fresh stream.",
     "compare_anywhere": "Compare with a baseline recorded on a machine or Python that times "
     "differently (by default such checks are 'cannot compare').",
     "max_increase": "How much slower than its baseline a timing may be before it counts as "
@@ -54,6 +57,10 @@ _HELP = {
 
 #: Key of workerinput under which the controller hands workers the baseline to read.
 _WORKER_KEY = "meanband_baseline"
+#: ... and the earlier try whose sequences this run continues.
+_EARLIER_WORKER_KEY = "meanband_earlier"
+#: Test id -> series -> trials of an earlier try, for n="until-decided" to continue.
+EARLIER_KEY = pytest.StashKey[dict[str, dict[str, Any]]]()
 
 
 def pytest_addoption(parser: pytest.Parser) -> None:
@@ -76,6 +83,8 @@ def pytest_addoption(parser: pytest.Parser) -> None:
                     default=None, help=_HELP["run_noise"])
     group.addoption("--meanband-compare-anywhere", dest="meanband_compare_anywhere",
                     action="store_true", default=False, help=_HELP["compare_anywhere"])
+    group.addoption("--meanband-continue-sequence", dest="meanband_continue_sequence",
+                    action="store_true", default=False, help=_HELP["continue_sequence"])
     group.addoption("--meanband-max-increase", dest="meanband_max_increase", metavar="FRACTION",
                     default=None, help=_HELP["max_increase"])
     group.addoption("--meanband-max-change", dest="meanband_max_change", metavar="FRACTION",
@@ -105,7 +114,8 @@ class BaselineSettings:
 def pytest_configure(config: pytest.Config) -> None:
     record = config.getoption("meanband_record")
     baseline = config.getoption("meanband_baseline")
-    if record is None and baseline is None:
+    carry_on = bool(config.getoption("meanband_continue_sequence"))
+    if record is None and baseline is None and not carry_on:
         return
     from meanband.errors import StoreError
     from meanband.store.database import store_location
@@ -114,11 +124,15 @@ def pytest_configure(config: pytest.Config) -> None:
     worker = getattr(config, "workerinput", None)
     if worker is not None:
         handed = worker.get(_WORKER_KEY)
+        earlier = worker.get(_EARLIER_WORKER_KEY)
         if handed is not None:  # the controller chose the runs; read them without a writer
             plugin = HistoryPlugin(config, store_location(handed["store"]), _settings(config),
                                    float(handed["timeout"]), None)
             plugin.load_runs(handed["runs"], handed["mismatch"])
             config.pluginmanager.register(plugin, HISTORY_PLUGIN_NAME)
+        if earlier is not None:
+            _read_earlier(config, Path(earlier["store"]), int(earlier["run"]),
+                          float(earlier["timeout"]))
         return
     args = [str(a) for a in config.invocation_params.args]
     for option, value in (("--meanband-record", record), ("--meanband-baseline", baseline)):
@@ -134,6 +148,8 @@ def pytest_configure(config: pytest.Config) -> None:
     timeout = resolve_value(config, "store_timeout", _timeout_seconds, defaults.STORE_TIMEOUT)
     store = _store_location(config, DEFAULT_STORE)
     plugin = HistoryPlugin(config, store, settings, timeout, record)
+    if carry_on:
+        plugin.find_earlier_try()
     if baseline is not None:
         try:
             plugin.load_baseline(baseline)
@@ -247,6 +263,8 @@ class HistoryPlugin:
         self.record_error: str | None = None
         self.record_skipped: str | None = None
         self.late: list[str] = []
+        self.earlier_run: int | None = None
+        self.earlier_words: str | None = None
         self._environment: dict[str, Any] | None = None
 
     @property
@@ -280,9 +298,43 @@ class HistoryPlugin:
             self.baseline = read_baseline(store, run_ids, assumed=self.settings.run_noise)
         self.mismatch = list(mismatch)
 
+    def find_earlier_try(self) -> None:
+        """The newest stored run of this commit in this CI pipeline, whose n="until-decided"
+        trials this run continues; the summary says what was found."""
+        from meanband.errors import StoreError
+        from meanband.store.history import HistoryStore
+        from meanband.store.sequence import earlier_try
+
+        env = self.environment()
+        pipeline = (env.get("fingerprint") or {}).get("pipeline")
+        if not pipeline:
+            self.earlier_words = ("no CI pipeline id in the environment (set MEANBAND_PIPELINE), "
+                                  "so n='until-decided' checks start afresh")
+            return
+        if not self.store.exists():
+            self.earlier_words = f"no earlier try in this pipeline ({pipeline}): no store yet"
+            return
+        try:
+            with HistoryStore(self.store, create=False, read_only=True,
+                              timeout=self.timeout) as store:
+                run = earlier_try(store, env.get("commit"), pipeline)
+        except StoreError as exc:
+            raise pytest.UsageError(f"--meanband-continue-sequence: {exc}") from None
+        if run is None:
+            self.earlier_words = (f"no earlier try of this commit in this pipeline ({pipeline}); "
+                                  "n='until-decided' checks start afresh")
+            return
+        self.earlier_run = run.id
+        count = _read_earlier(self.config, self.store, run.id, self.timeout)
+        self.earlier_words = (f"n='until-decided' checks continue the sequences of run {run.id} "
+                              f"(the same commit, {pipeline}): {count} series")
+
     @pytest.hookimpl(optionalhook=True)
     def pytest_configure_node(self, node: Any) -> None:
         """pytest-xdist: hand each worker the store and the run ids of the baseline."""
+        if self.earlier_run is not None:
+            node.workerinput[_EARLIER_WORKER_KEY] = {
+                "store": str(self.store), "run": self.earlier_run, "timeout": self.timeout}
         if self.baseline is not None:
             node.workerinput[_WORKER_KEY] = {
                 "store": str(self.store), "runs": self.baseline.run_ids,
@@ -485,6 +537,8 @@ class HistoryPlugin:
             lines.append("meanband: no test recorded trials, so there was nothing to record")
         if self.baseline is not None:
             lines += self._baseline_warnings()
+        if self.earlier_words is not None:
+            lines.append(f"meanband: {self.earlier_words}")
         if self.late:
             which = self.settings.adjustment
             lines += ["", f"meanband: REGRESSION: {len(self.late)} check(s) regressed by the "
@@ -528,6 +582,17 @@ class HistoryPlugin:
         for words in dict.fromkeys(w for w in elsewhere if w):
             lines.append(f"note: {words}")
         return lines
+
+
+def _read_earlier(config: pytest.Config, path: Path, run_id: int, timeout: float) -> int:
+    """Put the earlier try's n="until-decided" trials where the trials fixture finds them."""
+    from meanband.store.history import HistoryStore
+    from meanband.store.sequence import earlier_sequences
+
+    with HistoryStore(path, create=False, read_only=True, timeout=timeout) as store:
+        found = earlier_sequences(store, run_id)
+    config.stash[EARLIER_KEY] = found
+    return sum(len(series) for series in found.values())
 
 
 def _runs_words(run_ids: list[int]) -> str:

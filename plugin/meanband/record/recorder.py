@@ -47,6 +47,9 @@ class Series:
         self._instrument: dict[str, Any] | None = None  # set by sample(..., query=...)
         self._sequential: sequential.SequentialRun | None = None  # set by n="until-decided"
         self._times: list[float] | None = None  # reading times, set by extend_from(time=...)
+        # Trials of this series taken by an earlier try of the same commit in the same CI
+        # pipeline: n="until-decided" continues their sequence instead of looking afresh.
+        self.earlier: sequential.Earlier | None = None
 
     # -- collecting -------------------------------------------------------------------------
 
@@ -233,7 +236,7 @@ class Series:
         self._sequential = sequential.collect(
             take, held=self._values.size, label=self._label(), unit=self.unit, band=band,
             settings=settings, max_n=max_n, block=block, default_block=default_block,
-            mode=mode,
+            mode=mode, earlier=self.earlier,
         )
         self._append(self._sequential.values)
         return self._sequential.values
@@ -426,9 +429,11 @@ class Recorder(Series):
     def __init__(
         self, settings: Settings, nodeid: str = "", *,
         series_settings: dict[str, Settings] | None = None, other_series: Settings | None = None,
-        timing: Any = None,
+        timing: Any = None, earlier: dict[str, sequential.Earlier] | None = None,
     ) -> None:
         super().__init__("", settings, nodeid)
+        self._earlier = dict(earlier or {})
+        self.earlier = self._earlier.get("")
         self._test_timing = SharedTiming(timing)
         self._series: dict[str, Series] = {}
         self._comparisons: list[ResultRow] = []
@@ -444,6 +449,7 @@ class Recorder(Series):
             settings = self._series_settings.get(name, self._other_series)
             self._series[name] = Series(name, settings, self.nodeid)
             self._series[name]._test_timing = self._test_timing
+            self._series[name].earlier = self._earlier.get(name)
         return self._series[name]
 
     def compare(

@@ -277,12 +277,14 @@ class SequentialRecord(_SequentialCore, total=False):
     """An ``n="until-decided"`` check: where collection stopped, after how many looks, in blocks
     of how many trials, the cap, the first look, the sequence's tuning, and why it ended
     (``decided``, ``max_n`` or ``time limit``). Planned looks (``n="looks:K"``) add the mode,
-    the planned counts, the spending shape and the z boundaries."""
+    the planned counts, the spending shape and the z boundaries; a rerun that continued an earlier
+    try's sequence says which run and how many of its trials (``continued``)."""
 
     mode: str
     planned: list[int]
     shape: str
     bounds: list[float]
+    continued: dict[str, int]
 
 
 class InstrumentRecord(TypedDict):

@@ -42,6 +42,7 @@ __all__ = [
     "FIRST_LOOK",
     "PLANNED_LOOKS",
     "UNTIL_DECIDED",
+    "Earlier",
     "SequentialRun",
     "collect",
     "is_sequential",
@@ -62,6 +63,14 @@ FIRST_LOOK = 10
 
 
 @dataclass(frozen=True, eq=False)
+class Earlier(ArrayEquality):
+    """Trials an earlier try of the same commit took for this series, and the run they are in."""
+
+    values: np.ndarray
+    run: int
+
+
+@dataclass(frozen=True, eq=False)
 class SequentialRun(ArrayEquality):
     """A series collected until decided: its trials, the last look, and why collection ended."""
 
@@ -75,6 +84,7 @@ class SequentialRun(ArrayEquality):
     reason: str  # "decided", "max_n" or "time limit"
     design: GroupSequentialDesign | None = None
     planned: tuple[int, ...] = ()
+    earlier: Earlier | None = None
 
     @property
     def mode(self) -> str:
@@ -97,6 +107,10 @@ class SequentialRun(ArrayEquality):
                 "mode": self.mode, "planned": list(self.planned), "shape": self.design.shape,
                 "bounds": [float(b) for b in self.design.bounds],
             }),
+            **({} if self.earlier is None else {
+                "continued": {"run": int(self.earlier.run),
+                              "trials": int(self.earlier.values.size)},
+            }),
         }
 
     def note(self) -> dict[str, str]:
@@ -110,16 +124,19 @@ class SequentialRun(ArrayEquality):
             if self.reason == "time limit":
                 where += "; the time limit ended collection early"
             return {"code": "planned-looks", "text": where}
+        went_on = ("" if self.earlier is None else
+                   f"; continued the sequence of run {self.earlier.run} of the same commit and "
+                   f"pipeline ({self.earlier.values.size} trials)")
         if self.reason == "decided":
             text = (f"until decided: stopped at {n} trials after {self.looks} look(s), {verdict} "
-                    f"(anytime-valid interval, cap max_n={self.max_n})")
+                    f"(anytime-valid interval, cap max_n={self.max_n}){went_on}")
             return {"code": "until-decided", "text": text}
         why = (f"the cap max_n={self.max_n}" if self.reason == "max_n"
                else "the time limit")
         return {"code": "until-decided-capped",
                 "text": f"until decided: {why} ended collection at {n} trials after {self.looks} "
                         "look(s) without a decision; raise the cap, or look at the mean's "
-                        "distance from the edge"}
+                        f"distance from the edge{went_on}"}
 
     def check(
         self, low: Edge, high: Edge, center: Edge, tolerance: Tolerance, *, held: int,
@@ -179,6 +196,7 @@ def collect(
     take: Callable[[int], np.ndarray], *, held: int, label: str, unit: str | None,
     band: dict[str, Edge] | Band | None, settings: Settings, max_n: int | None,
     block: int | None, default_block: int, mode: str = UNTIL_DECIDED,
+    earlier: Earlier | None = None,
 ) -> SequentialRun:
     """Take trials ``block`` at a time (``take(count)`` may return fewer when a time limit cut
     it short), looking after each block once ``FIRST_LOOK`` trials are in, until the anytime-
@@ -191,14 +209,16 @@ def collect(
     planned = planning_band(band, unit)
     cap = DEFAULT_MAX_N if max_n is None else _whole(max_n, "max_n", 2)
     if mode != UNTIL_DECIDED:
+        earlier = None  # planned looks keep their own plan; a rerun starts it again
         if block is not None:
             raise TrialError(f"block= goes with n='until-decided'; n={mode!r} looks where it "
                              "plans to (max_n / K trials apart)")
         return _planned(take, planned, cap, settings, mode)
     size = default_block if block is None else _whole(block, "block", 1)
     first_look = min(FIRST_LOOK, cap)
-    parts: list[np.ndarray] = []
-    taken = looks = 0
+    parts: list[np.ndarray] = [] if earlier is None else [earlier.values[:cap]]
+    taken = 0 if earlier is None else parts[0].size
+    looks = 0
     last: StopDecision | None = None
     reason = "max_n"
     while taken < cap:
@@ -230,7 +250,8 @@ def collect(
             f"{'the time limit' if reason == 'time limit' else 'max_n'} stopped it; it needs at "
             "least 2 to judge: raise the limit"
         )
-    return SequentialRun(values, planned, last, looks, size, cap, first_look, reason)
+    return SequentialRun(values, planned, last, looks, size, cap, first_look, reason,
+                         earlier=earlier)
 
 
 def _planned(

@@ -17,6 +17,7 @@ __all__ = [
     "fingerprint_difference",
     "load_per_cpu",
     "machine_fingerprint",
+    "pipeline_id",
     "python_words",
 ]
 
@@ -109,6 +110,7 @@ def machine_fingerprint() -> dict[str, Any]:
         "governor": _read(f"{_SYS_CPU}/cpu0/cpufreq/scaling_governor"),
         "boost": _boost(),
         "load": load,
+        "pipeline": pipeline_id(),
     }
 
 
@@ -188,3 +190,24 @@ def busy_difference(now: float | None, then: list[float]) -> str | None:
     return (f"the machine was {'busy' if now >= BUSY else 'idle'} at this check (load "
             f"{now:.2f} per CPU) but {'busy' if before >= BUSY else 'idle'} when the baseline "
             f"ran ({before:.2f})")
+
+
+#: Variables that name one CI pipeline run and stay the same when a job in it is retried, in
+#: the order they are read; MEANBAND_PIPELINE names it by hand.
+PIPELINE_VARIABLES = (
+    "MEANBAND_PIPELINE",
+    "GITHUB_RUN_ID",  # GitHub Actions: a re-run keeps it and raises GITHUB_RUN_ATTEMPT
+    "CI_PIPELINE_ID",  # GitLab CI: a retried job keeps it
+    "BUILDKITE_BUILD_ID",
+    "CIRCLE_WORKFLOW_ID",
+    "BUILD_BUILDID",  # Azure Pipelines
+)
+
+
+def pipeline_id() -> str | None:
+    """The CI pipeline run this process belongs to, as ``VARIABLE=value``, or None outside CI."""
+    for name in PIPELINE_VARIABLES:
+        value = os.environ.get(name, "").strip()
+        if value:
+            return f"{name}={value}"
+    return None
