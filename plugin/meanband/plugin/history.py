@@ -131,7 +131,7 @@ def pytest_configure(config: pytest.Config) -> None:
             plugin.load_runs(handed["runs"], handed["mismatch"])
             config.pluginmanager.register(plugin, HISTORY_PLUGIN_NAME)
         if earlier is not None:
-            _read_earlier(config, Path(earlier["store"]), int(earlier["run"]),
+            _read_earlier(config, store_location(earlier["store"]), int(earlier["run"]),
                           float(earlier["timeout"]))
         return
     args = [str(a) for a in config.invocation_params.args]
@@ -311,7 +311,7 @@ class HistoryPlugin:
             self.earlier_words = ("no CI pipeline id in the environment (set MEANBAND_PIPELINE), "
                                   "so n='until-decided' checks start afresh")
             return
-        if not self.store.exists():
+        if isinstance(self.store, Path) and not self.store.exists():
             self.earlier_words = f"no earlier try in this pipeline ({pipeline}): no store yet"
             return
         try:
@@ -584,7 +584,7 @@ class HistoryPlugin:
         return lines
 
 
-def _read_earlier(config: pytest.Config, path: Path, run_id: int, timeout: float) -> int:
+def _read_earlier(config: pytest.Config, path: Path | str, run_id: int, timeout: float) -> int:
     """Put the earlier try's n="until-decided" trials where the trials fixture finds them."""
     from meanband.store.history import HistoryStore
     from meanband.store.sequence import earlier_sequences
