@@ -153,9 +153,9 @@ def test_busy_machine_on_one_side_cannot_compare(
     result = run_suite("--meanband-baseline=main")
     result.assert_outcomes(passed=2)  # twice as slow, but the queue may be why
     result.stdout.fnmatch_lines([
-        "  test_routes.py::test_fare: cannot compare: the machine was busy at this check (load "
-        "2.50 per CPU) but idle when the baseline ran (0.20); --meanband-compare-anywhere "
-        "compares anyway",
+        "  test_routes.py::test_fare: cannot compare: the machine was busier at this check (load "
+        "2.50 per CPU) than when the baseline ran (0.20): the queue, not the code, would move "
+        "the timing; --meanband-compare-anywhere compares anyway",
     ])
     forced = run_suite("--meanband-baseline=main", "--meanband-compare-anywhere")
     forced.assert_outcomes(failed=2)
@@ -168,9 +168,12 @@ def test_busy_words() -> None:
 
     assert busy_difference(None, [0.1]) is None and busy_difference(0.5, []) is None
     assert busy_difference(0.5, [0.1, 0.9, 0.2]) is None  # idle on both sides
-    assert busy_difference(1.5, [2.0, 1.1, 3.0]) is None  # busy on both sides
-    assert "idle at this check (load 0.30 per CPU) but busy" in (
-        busy_difference(0.3, [1.2, 1.4, 0.2]) or "")
+    assert busy_difference(2.2, [2.0, 1.1, 2.5]) is None  # equally busy: 2.2 / 2.0 = 1.1
+    # 3.3 per CPU against 2.4: the queue alone stretches timings by about 1.4x.
+    assert "busier at this check (load 3.30 per CPU) than when the baseline ran (2.40)" in (
+        busy_difference(3.3, [2.4, 2.3, 2.6]) or "")
+    assert "quieter at this check (load 0.30 per CPU)" in (
+        busy_difference(0.3, [1.6, 1.4, 0.2]) or "")
 
 
 def test_the_suite_estimate_is_used_unless_a_check_is_noisier_beyond_chance() -> None:

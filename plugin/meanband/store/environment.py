@@ -162,9 +162,10 @@ def _read(path: str) -> str | None:
         return None
 
 
-#: A one-minute load average per CPU at or above this means more runnable work than cores:
-#: timings taken then are slowed by the queue, not by the code.
-BUSY = 1.0
+#: A one-minute load average per CPU at or above 1 means more runnable work than cores: a
+#: timing then stretches roughly with the queue. Timings whose queue levels (the load per CPU,
+#: at least 1) differ by more than this factor are not compared.
+BUSY_RATIO = 1.25
 
 
 def load_per_cpu() -> float | None:
@@ -177,19 +178,22 @@ def load_per_cpu() -> float | None:
 
 
 def busy_difference(now: float | None, then: list[float]) -> str | None:
-    """Words for a busy machine on one side only (this run or its baseline runs), else None.
+    """Words for a machine much busier (or much quieter) at this check than when the baseline
+    ran, else None.
 
-    A timing taken while more work was runnable than there were cores is slowed by the queue,
-    so it is not compared with one taken on an idle machine (or the other way round).
+    Below one runnable process per core the load does not stretch a timing; above it a timing
+    stretches roughly with the queue, so the queue levels ``max(1, load per CPU)`` are compared
+    and a ratio beyond :data:`BUSY_RATIO` either way sets the timing aside.
     """
     if now is None or not then:
         return None
     before = sorted(then)[len(then) // 2]
-    if (now >= BUSY) == (before >= BUSY):
+    ratio = max(1.0, now) / max(1.0, before)
+    if 1.0 / BUSY_RATIO <= ratio <= BUSY_RATIO:
         return None
-    return (f"the machine was {'busy' if now >= BUSY else 'idle'} at this check (load "
-            f"{now:.2f} per CPU) but {'busy' if before >= BUSY else 'idle'} when the baseline "
-            f"ran ({before:.2f})")
+    how = "busier" if ratio > 1.0 else "quieter"
+    return (f"the machine was {how} at this check (load {now:.2f} per CPU) than when the "
+            f"baseline ran ({before:.2f}): the queue, not the code, would move the timing")
 
 
 #: Variables that name one CI pipeline run and stay the same when a job in it is retried, in
