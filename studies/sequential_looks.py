@@ -21,6 +21,13 @@ to mean 0 and sd 1; the log-normal has log-sd 0.5, skewness about 1.75) and C = 
 Part 3 prints the Lan-DeMets group-sequential designs for 5 planned looks (maximum count over
 the fixed count, expected count under the planned effect and under none).
 
+Part 4 runs ``n="looks:5"`` as the fixture does (O'Brien-Fleming-type boundaries turned into t
+critical values with n - 1 degrees of freedom at each look, stats.sequential.planned_look's
+rule), with max_n the fixed count of 90% power at a margin of 0.5 sd times the design's
+inflation (at least 50, the fixture's minimum of 10 trials a look): the false-PASS rate with
+the mean on the budget, and at a margin of 0.5 sd the power and the average count against that
+fixed count.
+
 Run: ``nice -n 19 .venv/bin/python studies/sequential_looks.py [--reps N] [--seed S]``. Nothing
 here is asserted; tests/test_sequential.py checks the error control with a small simulation.
 """
@@ -134,6 +141,27 @@ def two_stage(rng: np.random.Generator, family: str, margin: float, confidence: 
     return DEFAULT_PILOT + second_n, passed
 
 
+def planned(rng: np.random.Generator, family: str, margin: float, confidence: float, reps: int,
+            looks: list[int], bounds: tuple[float, ...]) -> tuple[np.ndarray, np.ndarray]:
+    """PASS flags and counts used of planned looks at ``looks`` with z ``bounds`` (t per look)."""
+    x = draw(rng, (reps, looks[-1]), family) + (EDGE - margin)
+    _n, means, sems = prefix_stats(x)
+    passed = np.zeros(reps, dtype=bool)
+    decided = np.zeros(reps, dtype=bool)
+    used = np.full(reps, looks[-1], dtype=np.float64)
+    for count, z in zip(looks, bounds, strict=True):
+        i = count - 2
+        critical = stats.t.isf(stats.norm.sf(z), count - 1)
+        upper = means[:, i] + critical * sems[:, i]
+        lower = means[:, i] - critical * sems[:, i]
+        now_pass = ~decided & (upper <= EDGE)
+        now_fail = ~decided & (lower > EDGE)
+        passed |= now_pass
+        used[now_pass | now_fail] = count
+        decided |= now_pass | now_fail
+    return passed, used
+
+
 def _rate(flags: np.ndarray) -> str:
     """A share and its Monte Carlo SE, e.g. '4.1% +- 0.2%'."""
     rate = float(np.mean(flags))
@@ -211,6 +239,20 @@ def main() -> None:
             bounds = " ".join(f"{b:.3f}" for b in design.bounds)
             print(f"  {shape:<15} {1 - confidence:6.3f} | {bounds:<38} | {design.inflation:15.3f} "
                   f"{design.expected_fraction:22.3f} {design.expected_fraction_null:9.3f}")
+    print()
+    print("Part 4. n='looks:5' (O'Brien-Fleming type, t per look) on a budget; margin 0.5 sd for power")
+    print(f"  {'trials':<10} {'C':>5} {'1 - C':>6} | {'false PASS at edge':>18} | "
+          f"{'power':>6} {'mean n':>7} {'max n':>6} | {'fixed n, 90%':>12}")
+    for family in ("normal", "lognormal"):
+        for confidence in CONFIDENCES:
+            fixed = trials_needed(1.0, margin=0.5, confidence=confidence, side="upper", power=0.9)
+            design = group_sequential_design(5, confidence=confidence, power=0.9)
+            top = max(50, math.ceil(design.inflation * fixed))
+            looks = [math.ceil(f * top) for f in design.fractions]
+            edge, _ = planned(rng, family, 0.0, confidence, args.reps, looks, design.bounds)
+            passed, used = planned(rng, family, 0.5, confidence, args.reps, looks, design.bounds)
+            print(f"  {family:<10} {confidence:5.2f} {1 - confidence:6.2f} | {_rate(edge):>18} | "
+                  f"{passed.mean():6.1%} {used.mean():7.1f} {top:6d} | {fixed:>12}")
     print()
     print(f"(seed {args.seed}, {time.perf_counter() - started:.0f} s)")
 

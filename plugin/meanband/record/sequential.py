@@ -53,8 +53,10 @@ __all__ = [
 UNTIL_DECIDED = "until-decided"
 #: ``n="looks:K"`` or ``n="looks:K:SHAPE"``: K planned looks with group-sequential boundaries.
 PLANNED_LOOKS = "looks"
-#: Trials between planned looks at the least, so the spread has something to be estimated from.
-LOOK_TRIALS = 5
+#: Trials between planned looks at the least: with 5 trials at the first look the t-converted
+#: boundaries passed a mean on a 95% budget 5.6% of the time, with 10 about 5.1%
+#: (studies/sequential_looks.py, part 4; 20,000 runs, MC SE 0.15%).
+LOOK_TRIALS = 10
 #: Cap on the trials when ``max_n`` is not given, so a mean on an edge cannot run forever.
 DEFAULT_MAX_N = 200
 #: No look before this many trials: the anytime bound is wide (or infinite) on a few trials, and
