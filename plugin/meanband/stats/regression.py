@@ -288,25 +288,41 @@ def _runs_or_trials_to_decide(
 
     The run-to-run part of the variance, ``tau^2 (1 + 1/K)``, does not shrink with more trials:
     when it alone leaves the interval wider than the distance to the nearest edge, more trials
-    cannot decide and the note says what can. Otherwise the count solves
-    ``(z_(1-a/2) + z_power) * sqrt(run part + (s_c^2 + s_b^2) / n) = distance`` (normal
-    approximation, as in :mod:`meanband.stats.planning`).
+    cannot decide and the note says what can. Otherwise the count n per run solves
+    ``(t_(1-a/2) + t_power) * sqrt(run part + s_c^2 / n + s_b^2 / (n K)) = distance``, with t
+    at the Welch-Satterthwaite df of those parts, found by fixed-point iteration from the normal
+    approximation (as in :mod:`meanband.stats.planning`).
     """
     from scipy import stats
 
     edges = [interval._scale(e) for e in band if math.isfinite(e)]
     distance = min(abs(interval.difference - e) for e in edges)
-    z = float(stats.norm.ppf(0.5 + interval.confidence / 2.0) + stats.norm.ppf(power))
     run_part = between.variance * (1.0 + 1.0 / interval.baseline_runs)
-    needed = (distance / z) ** 2 - run_part if distance > 0 else -1.0
-    if needed <= 0:
-        return {"suggested_n": None, "note": (
-            f"run-to-run noise ({between.sd:.1%} between runs, {between.source}) leaves the "
-            "interval wider than its distance to the limit, so more trials per run will not "
-            "decide it; more baseline runs, an A/A calibration or a quieter machine can")}
+    k = interval.baseline_runs
     scale = 1.0 if interval.log else abs(interval.mean_baseline)
     pooled = np.concatenate(baseline_runs)
-    current = np.log(xc) if interval.log else xc / scale
-    base = np.log(pooled) if interval.log else pooled / scale
-    spread = float(np.var(current, ddof=1) + np.var(base, ddof=1))
-    return {"suggested_n": max(2, math.ceil(spread / needed))}
+    var_c = float(np.var(np.log(xc) if interval.log else xc / scale, ddof=1))
+    var_b = float(np.var(np.log(pooled) if interval.log else pooled / scale, ddof=1))
+    df = math.inf
+    n = 2
+    for _ in range(20):
+        reach = float(stats.t.ppf(0.5 + interval.confidence / 2.0, df) + stats.t.ppf(power, df))
+        needed = (distance / reach) ** 2 - run_part if distance > 0 else -1.0
+        if needed <= 0:
+            return {"suggested_n": None, "note": (
+                f"run-to-run noise ({between.sd:.1%} between runs, {between.source}) leaves the "
+                "interval wider than its distance to the limit, so more trials per run will not "
+                "decide it; more baseline runs, an A/A calibration or a quieter machine can")}
+        following = max(2, math.ceil((var_c + var_b / k) / needed))
+        df = _satterthwaite_df([(run_part, between.df), (var_c / following, following - 1.0),
+                                (var_b / (following * k), k * (following - 1.0))])
+        if following == n:
+            break
+        n = following
+    return {"suggested_n": n}
+
+
+def _satterthwaite_df(parts: list[tuple[float, float]]) -> float:
+    total = sum(v for v, _ in parts)
+    denominator = sum(v * v / d for v, d in parts if v > 0 and d > 0 and math.isfinite(d))
+    return math.inf if total <= 0 or denominator == 0 else total * total / denominator
