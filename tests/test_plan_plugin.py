@@ -330,3 +330,12 @@ def test_plan_write_problems_are_reported_not_lost(run_suite, pytester):
     assert any(line.startswith("plan: could not write the plan file a-directory")
                for line in result.outlines)
     result.assert_outcomes(passed=1, failed=2)  # the run's own outcome is untouched
+
+
+def test_a_deeply_nested_plan_file_is_a_usage_error_naming_it(run_suite, pytester):
+    pytester.makepyfile(test_kiln=SUITE)
+    (pytester.path / "deep.toml").write_text("a = " + "[" * 100_000 + "]" * 100_000)
+    result = run_suite("--meanband-plan", "deep.toml")
+    assert result.ret == pytest.ExitCode.USAGE_ERROR
+    result.stderr.fnmatch_lines(["ERROR: option --meanband-plan: plan file deep.toml: *nested too deeply*"])
+    assert "RecursionError" not in result.stderr.str()

@@ -307,3 +307,20 @@ def test_report_verbose_prints_every_section_the_live_verbose_summary_printed(
     capsys.readouterr()
     assert console(["report", str(pytester.path / "out" / "timed.json"), "-v"]) == 0
     assert capsys.readouterr().out.splitlines() == live
+
+
+@pytest.mark.parametrize("command", ["report", "merge"])
+@pytest.mark.parametrize("depth", [900, 100_000])
+def test_a_deeply_nested_report_is_a_one_line_error(tmp_path, capsys, command, depth):
+    from report_rows import sample_rows
+
+    report = report_json.build_report(sample_rows()[:1], environment=report_json.environment(),
+                                      configuration={"args": [], "options": {}})
+    report["rows"][0]["extra"] = "DEEP"
+    deep = tmp_path / "deep.json"
+    deep.write_text(report_json.dumps(report).replace('"DEEP"', "[" * depth + "]" * depth))
+    args = [command, str(deep)] + ([str(deep), "-o", str(tmp_path / "m.json")]
+                                   if command == "merge" else [])
+    assert console(args) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "nested too deeply" in err and str(deep) in err

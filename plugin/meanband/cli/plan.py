@@ -110,8 +110,12 @@ def rows_from_file(path: str | Path, run: str | None = None) -> tuple[list[Row],
     taken unless ``run`` names another (its index).
     """
     from meanband.store import report_json
+    from meanband.store.reading import ReadError, loads_json
+
     try:
-        document = json.loads(Path(path).read_text(encoding="utf-8"))
+        document = loads_json(Path(path).read_text(encoding="utf-8"), source=str(path))
+    except ReadError as exc:
+        raise SourceError(str(exc)) from None
     except FileNotFoundError:
         raise SourceError(f"no rows file at {path}") from None
     except (OSError, UnicodeDecodeError) as exc:
@@ -122,10 +126,14 @@ def rows_from_file(path: str | Path, run: str | None = None) -> tuple[list[Row],
     if isinstance(document, dict) and document.get("format") == report_json.FORMAT:
         report_json.validate_report(document, source=str(path))
         document = report_json.decode_rows(document["rows"])
-    rows = document.get("rows") if isinstance(document, dict) else document
-    if not isinstance(rows, list) or not all(isinstance(r, dict) for r in rows):
-        raise SourceError(f"{path} holds no result rows: expected a meanband JSON report or "
-                          "a JSON list of row objects")
+    else:
+        rows = document.get("rows") if isinstance(document, dict) else document
+        if not isinstance(rows, list):
+            raise SourceError(f"{path} holds no result rows: expected a meanband JSON report or "
+                              "a JSON list of row objects")
+        report_json.validate_rows(rows, source=str(path))
+        document = rows
+    rows = document
     tags = sorted({r["run"] for r in rows if isinstance(r.get("run"), int)})
     if tags:
         wanted = tags[-1] if run in (None, "", "latest") else _run_index(run, tags, path)
@@ -165,9 +173,15 @@ def _plan(args: argparse.Namespace) -> int:
     power = None if args.power is None else check_power(args.power, "--power")
     rows, where = load_rows(args)
     checks = [r for r in rows if r.get("kind") == "check" and r.get("decision")]
+    index = {id(row): number for number, row in enumerate(rows)}
     lines = []
     for row in sorted(checks, key=lambda r: (str(r.get("nodeid")), str(r.get("series") or ""))):
-        suggestion = suggestion_for_row(row, power=power)
+        try:
+            suggestion = suggestion_for_row(row, power=power)
+        except (KeyError, TypeError, AttributeError) as exc:
+            # The schema check above catches malformed rows; this names any it lets through.
+            raise SourceError(f"{where}: row {index[id(row)]} ({row.get('nodeid')}) cannot be "
+                              f"planned: {type(exc).__name__} at {exc}") from None
         verdict, n = row["decision"]["verdict"], row["decision"]["interval"]["n"]
         row["suggestion"] = None if suggestion is None else suggestion.to_dict()
         if suggestion is None:

@@ -192,6 +192,9 @@ def loads_plan(text: str, *, source: str = "<plan>") -> Plan:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise PlanError(f"plan file {source} is not valid TOML: {exc}") from None
+    except RecursionError:
+        raise PlanError(f"plan file {source}: arrays or tables are nested too deeply to read; "
+                        "a plan is three levels deep: was the right file given?") from None
 
     def fail(message: str, needle: str | tuple[str, ...] | None = None,
              key: str | None = None) -> PlanError:
