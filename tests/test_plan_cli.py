@@ -215,3 +215,20 @@ def test_a_deep_value_inside_a_row_is_refused_before_any_recursion(tmp_path, cap
     path.write_text(json.dumps([_check_row(extra="DEEP")]).replace('"DEEP"', "[" * 900 + "]" * 900))
     assert main(["plan", "--rows", str(path)]) == 2
     assert "nested too deeply" in capsys.readouterr().err
+
+
+def test_max_bytes_refuses_a_larger_rows_file(tmp_path, capsys):
+    path = tmp_path / "rows.json"
+    path.write_text(json.dumps([_check_row()]))
+    assert main(["plan", "--rows", str(path), "--max-bytes", "100"]) == 2
+    assert "is larger than the read limit of 100 bytes" in capsys.readouterr().err
+    assert main(["plan", "--rows", str(path), "--max-bytes", "1MiB"]) == 0
+
+
+def test_a_device_given_as_rows_is_refused_at_once(capsys):
+    import os
+
+    if not os.path.exists("/dev/zero"):
+        pytest.skip("no /dev/zero here")
+    assert main(["plan", "--rows", "/dev/zero"]) == 2
+    assert "/dev/zero is a device, not a regular file" in capsys.readouterr().err

@@ -12,6 +12,7 @@ __all__ = [
     "GC",
     "MAX_CHANGE",
     "MAX_INCREASE",
+    "MAX_READ_BYTES",
     "METHOD",
     "MIN_N",
     "MIN_UNCERTAINTY_RATIO",
@@ -61,3 +62,6 @@ REGRESSION_ADJUST = "holm"
 BASELINE_UNDECIDED = "pass"
 #: A baseline whose newest run is older than this many days gets a loud note.
 BASELINE_MAX_AGE_DAYS = 30.0
+#: Largest file (bytes) a reader of reports, merge inputs, rows and plan files accepts: 256 MiB,
+#: far above any real report, far below what would exhaust a CI machine's memory.
+MAX_READ_BYTES = 256 * 1024**2

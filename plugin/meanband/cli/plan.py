@@ -12,7 +12,7 @@ from typing import Any
 from meanband import defaults
 from meanband.errors import TrialError
 
-__all__ = ["load_rows", "register", "rows_from_file", "rows_from_store"]
+__all__ = ["add_max_bytes", "load_rows", "register", "rows_from_file", "rows_from_store"]
 
 #: Exit status for a bad command line, or a store or file that cannot be used.
 USAGE_ERROR = 2
@@ -52,11 +52,29 @@ def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) ->
         help=f"Power of the suggested counts (default: each check's own setting, else "
         f"{defaults.POWER})",
     )
+    add_max_bytes(plan)
     plan.add_argument("--write", metavar="PLAN", type=Path, default=None,
                       help="Also write the suggestions to this plan file (TOML)")
     plan.add_argument("--all", action="store_true",
                       help="List every check, also those whose count is about right")
     plan.set_defaults(handler=_guarded(_plan))
+
+
+def add_max_bytes(parser: argparse.ArgumentParser) -> None:
+    """The ``--max-bytes`` option of a command that reads JSON files."""
+    from meanband.store.reading import parse_size
+
+    def size(text: str) -> int:
+        try:
+            return parse_size(text)
+        except ValueError as exc:
+            raise argparse.ArgumentTypeError(str(exc)) from None
+
+    parser.add_argument(
+        "--max-bytes", metavar="SIZE", type=size, default=None,
+        help=f"Refuse input files larger than this: bytes, or with KiB, MiB, GiB (default "
+        f"{defaults.MAX_READ_BYTES // 1024**2} MiB)",
+    )
 
 
 def _guarded(command: Callable[[argparse.Namespace], int]) -> Callable[[argparse.Namespace], int]:
@@ -102,7 +120,8 @@ def rows_from_store(path: str | Path, run: str | None = None) -> tuple[list[Row]
     return rows, f"run #{info.id}{label} of {info.started} in {path}"
 
 
-def rows_from_file(path: str | Path, run: str | None = None) -> tuple[list[Row], str]:
+def rows_from_file(path: str | Path, run: str | None = None, *,
+                   max_bytes: int | None = None) -> tuple[list[Row], str]:
     """Rows from a JSON file: a meanband JSON report, or a plain list of rows.
 
     A report is checked against its schema and decoded by
@@ -110,10 +129,10 @@ def rows_from_file(path: str | Path, run: str | None = None) -> tuple[list[Row],
     taken unless ``run`` names another (its index).
     """
     from meanband.store import report_json
-    from meanband.store.reading import ReadError, loads_json
+    from meanband.store.reading import ReadError, loads_json, read_text
 
     try:
-        document = loads_json(Path(path).read_text(encoding="utf-8"), source=str(path))
+        document = loads_json(read_text(path, max_bytes=max_bytes), source=str(path))
     except ReadError as exc:
         raise SourceError(str(exc)) from None
     except FileNotFoundError:
@@ -154,7 +173,7 @@ def _run_index(run: str, tags: list[int], path: str | Path) -> int:
 def load_rows(args: argparse.Namespace) -> tuple[list[Row], str]:
     """Rows chosen by the command line: ``--rows FILE`` or the history store."""
     if args.rows is not None:
-        return rows_from_file(args.rows, args.run)
+        return rows_from_file(args.rows, args.run, max_bytes=args.max_bytes)
     from meanband.store.history import DEFAULT_STORE
 
     return rows_from_store(args.store or DEFAULT_STORE, args.run)

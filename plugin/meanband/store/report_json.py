@@ -203,11 +203,20 @@ def loads(text: str, *, source: str = "<report>") -> dict[str, Any]:
     return document  # type: ignore[no-any-return]
 
 
-def load_report(path: str | os.PathLike[str]) -> dict[str, Any]:
-    """Read a report file written by :func:`write_report` (or by a merge)."""
+def load_report(path: str | os.PathLike[str], *, max_bytes: int | None = None,
+                setting: str = "--max-bytes") -> dict[str, Any]:
+    """Read a report file written by :func:`write_report` (or by a merge).
+
+    Files larger than ``max_bytes`` (default ``defaults.MAX_READ_BYTES``) and paths that are
+    not regular files are refused before they are read; ``setting`` names what raises the limit.
+    """
+    from meanband.store.reading import ReadError, read_text
+
     source = os.fspath(path)
     try:
-        text = Path(path).read_text(encoding="utf-8")
+        text = read_text(path, max_bytes=max_bytes, setting=setting)
+    except ReadError as exc:
+        raise ReportError(str(exc)) from None
     except FileNotFoundError as exc:
         raise ReportError(f"{source}: no such report file") from exc
     except (OSError, UnicodeDecodeError) as exc:
