@@ -377,3 +377,25 @@ def test_a_fifo_given_as_the_plan_file_is_refused_at_once(run_suite, pytester):
     result = run_suite("--meanband-plan", "plan.toml")
     assert result.ret == pytest.ExitCode.USAGE_ERROR
     result.stderr.fnmatch_lines(["*plan file plan.toml is a FIFO (named pipe), not a regular file*"])
+
+
+def test_a_plan_count_above_the_ceiling_names_the_plan_file(run_suite, pytester):
+    pytester.makepyfile(test_kiln="def test_zone(trials):\n    trials.sample(lambda: 1.0)\n")
+    (pytester.path / "plan.toml").write_text(
+        '[plan]\nversion = 1\n\n[tests."test_kiln.py::test_zone"]\nn = 100000000000\n')
+    result = run_suite("--meanband-plan", "plan.toml")
+    result.assert_outcomes(errors=1)
+    assert ("plan file plan.toml: entry for test_kiln.py::test_zone: 100,000,000,000 trials is "
+            "above the ceiling of 1,000,000 trials") in result.stdout.str()
+
+
+def test_the_ceiling_can_be_raised_for_a_planned_count(run_suite, pytester):
+    pytester.makepyfile(test_kiln="def test_zone(trials):\n    trials.sample(lambda: 1.0)\n")
+    (pytester.path / "plan.toml").write_text(
+        '[plan]\nversion = 1\n\n[tests."test_kiln.py::test_zone"]\nn = 12\n')
+    low = run_suite("--meanband-plan", "plan.toml", "--meanband-max-trials", "10")
+    low.assert_outcomes(errors=1)
+    assert "12 trials is above the ceiling of 10 trials (max_trials, from option " in (
+        low.stdout.str())
+    run_suite("--meanband-plan", "plan.toml", "--meanband-max-trials", "12").assert_outcomes(
+        passed=1)

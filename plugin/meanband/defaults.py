@@ -13,6 +13,7 @@ __all__ = [
     "MAX_CHANGE",
     "MAX_INCREASE",
     "MAX_READ_BYTES",
+    "MAX_TRIALS",
     "METHOD",
     "MIN_N",
     "MIN_UNCERTAINTY_RATIO",
@@ -65,3 +66,7 @@ BASELINE_MAX_AGE_DAYS = 30.0
 #: Largest file (bytes) a reader of reports, merge inputs, rows and plan files accepts: 256 MiB,
 #: far above any real report, far below what would exhaust a CI machine's memory.
 MAX_READ_BYTES = 256 * 1024**2
+#: Most trials one collection may be asked for (``n``, a plan entry, ``max_n``): a count above it
+#: is an error naming where it came from, not a run that never ends. Raised with
+#: --meanband-max-trials, ini meanband_max_trials or the marker's ``max_trials``.
+MAX_TRIALS = 1_000_000

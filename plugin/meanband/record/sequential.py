@@ -125,7 +125,8 @@ def collect(
             f"{held} trials; use trials.series('name') for it"
         )
     planned = planning_band(band, unit)
-    cap = DEFAULT_MAX_N if max_n is None else _whole(max_n, "max_n", 2)
+    cap = DEFAULT_MAX_N if max_n is None else settings.check_count(
+        _whole(max_n, "max_n", 2), "the call's argument max_n")
     size = default_block if block is None else _whole(block, "block", 1)
     first_look = min(FIRST_LOOK, cap)
     parts: list[np.ndarray] = []
