@@ -232,3 +232,13 @@ def test_a_device_given_as_rows_is_refused_at_once(capsys):
         pytest.skip("no /dev/zero here")
     assert main(["plan", "--rows", "/dev/zero"]) == 2
     assert "/dev/zero is a device, not a regular file" in capsys.readouterr().err
+
+
+def test_a_plan_that_cannot_be_written_fails_in_words(tmp_path, capsys):
+    path = tmp_path / "rows.json"
+    path.write_text(json.dumps([_check_row()]))
+    blocker = tmp_path / "taken"
+    blocker.write_text("a file where a folder is wanted")
+    assert main(["plan", "--rows", str(path), "--write", str(blocker / "plan.toml")]) == 2
+    err = capsys.readouterr().err
+    assert "meanband plan: error: " in err and "[Errno" not in err, err

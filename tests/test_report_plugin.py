@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import re
 
 import jsonschema
 import numpy as np
@@ -361,3 +362,26 @@ def test_a_bad_max_bytes_is_a_usage_error(tmp_path, capsys):
         console(["report", _small_report(tmp_path), "--max-bytes", "lots"])
     assert stop.value.code == 2
     assert "argument --max-bytes: a byte count is a whole number" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("output", ["--markdown", "--plots"])
+def test_report_outputs_that_cannot_be_written_fail_in_words(tmp_path, capsys, output):
+    path = _small_report(tmp_path)
+    blocker = tmp_path / "taken"
+    blocker.write_text("a file where a folder is wanted")
+    target = blocker / ("out.md" if output == "--markdown" else "img")
+    assert console(["report", path, output, str(target)]) == 2
+    err = capsys.readouterr().err
+    # The OS's words and the path in the way (mkdir says "File exists", open "Not a directory").
+    assert re.search(rf"meanband report: error: (File exists|Not a directory): {re.escape(str(blocker))}", err), err
+    assert "[Errno" not in err and "choose a writable location" in err
+
+
+def test_a_merge_that_cannot_be_written_fails_in_words(tmp_path, capsys):
+    path = _small_report(tmp_path)
+    blocker = tmp_path / "taken"
+    blocker.write_text("a file where a folder is wanted")
+    assert console(["merge", path, "-o", str(blocker / "all.json")]) == 2
+    err = capsys.readouterr().err
+    assert re.search(r"meanband merge: error: (File exists|Not a directory): ", err), err
+    assert "[Errno" not in err and str(blocker) in err

@@ -85,7 +85,9 @@ def _guarded(command: Callable[[argparse.Namespace], int]) -> Callable[[argparse
         try:
             return command(args)
         except (TrialError, OSError, StoreError, ReportError) as exc:
-            print(f"meanband plan: error: {exc}", file=sys.stderr)
+            from meanband.store.atomic import write_error_words
+
+            print(f"meanband plan: error: {write_error_words(exc)}", file=sys.stderr)
             return USAGE_ERROR
 
     return run

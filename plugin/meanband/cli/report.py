@@ -71,7 +71,10 @@ def _formats(text: str) -> tuple[str, ...]:
 
 
 def _fail(command: str, message: object, err: TextIO) -> int:
-    print(f"meanband {command}: error: {message}", file=err)
+    from meanband.store.atomic import write_error_words
+
+    words = write_error_words(message) if isinstance(message, BaseException) else message
+    print(f"meanband {command}: error: {words}", file=err)
     return EXIT_BAD_INPUT
 
 
