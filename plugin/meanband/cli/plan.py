@@ -84,6 +84,8 @@ def _guarded(command: Callable[[argparse.Namespace], int]) -> Callable[[argparse
 
         try:
             return command(args)
+        except BrokenPipeError:
+            raise  # the reader of the output went away: ``meanband.cli.main`` ends quietly
         except (TrialError, OSError, StoreError, ReportError) as exc:
             from meanband.store.atomic import write_error_words
 

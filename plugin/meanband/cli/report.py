@@ -90,6 +90,8 @@ def run_merge(args: argparse.Namespace, out: TextIO | None = None,
                   for name in args.reports]
         merged = merge_reports(loaded, pool=args.pool)
         path = write_report(merged, args.output)
+    except BrokenPipeError:
+        raise
     except (ReportError, OSError) as exc:
         return _fail("merge", exc, err)
     pooled = sum(1 for row in merged["rows"] if "pooled" in row)
@@ -132,6 +134,8 @@ def run_report(args: argparse.Namespace, out: TextIO | None = None,
             print(f"wrote {len(result.written)} plot files to {args.plots}", file=out)
             for line in result.skipped_lines():
                 print(line, file=err)
+    except BrokenPipeError:
+        raise  # the reader of the output went away: ``meanband.cli.main`` ends quietly
     except (ReportError, OSError) as exc:
         return _fail("report", exc, err)
     totals = report["totals"]
