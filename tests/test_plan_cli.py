@@ -161,3 +161,84 @@ def test_all_lists_counts_that_are_about_right(tmp_path, capsys):
     everything = capsys.readouterr().out
     assert "t.py::test_fine" not in quiet and "every check's count is about right" in quiet
     assert "t.py::test_fine" in everything and "the count is about right" in everything
+
+
+def _check_row(**changes):
+    from meanband.stats.bands import make_band
+    from meanband.stats.decision import decide
+
+    values = [1.0, 1.1, 0.9, 1.05, 0.95, 1.0]
+    row = {"nodeid": "t.py::test_row", "series": "", "kind": "check", "values": values,
+           "decision": decide(values, make_band(high=2.0)).to_dict(), "settings": {}}
+    row.update(changes)
+    return row
+
+
+@pytest.mark.parametrize("rows, message", [
+    ([_check_row(), {"kind": "check"}], "row 1 is not a result row: 'nodeid' is a required"),
+    ([_check_row(nodeid=7)], "row 0 at key nodeid is not a result row: 7 is not of type"),
+    ([_check_row(), _check_row(decision={"verdict": "PASS"})], "row 1 at key decision is not"),
+    ([_check_row(decision=dict(_check_row()["decision"], interval={"n": 6}))],
+     "row 0 at key decision/interval is not a result row: 'mean' is a required property"),
+    ([_check_row(decision=dict(_check_row()["decision"], verdict=3))],
+     "row 0 at key decision/verdict is not a result row"),
+    ([_check_row(settings=[])], "row 0 at key settings is not a result row"),
+    ([_check_row(values="1,2")], "row 0 at key values is not a result row"),
+    ([_check_row(), 3], "row 1 is int, not an object"),
+])
+def test_malformed_rows_name_the_row_and_the_key(tmp_path, capsys, rows, message):
+    path = tmp_path / "rows.json"
+    path.write_text(json.dumps(rows))
+    assert main(["plan", "--rows", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert message in err and "Traceback" not in err and str(path) in err
+
+
+def test_a_well_formed_hand_written_row_is_planned(tmp_path, capsys):
+    path = tmp_path / "rows.json"
+    path.write_text(json.dumps([_check_row()]))
+    assert main(["plan", "--rows", str(path), "--all"]) == 0
+    assert "t.py::test_row" in capsys.readouterr().out
+
+
+@pytest.mark.parametrize("depth", [100, 100_000])
+def test_deeply_nested_rows_are_a_one_line_error(tmp_path, capsys, depth):
+    path = tmp_path / "deep.json"
+    path.write_text("[" * depth + "]" * depth)
+    assert main(["plan", "--rows", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "nested too deeply" in err and str(path) in err
+
+
+def test_a_deep_value_inside_a_row_is_refused_before_any_recursion(tmp_path, capsys):
+    path = tmp_path / "deep.json"
+    path.write_text(json.dumps([_check_row(extra="DEEP")]).replace('"DEEP"', "[" * 900 + "]" * 900))
+    assert main(["plan", "--rows", str(path)]) == 2
+    assert "nested too deeply" in capsys.readouterr().err
+
+
+def test_max_bytes_refuses_a_larger_rows_file(tmp_path, capsys):
+    path = tmp_path / "rows.json"
+    path.write_text(json.dumps([_check_row()]))
+    assert main(["plan", "--rows", str(path), "--max-bytes", "100"]) == 2
+    assert "is larger than the read limit of 100 bytes" in capsys.readouterr().err
+    assert main(["plan", "--rows", str(path), "--max-bytes", "1MiB"]) == 0
+
+
+def test_a_device_given_as_rows_is_refused_at_once(capsys):
+    import os
+
+    if not os.path.exists("/dev/zero"):
+        pytest.skip("no /dev/zero here")
+    assert main(["plan", "--rows", "/dev/zero"]) == 2
+    assert "/dev/zero is a device, not a regular file" in capsys.readouterr().err
+
+
+def test_a_plan_that_cannot_be_written_fails_in_words(tmp_path, capsys):
+    path = tmp_path / "rows.json"
+    path.write_text(json.dumps([_check_row()]))
+    blocker = tmp_path / "taken"
+    blocker.write_text("a file where a folder is wanted")
+    assert main(["plan", "--rows", str(path), "--write", str(blocker / "plan.toml")]) == 2
+    err = capsys.readouterr().err
+    assert "meanband plan: error: " in err and "[Errno" not in err, err

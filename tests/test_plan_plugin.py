@@ -330,3 +330,72 @@ def test_plan_write_problems_are_reported_not_lost(run_suite, pytester):
     assert any(line.startswith("plan: could not write the plan file a-directory")
                for line in result.outlines)
     result.assert_outcomes(passed=1, failed=2)  # the run's own outcome is untouched
+
+
+def test_a_deeply_nested_plan_file_is_a_usage_error_naming_it(run_suite, pytester):
+    pytester.makepyfile(test_kiln=SUITE)
+    (pytester.path / "deep.toml").write_text("a = " + "[" * 100_000 + "]" * 100_000)
+    result = run_suite("--meanband-plan", "deep.toml")
+    assert result.ret == pytest.ExitCode.USAGE_ERROR
+    result.stderr.fnmatch_lines(["ERROR: option --meanband-plan: plan file deep.toml: *nested too deeply*"])
+    assert "RecursionError" not in result.stderr.str()
+
+
+@pytest.mark.parametrize("how", ["option", "ini"])
+def test_a_plan_file_over_the_read_limit_is_a_usage_error(run_suite, pytester, how):
+    pytester.makepyfile(test_kiln=SUITE)
+    first = run_suite("--meanband-n", "6", "--meanband-write-plan", "plan.toml")
+    assert first.ret == 1
+    if how == "ini":
+        pytester.makeini("[pytest]\nmeanband_max_read_bytes = 16\n")
+        args: tuple[str, ...] = ("--meanband-plan", "plan.toml")
+    else:
+        args = ("--meanband-plan", "plan.toml", "--meanband-max-read-bytes", "16")
+    result = run_suite(*args)
+    assert result.ret == pytest.ExitCode.USAGE_ERROR
+    result.stderr.fnmatch_lines(["*plan file plan.toml is larger than the read limit of 16 bytes*"
+                                 "--meanband-max-read-bytes or ini meanband_max_read_bytes*"])
+    within = run_suite("--meanband-plan", "plan.toml", "--meanband-max-read-bytes", "1MiB")
+    assert within.ret == pytest.ExitCode.OK  # the plan's larger counts decide every check
+    assert "plan plan.toml: 3 of 3 planned tests recorded trials in this run" in within.outlines
+
+
+def test_a_bad_read_limit_is_a_usage_error_naming_the_option(run_suite, pytester):
+    pytester.makepyfile(test_kiln=SUITE)
+    result = run_suite("--meanband-max-read-bytes", "huge")
+    assert result.ret == pytest.ExitCode.USAGE_ERROR
+    result.stderr.fnmatch_lines(["*option --meanband-max-read-bytes: a byte count is a whole*"])
+
+
+def test_a_fifo_given_as_the_plan_file_is_refused_at_once(run_suite, pytester):
+    import os
+
+    if not hasattr(os, "mkfifo"):
+        pytest.skip("needs FIFOs")
+    pytester.makepyfile(test_kiln=SUITE)
+    os.mkfifo(pytester.path / "plan.toml")
+    result = run_suite("--meanband-plan", "plan.toml")
+    assert result.ret == pytest.ExitCode.USAGE_ERROR
+    result.stderr.fnmatch_lines(["*plan file plan.toml is a FIFO (named pipe), not a regular file*"])
+
+
+def test_a_plan_count_above_the_ceiling_names_the_plan_file(run_suite, pytester):
+    pytester.makepyfile(test_kiln="def test_zone(trials):\n    trials.sample(lambda: 1.0)\n")
+    (pytester.path / "plan.toml").write_text(
+        '[plan]\nversion = 1\n\n[tests."test_kiln.py::test_zone"]\nn = 100000000000\n')
+    result = run_suite("--meanband-plan", "plan.toml")
+    result.assert_outcomes(errors=1)
+    assert ("plan file plan.toml: entry for test_kiln.py::test_zone: 100,000,000,000 trials is "
+            "above the ceiling of 1,000,000 trials") in result.stdout.str()
+
+
+def test_the_ceiling_can_be_raised_for_a_planned_count(run_suite, pytester):
+    pytester.makepyfile(test_kiln="def test_zone(trials):\n    trials.sample(lambda: 1.0)\n")
+    (pytester.path / "plan.toml").write_text(
+        '[plan]\nversion = 1\n\n[tests."test_kiln.py::test_zone"]\nn = 12\n')
+    low = run_suite("--meanband-plan", "plan.toml", "--meanband-max-trials", "10")
+    low.assert_outcomes(errors=1)
+    assert "12 trials is above the ceiling of 10 trials (max_trials, from option " in (
+        low.stdout.str())
+    run_suite("--meanband-plan", "plan.toml", "--meanband-max-trials", "12").assert_outcomes(
+        passed=1)

@@ -125,3 +125,14 @@ def test_hand_written_plan_is_read():
     assert plan.for_test("t.py::a")[""].n == 40
     assert plan.for_test("t.py::a")["hot"].n == 8
     assert plan.power is None
+
+
+@pytest.mark.parametrize("text", [
+    "a = " + "[" * 100_000 + "]" * 100_000,
+    '[tests."t.py::test_a"]\nn = ' + "{x = " * 5000 + "1" + "}" * 5000,
+])
+def test_deeply_nested_toml_is_a_plan_error_naming_the_file(tmp_path, text):
+    path = tmp_path / "deep.toml"
+    path.write_text(text)
+    with pytest.raises(PlanError, match=r"plan file .*deep\.toml: .*nested too deeply"):
+        read_plan(path)

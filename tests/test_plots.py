@@ -165,3 +165,18 @@ def test_a_pooled_run_chart_marks_where_each_run_ends(tmp_path):
     boundaries = [line.get_xdata()[0] for line in ax.get_lines()
                   if line.get_label() == "next pooled run"]
     assert boundaries == [15.5]
+
+
+def test_plots_are_written_atomically_and_never_through_a_planted_link(tmp_path):
+    rows = sample_rows()[:1]
+    first = plots.write_plots(rows, tmp_path / "img").written
+    victim = tmp_path / "victim.txt"
+    victim.write_text("keep me")
+    planted = first[0]
+    planted.unlink()
+    planted.symlink_to(victim)
+    again = plots.write_plots(rows, tmp_path / "img").written
+    assert sorted(p.name for p in again) == sorted(p.name for p in first)
+    assert victim.read_text() == "keep me"
+    assert not planted.is_symlink() and image(planted).ndim == 3
+    assert [p.name for p in (tmp_path / "img").iterdir() if p.name.startswith(".")] == []

@@ -518,3 +518,55 @@ def test_pytest_help_works_with_the_plugin(run_suite):
     result = run_suite("--help")
     assert result.ret == 0
     result.stdout.fnmatch_lines(["*--meanband-max-increase*"])
+
+
+CEILING_SUITE = """
+import pytest
+
+def test_call(trials):
+    trials.sample(lambda: 1.0, n=100_000_000_000)
+
+@pytest.mark.meanband(n=100_000_000_000)
+def test_marked(trials):
+    trials.sample(lambda: 1.0)
+
+def test_until_decided(trials):
+    trials.sample(lambda: 1.0, n="until-decided", max_n=100_000_000_000, band=dict(high=2.0))
+
+def test_auto(trials):
+    trials.sample(lambda: 1.0, n="auto", max_n=100_000_000_000, band=dict(high=2.0))
+
+@pytest.mark.meanband(max_trials=2_000_000)
+def test_raised(trials):
+    trials.sample(lambda: 1.0, n=3)
+    trials.extend([1.0, 1.1, 0.9])
+    trials.check(high=2.0)
+"""
+
+
+def test_counts_above_the_trial_ceiling_fail_fast_naming_their_source(run_suite, pytester):
+    pytester.makepyfile(test_ceiling=CEILING_SUITE)
+    result = run_suite("-p", "no:randomly")
+    text = result.stdout.str()
+    assert "the call's argument n: 100,000,000,000 trials is above the ceiling of 1,000,000" in text
+    assert ("marker @pytest.mark.meanband on test_ceiling.py::test_marked: 100,000,000,000 "
+            "trials is above the ceiling") in text
+    assert text.count("the call's argument max_n: 100,000,000,000 trials is above") == 2
+    result.assert_outcomes(passed=1, failed=3, errors=1)
+
+
+@pytest.mark.parametrize("args, ini, source", [
+    (("--meanband-n", "100000000000"), "", "option --meanband-n: 100,000,000,000 trials"),
+    ((), "meanband_n = 100000000000", "ini key meanband_n: 100,000,000,000 trials"),
+    (("--meanband-n", "50", "--meanband-max-trials", "40"), "",
+     "option --meanband-n: 50 trials is above the ceiling of 40 trials (max_trials, from option "
+     "--meanband-max-trials)"),
+])
+def test_a_count_above_the_ceiling_from_options_is_a_usage_error(run_suite, pytester, args, ini,
+                                                                  source):
+    pytester.makepyfile(test_ceiling="def test_x(trials):\n    trials.sample(lambda: 1.0)\n")
+    if ini:
+        pytester.makeini(f"[pytest]\n{ini}\n")
+    result = run_suite(*args)
+    assert result.ret == pytest.ExitCode.USAGE_ERROR
+    assert source in result.stderr.str()

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import re
 
 import jsonschema
 import numpy as np
@@ -307,3 +308,80 @@ def test_report_verbose_prints_every_section_the_live_verbose_summary_printed(
     capsys.readouterr()
     assert console(["report", str(pytester.path / "out" / "timed.json"), "-v"]) == 0
     assert capsys.readouterr().out.splitlines() == live
+
+
+@pytest.mark.parametrize("command", ["report", "merge"])
+@pytest.mark.parametrize("depth", [900, 100_000])
+def test_a_deeply_nested_report_is_a_one_line_error(tmp_path, capsys, command, depth):
+    from report_rows import sample_rows
+
+    report = report_json.build_report(sample_rows()[:1], environment=report_json.environment(),
+                                      configuration={"args": [], "options": {}})
+    report["rows"][0]["extra"] = "DEEP"
+    deep = tmp_path / "deep.json"
+    deep.write_text(report_json.dumps(report).replace('"DEEP"', "[" * depth + "]" * depth))
+    args = [command, str(deep)] + ([str(deep), "-o", str(tmp_path / "m.json")]
+                                   if command == "merge" else [])
+    assert console(args) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "nested too deeply" in err and str(deep) in err
+
+
+def _small_report(tmp_path):
+    from report_rows import sample_rows
+
+    report = report_json.build_report(sample_rows()[:1], environment=report_json.environment(),
+                                      configuration={"args": [], "options": {}})
+    return str(report_json.write_report(report, tmp_path / "r.json"))
+
+
+@pytest.mark.parametrize("command", ["report", "merge"])
+def test_max_bytes_refuses_a_larger_report(tmp_path, capsys, command):
+    path = _small_report(tmp_path)
+    extra = [path, "-o", str(tmp_path / "m.json"), "--pool"] if command == "merge" else []
+    assert console([command, path, *extra, "--max-bytes", "1KiB"]) == 2
+    err = capsys.readouterr().err
+    assert "r.json is larger than the read limit of 1,024 bytes" in err and "--max-bytes" in err
+    assert console([command, path, *extra, "--max-bytes", "64MiB"]) in (0, 1)
+
+
+@pytest.mark.skipif(not hasattr(__import__("os"), "mkfifo"), reason="needs FIFOs")
+@pytest.mark.parametrize("command", ["report", "merge"])
+def test_a_fifo_given_as_a_report_is_refused_at_once(tmp_path, capsys, command):
+    import os
+
+    fifo = tmp_path / "r.json"
+    os.mkfifo(fifo)
+    extra = [str(fifo), "-o", str(tmp_path / "m.json")] if command == "merge" else []
+    assert console([command, str(fifo), *extra]) == 2
+    assert "is a FIFO (named pipe), not a regular file" in capsys.readouterr().err
+
+
+def test_a_bad_max_bytes_is_a_usage_error(tmp_path, capsys):
+    with pytest.raises(SystemExit) as stop:
+        console(["report", _small_report(tmp_path), "--max-bytes", "lots"])
+    assert stop.value.code == 2
+    assert "argument --max-bytes: a byte count is a whole number" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("output", ["--markdown", "--plots"])
+def test_report_outputs_that_cannot_be_written_fail_in_words(tmp_path, capsys, output):
+    path = _small_report(tmp_path)
+    blocker = tmp_path / "taken"
+    blocker.write_text("a file where a folder is wanted")
+    target = blocker / ("out.md" if output == "--markdown" else "img")
+    assert console(["report", path, output, str(target)]) == 2
+    err = capsys.readouterr().err
+    # The OS's words and the path in the way (mkdir says "File exists", open "Not a directory").
+    assert re.search(rf"meanband report: error: (File exists|Not a directory): {re.escape(str(blocker))}", err), err
+    assert "[Errno" not in err and "choose a writable location" in err
+
+
+def test_a_merge_that_cannot_be_written_fails_in_words(tmp_path, capsys):
+    path = _small_report(tmp_path)
+    blocker = tmp_path / "taken"
+    blocker.write_text("a file where a folder is wanted")
+    assert console(["merge", path, "-o", str(blocker / "all.json")]) == 2
+    err = capsys.readouterr().err
+    assert re.search(r"meanband merge: error: (File exists|Not a directory): ", err), err
+    assert "[Errno" not in err and str(blocker) in err

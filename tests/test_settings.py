@@ -63,3 +63,41 @@ def test_marker_signature_rejects_unknown_keywords_and_positional_args():
         marker_settings(trials=5)  # type: ignore[call-arg]
     with pytest.raises(TypeError):
         marker_settings(40)  # type: ignore[misc]
+
+
+def test_the_trial_ceiling_defaults_to_a_million():
+    from meanband import defaults
+
+    assert DEFAULTS.max_trials == defaults.MAX_TRIALS == 1_000_000
+
+
+@pytest.mark.parametrize("layers, fragment", [
+    ([("plan file p.toml: entry for t.py::test_a", {"n": 100_000_000_000})],
+     "plan file p.toml: entry for t.py::test_a: 100,000,000,000 trials is above the ceiling of "
+     "1,000,000 trials (max_trials)"),
+    ([("marker", {"n": 50}), ("ini key meanband_max_trials", {"max_trials": 40})],
+     "marker: 50 trials is above the ceiling of 40 trials (max_trials, from ini key "
+     "meanband_max_trials)"),
+])
+def test_a_count_above_the_ceiling_names_its_source_and_the_setting(layers, fragment):
+    with pytest.raises(SettingError) as raised:
+        resolve(layers)
+    assert fragment in str(raised.value)
+    assert "--meanband-max-trials, ini meanband_max_trials or @pytest.mark.meanband(max_trials" in (
+        str(raised.value))
+
+
+def test_a_raised_ceiling_lets_a_large_count_through():
+    settings = resolve([("marker", {"n": 2_000_000, "max_trials": 5_000_000})])
+    assert (settings.n, settings.max_trials) == (2_000_000, 5_000_000)
+
+
+def test_a_call_argument_above_the_ceiling_is_refused():
+    with pytest.raises(SettingError, match=r"the call's argument n: 100,000,000,000 trials is "
+                       r"above the ceiling of 1,000,000"):
+        DEFAULTS.merged(n=100_000_000_000)
+    assert DEFAULTS.merged(n=1_000_000).n == 1_000_000
+
+
+def test_the_ceiling_is_not_part_of_a_rows_settings():
+    assert "max_trials" not in DEFAULTS.to_dict()

@@ -12,6 +12,8 @@ __all__ = [
     "GC",
     "MAX_CHANGE",
     "MAX_INCREASE",
+    "MAX_READ_BYTES",
+    "MAX_TRIALS",
     "METHOD",
     "MIN_N",
     "MIN_UNCERTAINTY_RATIO",
@@ -61,3 +63,10 @@ REGRESSION_ADJUST = "holm"
 BASELINE_UNDECIDED = "pass"
 #: A baseline whose newest run is older than this many days gets a loud note.
 BASELINE_MAX_AGE_DAYS = 30.0
+#: Largest file (bytes) a reader of reports, merge inputs, rows and plan files accepts: 256 MiB,
+#: far above any real report, far below what would exhaust a CI machine's memory.
+MAX_READ_BYTES = 256 * 1024**2
+#: Most trials one collection may be asked for (``n``, a plan entry, ``max_n``): a count above it
+#: is an error naming where it came from, not a run that never ends. Raised with
+#: --meanband-max-trials, ini meanband_max_trials or the marker's ``max_trials``.
+MAX_TRIALS = 1_000_000

@@ -13,7 +13,7 @@ from meanband import defaults
 from meanband.errors import TrialError
 from meanband.store.database import store_location
 
-__all__ = ["load_rows", "register", "rows_from_file", "rows_from_store"]
+__all__ = ["add_max_bytes", "load_rows", "register", "rows_from_file", "rows_from_store"]
 
 #: Exit status for a bad command line, or a store or file that cannot be used.
 USAGE_ERROR = 2
@@ -54,11 +54,29 @@ def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) ->
         help=f"Power of the suggested counts (default: each check's own setting, else "
         f"{defaults.POWER})",
     )
+    add_max_bytes(plan)
     plan.add_argument("--write", metavar="PLAN", type=Path, default=None,
                       help="Also write the suggestions to this plan file (TOML)")
     plan.add_argument("--all", action="store_true",
                       help="List every check, also those whose count is about right")
     plan.set_defaults(handler=_guarded(_plan))
+
+
+def add_max_bytes(parser: argparse.ArgumentParser) -> None:
+    """The ``--max-bytes`` option of a command that reads JSON files."""
+    from meanband.store.reading import parse_size
+
+    def size(text: str) -> int:
+        try:
+            return parse_size(text)
+        except ValueError as exc:
+            raise argparse.ArgumentTypeError(str(exc)) from None
+
+    parser.add_argument(
+        "--max-bytes", metavar="SIZE", type=size, default=None,
+        help=f"Refuse input files larger than this: bytes, or with KiB, MiB, GiB (default "
+        f"{defaults.MAX_READ_BYTES // 1024**2} MiB)",
+    )
 
 
 def _guarded(command: Callable[[argparse.Namespace], int]) -> Callable[[argparse.Namespace], int]:
@@ -68,8 +86,12 @@ def _guarded(command: Callable[[argparse.Namespace], int]) -> Callable[[argparse
 
         try:
             return command(args)
+        except BrokenPipeError:
+            raise  # the reader of the output went away: ``meanband.cli.main`` ends quietly
         except (TrialError, OSError, StoreError, ReportError) as exc:
-            print(f"meanband plan: error: {exc}", file=sys.stderr)
+            from meanband.store.atomic import write_error_words
+
+            print(f"meanband plan: error: {write_error_words(exc)}", file=sys.stderr)
             return USAGE_ERROR
 
     return run
@@ -105,7 +127,8 @@ def rows_from_store(path: str | Path, run: str | None = None) -> tuple[list[Row]
     return rows, f"run #{info.id}{label} of {info.started} in {path}"
 
 
-def rows_from_file(path: str | Path, run: str | None = None) -> tuple[list[Row], str]:
+def rows_from_file(path: str | Path, run: str | None = None, *,
+                   max_bytes: int | None = None) -> tuple[list[Row], str]:
     """Rows from a JSON file: a meanband JSON report, or a plain list of rows.
 
     A report is checked against its schema and decoded by
@@ -113,8 +136,12 @@ def rows_from_file(path: str | Path, run: str | None = None) -> tuple[list[Row],
     taken unless ``run`` names another (its index).
     """
     from meanband.store import report_json
+    from meanband.store.reading import ReadError, loads_json, read_text
+
     try:
-        document = json.loads(Path(path).read_text(encoding="utf-8"))
+        document = loads_json(read_text(path, max_bytes=max_bytes), source=str(path))
+    except ReadError as exc:
+        raise SourceError(str(exc)) from None
     except FileNotFoundError:
         raise SourceError(f"no rows file at {path}") from None
     except (OSError, UnicodeDecodeError) as exc:
@@ -125,10 +152,14 @@ def rows_from_file(path: str | Path, run: str | None = None) -> tuple[list[Row],
     if isinstance(document, dict) and document.get("format") == report_json.FORMAT:
         report_json.validate_report(document, source=str(path))
         document = report_json.decode_rows(document["rows"])
-    rows = document.get("rows") if isinstance(document, dict) else document
-    if not isinstance(rows, list) or not all(isinstance(r, dict) for r in rows):
-        raise SourceError(f"{path} holds no result rows: expected a meanband JSON report or "
-                          "a JSON list of row objects")
+    else:
+        rows = document.get("rows") if isinstance(document, dict) else document
+        if not isinstance(rows, list):
+            raise SourceError(f"{path} holds no result rows: expected a meanband JSON report or "
+                              "a JSON list of row objects")
+        report_json.validate_rows(rows, source=str(path))
+        document = rows
+    rows = document
     tags = sorted({r["run"] for r in rows if isinstance(r.get("run"), int)})
     if tags:
         wanted = tags[-1] if run in (None, "", "latest") else _run_index(run, tags, path)
@@ -149,7 +180,7 @@ def _run_index(run: str, tags: list[int], path: str | Path) -> int:
 def load_rows(args: argparse.Namespace) -> tuple[list[Row], str]:
     """Rows chosen by the command line: ``--rows FILE`` or the history store."""
     if args.rows is not None:
-        return rows_from_file(args.rows, args.run)
+        return rows_from_file(args.rows, args.run, max_bytes=args.max_bytes)
     from meanband.store.history import DEFAULT_STORE
 
     return rows_from_store(args.store or DEFAULT_STORE, args.run)
@@ -168,9 +199,15 @@ def _plan(args: argparse.Namespace) -> int:
     power = None if args.power is None else check_power(args.power, "--power")
     rows, where = load_rows(args)
     checks = [r for r in rows if r.get("kind") == "check" and r.get("decision")]
+    index = {id(row): number for number, row in enumerate(rows)}
     lines = []
     for row in sorted(checks, key=lambda r: (str(r.get("nodeid")), str(r.get("series") or ""))):
-        suggestion = suggestion_for_row(row, power=power)
+        try:
+            suggestion = suggestion_for_row(row, power=power)
+        except (KeyError, TypeError, AttributeError) as exc:
+            # The schema check above catches malformed rows; this names any it lets through.
+            raise SourceError(f"{where}: row {index[id(row)]} ({row.get('nodeid')}) cannot be "
+                              f"planned: {type(exc).__name__} at {exc}") from None
         verdict, n = row["decision"]["verdict"], row["decision"]["interval"]["n"]
         row["suggestion"] = None if suggestion is None else suggestion.to_dict()
         if suggestion is None:

@@ -16,6 +16,8 @@ EXIT_OK, EXIT_CHECKS_FAILED, EXIT_BAD_INPUT = 0, 1, 2
 
 def register(subparsers: Any) -> None:
     """Add the ``merge`` and ``report`` commands to the console's subparsers."""
+    from meanband.cli.plan import add_max_bytes
+
     merge = subparsers.add_parser(
         "merge",
         help="combine the JSON reports of several shards into one",
@@ -26,6 +28,7 @@ def register(subparsers: Any) -> None:
     merge.add_argument("reports", nargs="+", metavar="REPORT", help="JSON reports to combine")
     merge.add_argument("-o", "--output", required=True, metavar="PATH",
                        help="where to write the combined report")
+    add_max_bytes(merge)
     merge.add_argument("--pool", action="store_true",
                        help="pool the trials of a check found in several reports and decide it "
                        "afresh from all of them (for repeated runs of the same tests)")
@@ -39,6 +42,7 @@ def register(subparsers: Any) -> None:
         "check did not pass, so it can gate a build after a merge.",
     )
     report.add_argument("report", metavar="REPORT", help="a JSON report")
+    add_max_bytes(report)
     report.add_argument("-v", "--verbose", action="count", default=0,
                         help="more detail (as pytest's -v)")
     report.add_argument("-q", "--quiet", action="count", default=0,
@@ -86,7 +90,10 @@ def _formats(text: str) -> tuple[str, ...]:
 
 
 def _fail(command: str, message: object, err: TextIO) -> int:
-    print(f"meanband {command}: error: {message}", file=err)
+    from meanband.store.atomic import write_error_words
+
+    words = write_error_words(message) if isinstance(message, BaseException) else message
+    print(f"meanband {command}: error: {words}", file=err)
     return EXIT_BAD_INPUT
 
 
@@ -98,9 +105,12 @@ def run_merge(args: argparse.Namespace, out: TextIO | None = None,
 
     out, err = out or sys.stdout, err or sys.stderr
     try:
-        loaded = [(name, load_report(name)) for name in args.reports]
+        loaded = [(name, load_report(name, max_bytes=args.max_bytes))
+                  for name in args.reports]
         merged = merge_reports(loaded, pool=args.pool)
         path = write_report(merged, args.output)
+    except BrokenPipeError:
+        raise
     except (ReportError, OSError) as exc:
         return _fail("merge", exc, err)
     pooled = sum(1 for row in merged["rows"] if "pooled" in row)
@@ -120,7 +130,7 @@ def run_report(args: argparse.Namespace, out: TextIO | None = None,
 
     out, err = out or sys.stdout, err or sys.stderr
     try:
-        report = load_report(args.report)
+        report = load_report(args.report, max_bytes=args.max_bytes)
     except ReportError as exc:
         return _fail("report", exc, err)
     rows = report["rows"]
@@ -148,6 +158,8 @@ def run_report(args: argparse.Namespace, out: TextIO | None = None,
         elif args.trend_store:
             return _fail("report", "--trend-store draws into the --plots folder; give --plots DIR",
                          err)
+    except BrokenPipeError:
+        raise  # the reader of the output went away: ``meanband.cli.main`` ends quietly
     except (ReportError, OSError) as exc:
         return _fail("report", exc, err)
     except MeanbandError as exc:  # a store that cannot be read

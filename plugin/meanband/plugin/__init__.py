@@ -54,6 +54,8 @@ _SETTING_OPTIONS = (
      "its calibration due date does: note or fail (default note).", "string"),
     ("time_limit", "time-limit", "Most time a test may spend timing, e.g. '2s'; trials stop "
      "early with a note (default: no limit).", "string"),
+    ("max_trials", "max-trials", "Ceiling on any trial count asked for (n, a plan entry, "
+     f"max_n); a larger count is an error (default {defaults.MAX_TRIALS:,}).", "string"),
 )
 
 
@@ -75,7 +77,7 @@ def pytest_configure(config: pytest.Config) -> None:
         "markers",
         "meanband(n=None, confidence=None, warmup=None, min_n=None, normality_alpha=None, "
         "method=None, power=None, min_trial_time=None, clock=None, gc=None, time_limit=None, "
-        "overdue_calibration=None, min_uncertainty_ratio=None): "
+        "overdue_calibration=None, min_uncertainty_ratio=None, max_trials=None): "
         "settings for the test's `trials` fixture.",
     )
     config.stash[CONFIG_LAYERS_KEY] = _config_layers(config)
@@ -84,18 +86,26 @@ def pytest_configure(config: pytest.Config) -> None:
 
 
 def _config_layers(config: pytest.Config) -> list[tuple[str, dict[str, Any]]]:
-    """Command-line and ini layers, validated now so a bad value is a usage error."""
-    option_layer: dict[str, Any] = {}
-    ini_layer: dict[str, Any] = {}
+    """Command-line and ini layers, validated now so a bad value is a usage error.
+
+    One layer per given value, named for where it came from (``option --meanband-n``), every
+    option above every ini key, so a later error can name the exact source.
+    """
+    options: list[tuple[str, dict[str, Any]]] = []
+    inis: list[tuple[str, dict[str, Any]]] = []
     for name, _word, _help, _type in _SETTING_OPTIONS:
         try:
-            for layer, found in ((option_layer, option_value(config, name)),
-                                 (ini_layer, ini_value(config, name))):
+            for layers, found in ((options, option_value(config, name)),
+                                  (inis, ini_value(config, name))):
                 if found is not None:
-                    layer[name] = validate(name, found.value, found.source)
+                    layers.append((found.source, {name: validate(name, found.value, found.source)}))
         except SettingError as exc:
             raise pytest.UsageError(str(exc)) from None
-    return [("command line", option_layer), ("ini file", ini_layer)]
+    try:
+        resolve([*options, *inis])  # a count above the ceiling would make every test run on
+    except SettingError as exc:
+        raise pytest.UsageError(str(exc)) from None
+    return [*options, *inis]
 
 
 @pytest.fixture
@@ -124,11 +134,13 @@ def trials(request: pytest.FixtureRequest) -> Recorder:
 
     from meanband.plugin.history import EARLIER_KEY
 
+    planned = getattr(config.pluginmanager.get_plugin("meanband-plan"), "plan", None)
+    entry = f"plan file {planned.source}: entry" if planned is not None else "plan entry"
     recorder = Recorder(
-        with_plan(f"plan entry for {item.nodeid}", plan), item.nodeid,
+        with_plan(f"{entry} for {item.nodeid}", plan), item.nodeid,
         earlier=config.stash.get(EARLIER_KEY, {}).get(item.nodeid),
         series_settings={
-            name: with_plan(f"plan entry for {item.nodeid} [{name}]", dict(values))
+            name: with_plan(f"{entry} for {item.nodeid} [{name}]", dict(values))
             for name, values in series_plans.items()
         },
         other_series=with_plan("", {}),

@@ -8,7 +8,8 @@ from typing import TYPE_CHECKING, Any
 
 import pytest
 
-from meanband.plugin.options import given, resolve_path
+from meanband import defaults
+from meanband.plugin.options import given, resolve_path, resolve_value
 
 if TYPE_CHECKING:
     from meanband.store.planfile import Plan
@@ -29,6 +30,15 @@ def pytest_addoption(parser: pytest.Parser) -> None:
         type="string", default=None,
     )
     group.addoption(
+        "--meanband-max-read-bytes", dest="meanband_max_read_bytes", default=None, metavar="SIZE",
+        help="Refuse a plan file larger than this: bytes, or with KiB, MiB, GiB (default "
+        f"{defaults.MAX_READ_BYTES // 1024**2} MiB).",
+    )
+    parser.addini(
+        "meanband_max_read_bytes", "Largest plan file meanband reads: bytes, or with KiB, MiB, "
+        f"GiB (default {defaults.MAX_READ_BYTES // 1024**2} MiB).", type="string", default=None,
+    )
+    group.addoption(
         "--meanband-write-plan", dest="meanband_write_plan", default=None, metavar="PATH",
         help="Write the suggested trial count of every check, with its reason, to this plan "
         "file (TOML) at the end of the run.",
@@ -41,22 +51,34 @@ def pytest_configure(config: pytest.Config) -> None:
     where = found.source if found is not None else ""
     path = resolve_path(config, "plan")
     source = None if path is None else _shown(path)
+    max_bytes = _max_read_bytes(config)
     if source:
         from meanband.store.planfile import PlanError, read_plan
 
         try:
-            plan = read_plan(source)
+            plan = read_plan(source, max_bytes=max_bytes, setting=_LIMIT_SETTING)
         except PlanError as exc:
             raise pytest.UsageError(f"{where}: {exc}") from None
-    config.pluginmanager.register(PlanPlugin(config, plan), PLAN_PLUGIN_NAME)
+    config.pluginmanager.register(PlanPlugin(config, plan, max_bytes), PLAN_PLUGIN_NAME)
+
+
+_LIMIT_SETTING = "--meanband-max-read-bytes or ini meanband_max_read_bytes"
+
+
+def _max_read_bytes(config: pytest.Config) -> int:
+    from meanband.store.reading import parse_size
+
+    return resolve_value(config, "max_read_bytes", parse_size, defaults.MAX_READ_BYTES)
 
 
 class PlanPlugin:
     """Supplies the plan layer of the settings, adds suggestions to rows, writes the plan."""
 
-    def __init__(self, config: pytest.Config, plan: Plan | None) -> None:
+    def __init__(self, config: pytest.Config, plan: Plan | None,
+                 max_bytes: int = defaults.MAX_READ_BYTES) -> None:
         self.config = config
         self.plan = plan
+        self.max_bytes = max_bytes
         self.collected: set[str] = set()
         self.written: Path | None = None
         self.write_error: str | None = None
@@ -145,7 +167,7 @@ class PlanPlugin:
         # Keep what an earlier run planned for tests this run did not reach (e.g. under -k).
         if path.exists():
             try:
-                earlier = read_plan(path)
+                earlier = read_plan(path, max_bytes=self.max_bytes, setting=_LIMIT_SETTING)
             except PlanError as exc:
                 self.write_error = f"{exc}; it was replaced"
             else:

@@ -306,7 +306,6 @@ def _shown(path: Path) -> str:
 
 def _in_words(exc: BaseException) -> str:
     """An OSError as words and the file it is about ("Not a directory: taken/out.json")."""
-    if isinstance(exc, OSError) and exc.errno:
-        where = f": {exc.filename}" if exc.filename else ""
-        return f"{os.strerror(exc.errno)}{where}; choose a writable location"
-    return str(exc)
+    from meanband.store.atomic import write_error_words
+
+    return write_error_words(exc)

@@ -124,6 +124,8 @@ def collect(
             "trials; use trials.series('name') for the adaptive one"
         )
     planned = planning_band(band, unit)
+    if isinstance(max_n, int) and not isinstance(max_n, bool):
+        settings.check_count(max_n, "the call's argument max_n")
     run = run_two_stage(
         take, planned,
         pilot_n=DEFAULT_PILOT if pilot is None else pilot,

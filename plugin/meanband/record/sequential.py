@@ -209,7 +209,8 @@ def collect(
             f"{held} trials; use trials.series('name') for it"
         )
     planned = planning_band(band, unit)
-    cap = DEFAULT_MAX_N if max_n is None else _whole(max_n, "max_n", 2)
+    cap = DEFAULT_MAX_N if max_n is None else settings.check_count(
+        _whole(max_n, "max_n", 2), "the call's argument max_n")
     if mode != UNTIL_DECIDED:
         earlier = None  # planned looks keep their own plan; a rerun starts it again
         if block is not None:

@@ -40,17 +40,35 @@ class Settings:
     overdue_calibration: str = defaults.OVERDUE_CALIBRATION
     #: A check whose test uncertainty ratio (tolerance / 2U) is below this gets a note.
     min_uncertainty_ratio: float = defaults.MIN_UNCERTAINTY_RATIO
+    #: The ceiling on any trial count asked for (n, a plan entry, max_n).
+    max_trials: int = defaults.MAX_TRIALS
 
     def merged(self, **overrides: Any) -> Settings:
         """A copy with the non-None ``overrides`` (call arguments), validated."""
         given = {k: v for k, v in overrides.items() if v is not None}
         for name, value in given.items():
             given[name] = validate(name, value, "the call's argument")
-        return replace(self, **given)
+        merged = replace(self, **given)
+        if "n" in given:
+            merged.check_count(given["n"], "the call's argument n")
+        return merged
+
+    def check_count(self, count: int, source: str, ceiling_source: str | None = None) -> int:
+        """``count`` when it is at most :attr:`max_trials`; else a SettingError naming ``source``
+        and how to raise the ceiling."""
+        if count > self.max_trials:
+            where = f", from {ceiling_source}" if ceiling_source else ""
+            raise SettingError(
+                f"{source}: {count:,} trials is above the ceiling of {self.max_trials:,} trials "
+                f"(max_trials{where}), which keeps a mistyped count from running without end; "
+                "lower the count, or raise the ceiling with --meanband-max-trials, ini "
+                "meanband_max_trials or @pytest.mark.meanband(max_trials=...)"
+            )
+        return count
 
     def to_dict(self) -> dict[str, Any]:
-        """Builtin types only."""
-        return {f.name: getattr(self, f.name) for f in fields(self)}
+        """Builtin types only; the ceiling is left out, as it does not shape the result."""
+        return {f.name: getattr(self, f.name) for f in fields(self) if f.name != "max_trials"}
 
 
 DEFAULTS = Settings()
@@ -71,6 +89,7 @@ def marker_settings(
     time_limit: float | str | None = None,
     overdue_calibration: str | None = None,
     min_uncertainty_ratio: float | None = None,
+    max_trials: int | None = None,
 ) -> dict[str, Any]:
     """The signature of ``@pytest.mark.meanband(...)``: a wrong keyword is a TypeError."""
     return {k: v for k, v in locals().items() if v is not None}
@@ -192,6 +211,7 @@ _VALIDATORS: dict[str, Callable[[Any], Any]] = {
     "time_limit": _seconds(zero_ok=False),
     "overdue_calibration": _choice("note", "fail"),
     "min_uncertainty_ratio": _positive,
+    "max_trials": _integer(2),
 }
 
 
@@ -209,11 +229,17 @@ def validate(name: str, value: Any, source: str) -> Any:
 def resolve(layers: Iterable[tuple[str, Mapping[str, Any]]]) -> Settings:
     """Settings from ``(source, values)`` layers listed from the highest precedence down.
 
-    Each value is validated with its source named in any error; the defaults fill the rest.
+    Each value is validated with its source named in any error; the defaults fill the rest. A
+    count above the ceiling (``max_trials``) is an error naming the layer the count came from.
     """
     chosen: dict[str, Any] = {}
+    sources: dict[str, str] = {}
     for source, values in layers:
         for name, value in values.items():
             if name not in chosen and value is not None:
                 chosen[name] = validate(name, value, source)
-    return replace(DEFAULTS, **chosen)
+                sources[name] = source
+    settings = replace(DEFAULTS, **chosen)
+    if "n" in sources:
+        settings.check_count(settings.n, sources["n"], sources.get("max_trials"))
+    return settings

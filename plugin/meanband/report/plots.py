@@ -159,12 +159,19 @@ def _figure(width: float, height: float) -> Any:
 
 
 def _save(figure: Any, stem: Path, formats: Sequence[str], dpi: int) -> list[Path]:
+    # Drawn into memory, then written atomically like the JSON report: a reader never sees half
+    # an image, and a link planted at the name is replaced, never written through.
+    import io
+
+    from meanband.store.atomic import write_atomic
+
     paths = []
     for fmt in formats:
         path = stem.with_name(f"{stem.name}.{fmt}")
-        figure.savefig(path, format=fmt, dpi=dpi,
+        image = io.BytesIO()
+        figure.savefig(image, format=fmt, dpi=dpi,
                        metadata={"Software": None} if fmt == "png" else {"Date": None})
-        paths.append(path)
+        paths.append(write_atomic(path, image.getvalue()))
     return paths
 
 

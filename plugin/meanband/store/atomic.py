@@ -13,6 +13,15 @@ def _umask() -> int:
     return mask
 
 
+def write_error_words(exc: BaseException) -> str:
+    """An OSError as words and the file it is about ("Not a directory: out/r.json; ..."), not
+    bare errno text; any other error as its message."""
+    if isinstance(exc, OSError) and exc.errno:
+        where = f": {exc.filename}" if exc.filename else ""
+        return f"{os.strerror(exc.errno)}{where}; choose a writable location"
+    return str(exc)
+
+
 def write_atomic(path: str | os.PathLike[str], data: bytes | str) -> Path:
     """Write ``data`` to ``path`` through a temporary file of a unique name in the same folder.
 

@@ -166,11 +166,19 @@ def write_plan(path: str | os.PathLike[str], entries: Iterable[PlanEntry], *,
     return target
 
 
-def read_plan(path: str | os.PathLike[str]) -> Plan:
-    """Read a plan file; a missing, unreadable or malformed file raises PlanError."""
+def read_plan(path: str | os.PathLike[str], *, max_bytes: int | None = None,
+              setting: str = "--meanband-max-read-bytes") -> Plan:
+    """Read a plan file; a missing, unreadable, malformed or too large file raises PlanError.
+
+    ``max_bytes`` defaults to ``defaults.MAX_READ_BYTES``; ``setting`` names what raises it.
+    """
+    from meanband.store.reading import ReadError, read_text
+
     source = str(path)
     try:
-        text = Path(path).read_text(encoding="utf-8")
+        text = read_text(path, max_bytes=max_bytes, setting=setting)
+    except ReadError as exc:
+        raise PlanError(f"plan file {exc}") from None
     except FileNotFoundError:
         raise PlanError(
             f"plan file {source} does not exist; write one with --meanband-write-plan PATH "
@@ -192,6 +200,9 @@ def loads_plan(text: str, *, source: str = "<plan>") -> Plan:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise PlanError(f"plan file {source} is not valid TOML: {exc}") from None
+    except RecursionError:
+        raise PlanError(f"plan file {source}: arrays or tables are nested too deeply to read; "
+                        "a plan is three levels deep: was the right file given?") from None
 
     def fail(message: str, needle: str | tuple[str, ...] | None = None,
              key: str | None = None) -> PlanError:

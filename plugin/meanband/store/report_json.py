@@ -28,6 +28,7 @@ __all__ = [
     "schema",
     "totals",
     "validate_report",
+    "validate_rows",
     "write_report",
 ]
 
@@ -189,23 +190,33 @@ def _refuse_constant(token: str) -> float:
 
 def loads(text: str, *, source: str = "<report>") -> dict[str, Any]:
     """Parse, validate and decode report text; its rows equal the rows that were written."""
+    from meanband.store.reading import ReadError, loads_json
+
     try:
-        document = json.loads(text, parse_constant=_refuse_constant)
+        document = loads_json(text, source=source, parse_constant=_refuse_constant)
+    except ReadError as exc:
+        raise ReportError(str(exc)) from None
     except ValueError as exc:
         raise ReportError(f"{source}: not a JSON report: {exc}") from exc
-    except RecursionError as exc:
-        raise ReportError(f"{source}: not a JSON report: its values are nested too deeply to "
-                          "read (a report is a few levels deep); was the right file given?") from exc
     validate_report(document, source=source)
     document["rows"] = decode_rows(document["rows"])
     return document  # type: ignore[no-any-return]
 
 
-def load_report(path: str | os.PathLike[str]) -> dict[str, Any]:
-    """Read a report file written by :func:`write_report` (or by a merge)."""
+def load_report(path: str | os.PathLike[str], *, max_bytes: int | None = None,
+                setting: str = "--max-bytes") -> dict[str, Any]:
+    """Read a report file written by :func:`write_report` (or by a merge).
+
+    Files larger than ``max_bytes`` (default ``defaults.MAX_READ_BYTES``) and paths that are
+    not regular files are refused before they are read; ``setting`` names what raises the limit.
+    """
+    from meanband.store.reading import ReadError, read_text
+
     source = os.fspath(path)
     try:
-        text = Path(path).read_text(encoding="utf-8")
+        text = read_text(path, max_bytes=max_bytes, setting=setting)
+    except ReadError as exc:
+        raise ReportError(str(exc)) from None
     except FileNotFoundError as exc:
         raise ReportError(f"{source}: no such report file") from exc
     except (OSError, UnicodeDecodeError) as exc:
@@ -275,6 +286,45 @@ def validate_report(document: Any, *, source: str = "<report>", full: bool = Fal
                 f"{source}: rows/{index} names run {row['run']} but the report has "
                 f"{run_count} run(s)"
             )
+
+
+def validate_rows(rows: Any, *, source: str = "<rows>") -> None:
+    """Check a plain list of result rows (as meanband's hooks see them) against the row schema.
+
+    Only a row's test id and kind, and a check's decision, are required. The first problem is
+    raised as :class:`ReportError` naming the row's index and the key, so a malformed row never
+    surfaces as a KeyError later.
+    """
+    import jsonschema
+
+    if not isinstance(rows, list):
+        raise ReportError(f"{source}: expected a list of result rows, got {type(rows).__name__}")
+    validator = jsonschema.Draft202012Validator(
+        _plain_row_schema(), format_checker=jsonschema.Draft202012Validator.FORMAT_CHECKER
+    )
+    for index, row in enumerate(rows):
+        if not isinstance(row, dict):
+            raise ReportError(f"{source}: row {index} is {type(row).__name__}, not an object")
+        _check_trials(row, index, source)
+        stripped = {k: ([] if k in _TRIAL_KEYS and isinstance(v, list) else v)
+                    for k, v in row.items()}
+        error = jsonschema.exceptions.best_match(validator.iter_errors(stripped))
+        if error is not None:
+            where = "/".join(str(part) for part in error.absolute_path)
+            key = f" at key {where}" if where else ""
+            raise ReportError(f"{source}: row {index}{key} is not a result row: {error.message}")
+
+
+@cache
+def _plain_row_schema() -> dict[str, Any]:
+    """The report's row schema, asking only for what a hand-written row must hold: its test id
+    and kind, and the decision of a check in full; every key present is still type-checked."""
+    import copy
+
+    definitions = copy.deepcopy(schema()["$defs"])
+    definitions["row"]["required"] = ["nodeid", "kind"]
+    definitions["settings"]["required"] = []
+    return {**definitions["row"], "$defs": definitions}
 
 
 def _check_trials(row: dict[str, Any], index: int, source: str) -> None:
