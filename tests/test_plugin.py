@@ -518,3 +518,15 @@ def test_pytest_help_works_with_the_plugin(run_suite):
     result = run_suite("--help")
     assert result.ret == 0
     result.stdout.fnmatch_lines(["*--meanband-max-increase*"])
+
+
+def test_pytest_markers_lists_the_marker_with_every_setting(run_suite):
+    import inspect
+
+    from meanband.record.settings import marker_settings
+
+    result = run_suite("--markers")
+    assert result.ret == 0
+    line = next(x for x in result.outlines if x.startswith("@pytest.mark.meanband("))
+    for name in inspect.signature(marker_settings).parameters:
+        assert f"{name}=" in line, name

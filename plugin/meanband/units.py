@@ -6,7 +6,7 @@ from __future__ import annotations
 import math
 import re
 
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 
 __all__ = [
     "SECONDS",
@@ -20,6 +20,7 @@ __all__ = [
     "significant_digits",
     "time_scale",
 ]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 #: The unit label of timing trials; values are seconds per call.
 SECONDS = "s"

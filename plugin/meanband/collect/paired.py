@@ -16,11 +16,12 @@ import numpy as np
 
 from meanband.collect.clock import get_clock
 from meanband.collect.timing import calibrate, quiet_gc, trial_ns
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.stats.ratio import side_blind_outliers
 from meanband.stats.sample import ArrayEquality
 
 __all__ = ["MAX_BATCH", "MIN_MEASUREMENT", "PairedTimes", "time_pairs"]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 #: Each timed measurement lasts at least this long (calls are batched to reach it), so the
 #: clock's resolution and the cost of reading it stay small next to what is measured.

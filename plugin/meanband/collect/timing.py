@@ -17,7 +17,7 @@ from typing import Any
 import numpy as np
 
 from meanband.collect.clock import Clock, ClockInfo, get_clock, measure
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.stats.diagnostics import DriftTest, drift_test
 from meanband.stats.sample import ArrayEquality
 from meanband.units import SECONDS, format_value, parse_duration
@@ -33,6 +33,7 @@ __all__ = [
     "time_calls",
     "trial_ns",
 ]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 #: A clock read: integer nanoseconds from a fixed origin.
 Reader = Callable[[], int]

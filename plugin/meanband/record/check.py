@@ -9,6 +9,7 @@ from typing import Any
 import numpy as np
 
 from meanband import defaults
+from meanband.errors import hide_plugin_frames
 from meanband.stats.bands import Band
 from meanband.stats.decision import Decision, decide
 from meanband.stats.decision_rules import DecisionRule, ProcessPrior
@@ -17,6 +18,7 @@ from meanband.stats.rules import GUARDED
 from meanband.stats.uncertainty import InstrumentSpec
 
 __all__ = ["decide_with_notes", "metrology_notes"]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 
 def decide_with_notes(

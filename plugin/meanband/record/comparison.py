@@ -12,11 +12,13 @@ import numpy as np
 from meanband import defaults
 from meanband.collect.clock import get_clock
 from meanband.collect.paired import time_pairs
+from meanband.errors import hide_plugin_frames
 from meanband.record.row import DecisionRecord, IntervalRecord, ResultRow, build_row
 from meanband.stats.ratio import RatioCheck, check_ratio
 from meanband.stats.verdict import Verdict
 
 __all__ = ["compare_callables"]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 
 def compare_callables(

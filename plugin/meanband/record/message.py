@@ -6,6 +6,7 @@ import math
 from collections.abc import Mapping, Sequence
 from typing import Any
 
+from meanband.errors import hide_plugin_frames
 from meanband.stats.decision import Decision
 from meanband.stats.verdict import Verdict
 from meanband.units import (
@@ -19,6 +20,7 @@ from meanband.units import (
 )
 
 __all__ = ["CAUTION", "budget_words", "describe", "gates_a_measurement", "rule_words"]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 #: What a passing gate on a measurement does and does not say; printed with every result that
 #: gates hardware (the summary, the Markdown and the JSON report).

@@ -10,7 +10,7 @@ import numpy as np
 
 from meanband.collect.clock import get_clock
 from meanband.collect.timing import time_calls
-from meanband.errors import BandViolation, TrialError
+from meanband.errors import BandViolation, TrialError, hide_plugin_frames
 from meanband.record import adaptive, sequential
 from meanband.record.check import decide_with_notes
 from meanband.record.message import describe
@@ -27,6 +27,7 @@ from meanband.stats.uncertainty import InstrumentSpec
 from meanband.units import SECONDS
 
 __all__ = ["Recorder", "Series"]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 class Series:
     """One named stream of trials in a test, with the checks made on it."""

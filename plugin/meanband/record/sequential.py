@@ -16,7 +16,7 @@ from typing import Any
 
 import numpy as np
 
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.record.adaptive import planning_band
 from meanband.record.settings import Settings
 from meanband.stats.bands import Band, Edge, Tolerance, make_band
@@ -28,6 +28,7 @@ from meanband.stats.sequential import DEFAULT_TIGHTEST_AT, StopDecision, stop_or
 from meanband.stats.verdict import Verdict
 
 __all__ = ["DEFAULT_MAX_N", "FIRST_LOOK", "UNTIL_DECIDED", "SequentialRun", "collect"]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 #: The value of ``n`` that asks for this mode.
 UNTIL_DECIDED = "until-decided"

@@ -8,9 +8,10 @@ from dataclasses import dataclass, fields, replace
 from typing import Any
 
 from meanband import defaults
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 
 __all__ = ["DEFAULTS", "SettingError", "Settings", "marker_settings", "resolve", "validate"]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 
 class SettingError(TrialError):

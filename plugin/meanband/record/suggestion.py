@@ -7,9 +7,11 @@ from collections.abc import Mapping
 from typing import Any
 
 from meanband import defaults
+from meanband.errors import hide_plugin_frames
 from meanband.stats.suggest import Suggestion, suggest_trials
 
 __all__ = ["suggestion_for_row", "trial_seconds"]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 
 def trial_seconds(row: Mapping[str, Any]) -> float | None:

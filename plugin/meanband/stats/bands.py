@@ -6,10 +6,11 @@ import math
 from dataclasses import dataclass
 from typing import Any
 
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.units import SECONDS, parse_duration
 
 __all__ = ["Band", "Edge", "Tolerance", "make_band"]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 Edge = float | int | str | None
 #: A tolerance: symmetric ``0.4``, or asymmetric ``(below, above)`` such as ``(0.3, 0.5)``.

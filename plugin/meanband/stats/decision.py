@@ -11,7 +11,7 @@ from typing import Any
 import numpy as np
 
 from meanband import defaults
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.stats.bands import Band
 from meanband.stats.decision_rules import (
     DecisionRule,
@@ -41,6 +41,7 @@ from meanband.stats.uncertainty import (
 from meanband.stats.verdict import Verdict
 
 __all__ = ["Decision", "decide", "edge_margin", "tolerance_uncertainty_ratio"]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 
 @dataclass(frozen=True, slots=True)

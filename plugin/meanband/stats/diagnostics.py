@@ -9,7 +9,7 @@ from typing import Any
 
 import numpy as np
 
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.stats.sample import as_sample, check_probability, deviations, sum_of_products
 
 __all__ = [
@@ -25,6 +25,7 @@ __all__ = [
     "lag1_autocorrelation",
     "tukey_fences",
 ]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 #: Largest n for which scipy's Shapiro-Wilk (Royston 1995, AS R94) gives an accurate p-value.
 SHAPIRO_MAX_N = 5000

@@ -6,6 +6,7 @@ import math
 from collections.abc import Collection
 from statistics import NormalDist
 
+from meanband.errors import hide_plugin_frames
 from meanband.stats.diagnostics import BIMODAL_THRESHOLD, Diagnostics
 
 __all__ = [
@@ -18,6 +19,7 @@ __all__ = [
     "lognormal_skewness",
     "trials_for_skewness",
 ]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 
 #: Codes of the notes that :func:`assumption_notes` writes (a pool of runs recomputes them).

@@ -11,7 +11,7 @@ from typing import Any
 import numpy as np
 
 from meanband import defaults
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.stats.sample import as_sample, check_confidence, location_scale
 from meanband.stats.verdict import Verdict
 
@@ -29,6 +29,7 @@ __all__ = [
     "ratio_interval",
     "side_blind_outliers",
 ]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 #: A measurement longer than this many times its side's median is a candidate interruption
 #: (a descheduling costs a time slice, milliseconds, against measurements of tens of µs).

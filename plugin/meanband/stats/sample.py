@@ -9,7 +9,7 @@ from collections.abc import Iterable, Mapping, Sequence
 
 import numpy as np
 
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 
 __all__ = [
     "ArrayEquality",
@@ -20,6 +20,7 @@ __all__ = [
     "location_scale",
     "sum_of_products",
 ]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 _MAX_LISTED_POSITIONS = 8
 

@@ -7,7 +7,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from meanband import defaults
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.stats.planning import power_against_edge, power_inside_band, trials_needed
 from meanband.stats.sample import check_confidence, check_probability
 from meanband.stats.verdict import Verdict
@@ -20,6 +20,7 @@ __all__ = [
     "check_power",
     "suggest_trials",
 ]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 #: Power asked of a suggested count unless the settings say otherwise.
 DEFAULT_POWER = defaults.POWER
