@@ -179,7 +179,7 @@ def test_both_forms(trials):
 
 def test_string_edge_on_non_timing(trials):
     trials.extend([1.0, 2.0, 3.0], unit="V")
-    with pytest.raises(TrialError, match="needs timing trials"):
+    with pytest.raises(TrialError, match="needs trials in a time unit"):
         trials.check(high="3ms")
 """)
     run_suite().assert_outcomes(passed=4)
@@ -283,7 +283,7 @@ def test_fine(trials):
     result.assert_outcomes(passed=1, errors=2)
     text = result.stdout.str()
     assert "marker @pytest.mark.meanband on test_m.py::test_typo" in text
-    assert "unexpected keyword argument 'trials'" in text
+    assert "unknown meanband setting 'trials'; the settings are n, confidence, warmup," in text
     assert "bad value 2 for confidence" in text
 
 

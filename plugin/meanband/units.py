@@ -10,6 +10,7 @@ from meanband.errors import TrialError, hide_plugin_frames
 
 __all__ = [
     "SECONDS",
+    "duration_scale",
     "format_band",
     "format_bound",
     "format_df",
@@ -17,6 +18,7 @@ __all__ = [
     "format_probability",
     "format_value",
     "parse_duration",
+    "read_fraction",
     "significant_digits",
     "time_scale",
 ]
@@ -45,6 +47,33 @@ def parse_duration(text: str) -> float:
             "ns, us (or µs), ms, s, e.g. '250us' or '3ms'"
         )
     return float(match.group(1)) * _DURATION_SCALE[match.group(2)]
+
+
+_FRACTION = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(%?)\s*$")
+
+
+def read_fraction(value: object, what: str) -> tuple[float, bool]:
+    """A fraction written ``0.05`` or ``"5%"`` (or ``"0.05"``), and whether it was a percentage.
+
+    The one reader of levels, powers and relative amounts, so each accepts both spellings.
+    """
+    if isinstance(value, bool):
+        raise TrialError(f"{what} must be a number such as 0.05 or '5%', got {value!r}")
+    if isinstance(value, str):
+        match = _FRACTION.match(value)
+        if not match:
+            raise TrialError(f"cannot read {what}={value!r} as a number; write e.g. 0.05 or '5%'")
+        number = float(match.group(1))
+        return (number / 100.0, True) if match.group(2) else (number, False)
+    try:
+        return float(value), False  # type: ignore[arg-type]
+    except (TypeError, ValueError):
+        raise TrialError(f"{what} must be a number such as 0.05 or '5%', got {value!r}") from None
+
+
+def duration_scale(unit: str | None) -> float | None:
+    """Seconds per ``unit`` when it is a time unit (``"ms"`` gives 0.001), else None."""
+    return None if unit is None else _DURATION_SCALE.get(unit)
 
 
 def format_number(value: float, digits: int = 4) -> str:

@@ -10,7 +10,13 @@ import pytest
 
 from meanband import defaults
 from meanband.plugin.options import ini_value, option_value
-from meanband.record.settings import SettingError, marker_settings, resolve, validate
+from meanband.record.settings import (
+    SettingError,
+    marker_settings,
+    resolve,
+    unknown_setting_names,
+    validate,
+)
 
 if TYPE_CHECKING:
     from meanband.record.recorder import Recorder
@@ -111,10 +117,10 @@ def trials(request: pytest.FixtureRequest) -> Recorder:
         where = f"marker @pytest.mark.meanband on {item.nodeid}"
         if marker.args:
             raise SettingError(f"{where}: give settings as keywords, e.g. meanband(n=40)")
-        try:
-            layers.insert(0, (where, marker_settings(**marker.kwargs)))
-        except TypeError as exc:
-            raise SettingError(f"{where}: {exc}") from None
+        unknown = unknown_setting_names(marker.kwargs)
+        if unknown:
+            raise SettingError(f"{where}: {unknown}")
+        layers.insert(0, (where, marker_settings(**marker.kwargs)))
     plan = dict(config.hook.pytest_meanband_item_settings(item=item) or {})
     series_plans = plan.pop("series", None) or {}
     tail: list[tuple[str, dict[str, Any]]] = config.stash[CONFIG_LAYERS_KEY]

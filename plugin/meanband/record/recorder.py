@@ -24,7 +24,7 @@ from meanband.stats.methods import mean_interval
 from meanband.stats.rules import GUARDED
 from meanband.stats.sample import as_sample
 from meanband.stats.uncertainty import InstrumentSpec
-from meanband.units import SECONDS
+from meanband.units import SECONDS, duration_scale
 
 __all__ = ["Recorder", "Series"]
 __tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
@@ -249,10 +249,12 @@ class Series:
     def extend(self, values: Iterable[float] | np.ndarray, *, unit: str | None = None) -> None:
         """Record values measured elsewhere; nothing is recorded if any value is bad."""
         clean = as_sample(values, minimum=0)
-        if (unit if unit is not None else self.unit) == "s" and clean.size and clean.min() < 0:
+        time_unit = unit if unit is not None else self.unit
+        if duration_scale(time_unit) is not None and clean.size and clean.min() < 0:
             bad = int(np.count_nonzero(clean < 0))
             raise TrialError(
-                f"{bad} of {clean.size} timings are negative (smallest {clean.min():.4g} s); a "
+                f"{bad} of {clean.size} timings are negative (smallest {clean.min():.4g} "
+                f"{time_unit}); a "
                 "duration cannot be below zero, so the clock or the subtraction that made them "
                 "is wrong: fix it before checking a budget"
             )
