@@ -211,7 +211,7 @@ def test_trials_compare_in_a_suite(pytester: pytest.Pytester, run_suite, workers
     ])
     result.stdout.fnmatch_lines(["*TrialError: a comparison needs a limit*"])
     result.stdout.re_match_lines([
-        r"test_parsers.py::test_v1_faster \[parse_v1 / parse_v2\]\s+60\s+0\.\d+ x\s+\[.*\]\s+"
+        r"test_parsers.py::test_v1_faster \[parse_v1 / parse_v2\]\s+60\s+0\.\d+ x\s+\[.*\] x\s+"
         r"95% paired-fieller \(time ratio\)\s+<= 0\.98 x\s+PASS",
         r"test_parsers.py::test_v2_not_slower \[parse_v2 / parse_v1\]\s+60\s+1\.\d+ x .* FAIL",
     ])

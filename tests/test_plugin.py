@@ -337,7 +337,7 @@ def test_summary_rows_notes_suggestions_and_unchecked(run_suite, pytester):
     assert result.ret == 0
     block = "\n".join(_summary_block(result))
     assert "meanband: 5 checks: 3 PASS, 1 FAIL, 1 UNDECIDED; 1 recorded but never checked; 2 notes" in block
-    assert re.search(r"test_rows.py::test_pass\s+30\s+85\.0\d* degC\s+\[.*\]\s+95%\s+\[84.6 degC, 85.4 degC\]\s+PASS", block)
+    assert re.search(r"test_rows.py::test_pass\s+30\s+85\.0\d* degC\s+\[.*\] degC\s+95%\s+\[84.6, 85.4\] degC\s+PASS", block)
     assert re.search(r"test_rows.py::test_two_series \[cold\]\s+30 .*<= 85.3 degC\s+PASS", block)
     assert "notes:" in block
     assert "test_rows.py::test_undecided: only 8 trials (fewer than 10)" in block

@@ -15,6 +15,7 @@ __all__ = [
     "format_bound",
     "format_df",
     "format_number",
+    "format_pair",
     "format_probability",
     "format_value",
     "parse_duration",
@@ -143,18 +144,36 @@ def format_bound(value: float, unit: str | None, digits: int = 4, *, scale: floa
     return format_value(value, unit, digits, scale=scale)
 
 
-def format_band(low: float, high: float, unit: str | None, digits: int = 4) -> str:
-    """A band as a user wrote it: ``<= 3 ms``, ``>= 10 V`` or ``[84.6, 85.4] degC``; timing
-    edges get a time unit of their own, so a 3 ms budget never shows as 3000 µs."""
+def format_band(
+    low: float, high: float, unit: str | None, digits: int = 4, *, unit_once: bool = False
+) -> str:
+    """A band as a user wrote it: ``<= 3 ms``, ``>= 10 V`` or ``[84.6 degC, 85.4 degC]``; timing
+    edges get a time unit of their own, so a 3 ms budget never shows as 3000 µs. ``unit_once``
+    writes a shared unit once, after the brackets: ``[84.6, 85.4] degC``."""
 
     def fmt(value: float) -> str:
         return format_value(value, unit, digits, trim=True)
 
     if math.isfinite(low) and math.isfinite(high):
-        return f"[{fmt(low)}, {fmt(high)}]"
+        return format_pair(fmt(low), fmt(high), unit_once=unit_once)
     if math.isfinite(high):
         return f"<= {fmt(high)}"
     return f">= {fmt(low)}"
+
+
+def format_pair(low: str, high: str, *, unit_once: bool = True) -> str:
+    """Two values with units as an interval; with ``unit_once``, a unit they share is written
+    once after the brackets (``[1.2, 3.4] ms``), else it stays with each value."""
+    if unit_once:
+        for label in sorted(_unit_endings(low), key=len, reverse=True):
+            if high.endswith(label):
+                return f"[{low.removesuffix(label)}, {high.removesuffix(label)}]{label}"
+    return f"[{low}, {high}]"
+
+
+def _unit_endings(text: str) -> list[str]:
+    """Every ending `` <unit>`` that ``text`` (a number, a space, a unit) may have."""
+    return [text[i:] for i, char in enumerate(text) if char == " "]
 
 
 def format_probability(p: float) -> str:

@@ -222,13 +222,15 @@ class SummaryPlugin:
 
     def pytest_terminal_summary(self, terminalreporter: pytest.TerminalReporter) -> None:
         from meanband.plugin.isolation import call_isolated, failures, settle_exit_status
+        from meanband.report.tables import fit_lines
 
         lines: list[str] = []
         verbosity = self.config.get_verbosity()
+        width = self.config.get_terminal_writer().fullwidth
         try:
             from meanband.report.terminal import format_summary
 
-            lines = format_summary(self.rows, verbosity)
+            lines = format_summary(self.rows, verbosity, width)
         except Exception as exc:  # the test results above must stay readable
             failures(self.config).add("printing the meanband summary",
                                       f"{type(exc).__name__}: {exc}")
@@ -236,7 +238,7 @@ class SummaryPlugin:
         # through one hook; everything that rows alone say is in format_summary.
         for extra in call_isolated(self.config, "pytest_meanband_summary_lines",
                                    {"config": self.config, "rows": self.rows}):
-            lines.extend(extra or ())
+            lines.extend(fit_lines(list(extra or ()), width))
         errors = failures(self.config).lines
         if self.session is not None:
             settle_exit_status(self.session)  # a summary hook may have failed just now
