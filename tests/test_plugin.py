@@ -371,9 +371,9 @@ def test_trend(trials):
 
 def test_skewed(trials):
     trials.extend(SKEWED)
-    trials.check(high=1e6)
+    trials.check(high=2.5)  # passes, but not by so much that the data's shape cannot matter
 """))
-    result = run_suite()
+    result = run_suite("-v")  # the trend passes far inside its budget: its note shows at -v
     result.stdout.fnmatch_lines([
         "*test_notes.py::test_skewed: normality matters here: skewness G1 = *",
         "*test_notes.py::test_trend: trials autocorrelated: lag-1 r = 0.*, effective n about *",

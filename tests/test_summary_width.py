@@ -39,7 +39,7 @@ def test_regulator_rail_under_full_load_stays_inside_its_window(trials):
 @pytest.mark.parametrize("route", ["harbour-north-terminal", "airport-express"])
 def test_fare_quote_for_a_long_route_name_stays_in_budget(trials, route):
     trials.extend(SKEWED, unit="s")
-    trials.check(high="20ms")
+    trials.check(high="2.2ms")
 '''
 
 

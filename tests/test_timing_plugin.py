@@ -274,7 +274,8 @@ def test_throttling(trials, fake):
     calls = itertools.count()
     noise = iter(__import__("numpy").random.default_rng(5).normal(0, 5_000, 1000).astype(int))
     trials.time(lambda: fake.work(200_000 + 2_000 * next(calls) + int(next(noise)))())
-"""
+""",
+        "-v",  # notes on trials never checked show at -v
     )
     assert "drift" in codes(one(rows, "test_throttling"))
     result.stdout.fnmatch_lines(["*test_throttling*trials trend upward*Mann-Kendall*"])
@@ -338,6 +339,7 @@ def test_b(trials, fake):
 """,
         "-n",
         "2",
+        "-v",  # notes on trials never checked show at -v
     )
     assert result.ret == 0
     for name in ("test_a", "test_b"):

@@ -11,13 +11,13 @@ import numpy as np
 from meanband import defaults
 from meanband.errors import hide_plugin_frames
 from meanband.stats.bands import Band
-from meanband.stats.decision import Decision, decide
+from meanband.stats.decision import WIDE_MARGIN, Decision, decide, headroom
 from meanband.stats.decision_rules import DecisionRule, ProcessPrior
 from meanband.stats.notes import assumption_notes
 from meanband.stats.rules import GUARDED
 from meanband.stats.uncertainty import InstrumentSpec
 
-__all__ = ["decide_with_notes", "metrology_notes"]
+__all__ = ["SHAPE_NOTES", "decide_with_notes", "metrology_notes"]
 __tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 
@@ -54,7 +54,20 @@ def decide_with_notes(
         decision, today=today,
         min_ratio=setting("min_uncertainty_ratio", defaults.MIN_UNCERTAINTY_RATIO),
     ))
+    if decision.passed and _wide_margin(decision):
+        # The shape of the data cannot change this verdict: nothing to say about normality.
+        notes = [note for note in notes if note["code"] not in SHAPE_NOTES]
     return decision, notes
+
+
+#: Notes on the shape of the data (normality, and the outliers that make a skew): left out of
+#: a check that passes with a wide margin (``WIDE_MARGIN``), which no shape of them could change.
+SHAPE_NOTES = frozenset({"not-normal", "not-normal-harmless", "log-not-normal", "outliers"})
+
+
+def _wide_margin(decision: Decision) -> bool:
+    iv, band = decision.interval, decision.band
+    return headroom(iv.mean, iv.low, iv.high, band.low, band.high) >= WIDE_MARGIN
 
 
 def metrology_notes(

@@ -9,6 +9,7 @@ from typing import Any
 
 from meanband import defaults
 from meanband.record.row import ResultRow
+from meanband.report.attention import threatens_verdict
 from meanband.report.baseline import baseline_lines
 from meanband.report.metrology import caution_lines, metrology_lines
 from meanband.report.rows import row_name, sorted_rows
@@ -74,7 +75,7 @@ def format_summary(
     if checks:
         lines.append("")
         lines.extend(_table([_cells(r) for r in checks], verbosity=verbosity, width=width))
-    lines.extend(_notes(rows, width))
+    lines.extend(_notes(rows, width, verbosity))
     lines.extend(_suggestions(checks, width))
     lines.extend(_unchecked(rows, width))
     for section in ROW_SECTIONS:
@@ -160,17 +161,24 @@ def _name(row: Row, width: int | None) -> str:
     return name if width is None else shorten_left(name, max(width // 2, MIN_NAME))
 
 
-def _notes(rows: Sequence[Row], width: int | None = None) -> list[str]:
-    """One line per note, ``name: text``; when those lines do not fit ``width``, each test id
-    once on a line of its own with its notes indented below it, so a note wraps under itself."""
-    out = [f"  {row_name(r)}: {note['text']}" for r in rows for note in r.get("notes") or ()]
+def _notes(rows: Sequence[Row], width: int | None = None, verbosity: int = 0) -> list[str]:
+    """The notes that could change a verdict (every note at ``-v``), then one line counting
+    the rest: one line per note, ``name: text``; when those lines do not fit ``width``, each
+    test id once on a line of its own with its notes indented below it."""
+    chosen = [(r, [n for n in r.get("notes") or () if verbosity > 0 or threatens_verdict(r, n)])
+              for r in rows]
+    hidden = sum(len(r.get("notes") or ()) for r in rows) - sum(len(n) for _, n in chosen)
+    out = [f"  {row_name(r)}: {note['text']}" for r, notes in chosen for note in notes]
     if width is not None and any(len(line) > width for line in out):
         out = []
-        for row in rows:
-            notes = row.get("notes") or ()
+        for row, notes in chosen:
             if notes:
                 out.append(f"  {shorten_left(row_name(row), width - 2)}")
                 out.extend(f"    - {note['text']}" for note in notes)
+    if hidden:
+        out.append(f"  ({hidden} more note{'s' if hidden != 1 else ''} on checks that pass with "
+                   "room to spare or were never checked: -v shows them, the JSON report has "
+                   "all)")
     return ["", "notes:", *out] if out else []
 
 

@@ -1,0 +1,110 @@
+"""Notes ranked by whether they threaten the verdict: the summary shows those, counts the rest."""
+
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+import pytest
+from meanband import make_band, mean_interval
+from meanband.record.check import decide_with_notes
+from meanband.report.attention import threatens_verdict
+from meanband.stats.decision import WIDE_MARGIN, headroom
+
+RNG = np.random.default_rng(20261204)
+SKEWED = RNG.lognormal(0.0, 1.0, 40)
+
+
+def _ar1(n: int, phi: float) -> np.ndarray:
+    e = RNG.standard_normal(n)
+    x = np.empty(n)
+    x[0] = e[0]
+    for i in range(1, n):
+        x[i] = phi * x[i - 1] + e[i]
+    return 10.0 + x
+
+
+CORRELATED = _ar1(60, 0.8)
+
+
+def test_headroom_by_hand() -> None:
+    # Worked by hand: mean 10, upper bound 11 (reach 1), budget 13: room 3, headroom 3.
+    assert headroom(10.0, -math.inf, 11.0, -math.inf, 13.0) == pytest.approx(3.0)
+    # Two-sided: the nearer edge decides; reach 0.5 each side, rooms 2 and 1 -> 2.
+    assert headroom(10.0, 9.5, 10.5, 9.0, 12.0) == pytest.approx(2.0)
+    # Across the edge: below 1.
+    assert headroom(10.0, -math.inf, 11.0, -math.inf, 10.5) == pytest.approx(0.5)
+    assert headroom(10.0, 10.0, 10.0, 9.0, 11.0) == math.inf  # a point interval inside
+
+
+def _bound(x: np.ndarray) -> tuple[float, float]:
+    iv = mean_interval(x, 0.95, "upper")
+    return iv.mean, iv.high
+
+
+def test_a_wide_margin_pass_gets_no_normality_note() -> None:
+    # Before: "normality matters here" fired on checks that passed 3-10x inside the budget.
+    mean, high = _bound(SKEWED)
+    reach = high - mean
+    settings = {"confidence": 0.95}
+    _, tight = decide_with_notes(SKEWED, make_band(high=mean + 1.5 * reach), settings)
+    _, wide = decide_with_notes(SKEWED, make_band(high=mean + 10 * reach), settings)
+    assert "not-normal" in {n["code"] for n in tight}
+    assert not {"not-normal", "outliers"} & {n["code"] for n in wide}
+
+
+def _row(verdict: str, mean: float, high: float, budget: float, code: str) -> dict:
+    return {"decision": {"verdict": verdict,
+                         "interval": {"mean": mean, "low": -math.inf, "high": high},
+                         "band": {"low": -math.inf, "high": budget}},
+            "notes": [{"code": code, "text": "x"}]}
+
+
+@pytest.mark.parametrize(
+    ("verdict", "budget", "code", "shown"),
+    [("PASS", 10.0 + 1.0 * (WIDE_MARGIN + 1), "autocorrelated", False),
+     ("PASS", 10.0 + 1.0 * (WIDE_MARGIN - 1), "autocorrelated", True),
+     ("PASS", 100.0, "calibration-overdue", True),
+     ("UNDECIDED", 10.5, "xdist-worker", True),
+     ("FAIL", 9.0, "drift", True)],
+)
+def test_which_notes_threaten(verdict, budget, code, shown) -> None:
+    row = _row(verdict, 10.0, 11.0, budget, code)
+    assert threatens_verdict(row, row["notes"][0]) is shown
+    unchecked = {"kind": "unchecked", "notes": row["notes"]}
+    assert threatens_verdict(unchecked, row["notes"][0]) is (code == "calibration-overdue")
+
+
+SUITE = """
+CORRELATED = {data!r}
+
+
+def test_wide(trials):
+    trials.extend(CORRELATED, unit="V")
+    trials.check(high=100.0)
+
+
+def test_tight(trials):
+    trials.extend(CORRELATED, unit="V")
+    trials.check(high={tight!r})
+"""
+
+
+def test_summary_shows_threatening_notes_and_counts_the_rest(run_suite, pytester, tmp_path) -> None:
+    # Before: every note of every check was printed, drowning the verdicts.
+    mean, high = _bound(CORRELATED)
+    pytester.makepyfile(test_notes=SUITE.format(data=CORRELATED.tolist(),
+                                                tight=mean + 1.5 * (high - mean)))
+    report = tmp_path / "all.json"
+    result = run_suite(f"--meanband-report={report}")
+    result.assert_outcomes(passed=2)
+    text = result.stdout.str()
+    assert "test_notes.py::test_tight: trials autocorrelated" in text
+    assert "test_notes.py::test_wide: trials autocorrelated" not in text
+    result.stdout.fnmatch_lines(["*(2 more notes on checks that pass with room to spare*-v shows them*"])
+    rows = {r["nodeid"].split("::")[1]: r for r in json.loads(report.read_text())["rows"]}
+    assert "autocorrelated" in {n["code"] for n in rows["test_wide"]["notes"]}  # JSON: all
+    verbose = run_suite("-v").stdout.str()
+    assert "test_notes.py::test_wide: trials autocorrelated" in verbose
+    assert "more note" not in verbose
