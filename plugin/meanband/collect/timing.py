@@ -541,17 +541,16 @@ def _notes(
             )
         )
     if drift is not None and drift.rejects(drift_alpha):
+        from meanband.stats.notes import drift_words
+
         direction = "upward (slowing)" if drift.statistic > 0 else "downward (speeding up)"
-        level = _median(values)
-        relative = drift.change / level if level > 0 else math.nan
-        change = f"{relative:+.1%}" if math.isfinite(relative) else "n/a"
         notes.append(
             Note(
                 "drift",
-                f"trials trend {direction} across the run ({drift.method} tau="
-                f"{drift.statistic:.2f}, p={drift.pvalue:.2g}; first to last trial {change}): "
-                "warm-up too short, "
-                "a throttling CPU or a busy neighbour; the t interval assumes independent trials",
+                f"trials trend {direction} across the run: {drift_words(drift, SECONDS)} "
+                f"({drift.method} tau={drift.statistic:.2f}, p={drift.pvalue:.2g}): warm-up too "
+                "short, a throttling CPU or a busy neighbour; the t interval assumes independent "
+                "trials",
             )
         )
     if math.isfinite(trial_ns) and info.resolution_ns > COARSE_STEP_SHARE * trial_ns:

@@ -102,7 +102,8 @@ class AdaptiveRun:
             self.run.pilot, self.run.second, self.band, plan, alpha=settings.normality_alpha
         )
         notes = assumption_notes(
-            decision.diagnostics, min_n=settings.min_n, normality_alpha=settings.normality_alpha
+            decision.diagnostics, min_n=settings.min_n, normality_alpha=settings.normality_alpha,
+            unit=self.band.unit,
         )
         notes.append({"code": "two-stage-capped" if plan.capped else "two-stage",
                       "text": plan.note()})

@@ -49,6 +49,7 @@ def assert_mean_within(
         instrument_uncertainty=instrument_uncertainty, rule=rule, process=process,
     )
     if not decision.passed:
-        raise BandViolation(describe(decision, notes=assumption_notes(decision.diagnostics, method=method)),
+        raise BandViolation(describe(decision, notes=assumption_notes(
+            decision.diagnostics, method=method, unit=unit)),
                             decision)
     return decision

@@ -12,7 +12,7 @@ from meanband.collect.clock import get_clock
 from meanband.collect.timing import time_calls
 from meanband.errors import BandViolation, TrialError, hide_plugin_frames
 from meanband.record import adaptive, sequential
-from meanband.record.check import decide_with_notes
+from meanband.record.check import decide_with_notes, drop_immaterial_drift
 from meanband.record.message import describe
 from meanband.record.row import ResultRow, build_row
 from meanband.record.settings import Settings
@@ -368,6 +368,7 @@ class Series:
             )
             notes = self._timing_notes + notes
             recorded = settings.to_dict()
+        notes = drop_immaterial_drift(notes, decision)
         row = self._row(recorded, decision, notes, **extra)
         self._rows.append(row)
         overdue = [note for note in notes if note["code"] == "calibration-overdue"]

@@ -107,7 +107,7 @@ class SequentialRun(ArrayEquality):
             diagnostics, None, self.band.unit, power=settings.power,
         )
         notes = assumption_notes(diagnostics, min_n=settings.min_n,
-                                 normality_alpha=settings.normality_alpha)
+                                 normality_alpha=settings.normality_alpha, unit=self.band.unit)
         notes.append(self.note())
         return decision, notes, {"sequential": self.record()}
 
