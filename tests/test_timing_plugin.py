@@ -423,7 +423,8 @@ def test_verbose_timing_lines_skip_rows_timed_elsewhere(suite) -> None:
         """
 def test_mixed(trials, fake):
     trials.series("engine").time(fake.work(25_000), n=3)
-    trials.compare(lambda: sum(range(50)), lambda: sum(range(50)), at_most=10.0, n=4, seed=1)
+    trials.compare(lambda: sum(range(50)), lambda: sum(range(50)), at_most=10.0, n=4, seed=1,
+                   name="sum / sum")
 """,
         "-v",
     )

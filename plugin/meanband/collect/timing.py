@@ -25,7 +25,9 @@ from meanband.units import SECONDS, format_value, parse_duration
 __all__ = [
     "DEFAULT_MIN_TRIAL_TIME",
     "Note",
+    "SetupRunner",
     "Timing",
+    "bind_call",
     "calibrate",
     "default_min_trial_time",
     "parse_warmup",
@@ -224,7 +226,7 @@ def time_calls(
         min_trial_time = default_min_trial_time(info)
     read = the_clock.read
     bound = _bind(fn, args, kwargs)
-    runner = _SetupRunner(fn, tuple(args), dict(kwargs or {}), setup) if setup else None
+    runner = SetupRunner(fn, tuple(args), dict(kwargs or {}), setup) if setup else None
 
     start = read()
     deadline = None if time_limit is None else start + int(time_limit * 1e9)
@@ -302,18 +304,33 @@ def quiet_gc(keep_enabled: bool = False) -> Iterator[None]:
             gc.enable()
 
 
-def trial_ns(call: Callable[[], Any], k: int, read: Callable[[], int]) -> int:
-    """Nanoseconds of one trial: ``k`` calls of ``call`` between two clock reads."""
-    return _one(call, None, k, read)
+def trial_ns(
+    call: Callable[[], Any], k: int, read: Callable[[], int], runner: SetupRunner | None = None
+) -> int:
+    """Nanoseconds of one trial: ``k`` calls of ``call`` between two clock reads (with a
+    ``runner``, its setup runs for each call before the clock starts)."""
+    return _one(call, runner, k, read)
 
 
 def calibrate(
     call: Callable[[], Any], read: Callable[[], int], target_ns: float, *,
-    max_loops: int = MAX_LOOPS,
+    max_loops: int = MAX_LOOPS, runner: SetupRunner | None = None,
 ) -> int:
     """Calls per trial so that a trial of ``call`` lasts at least ``target_ns``, at most
     ``max_loops`` (default ``MAX_LOOPS``; the engine's own calibration, see :func:`time_calls`)."""
-    return _calibrate(call, None, read, target_ns, None, max_loops)[0]
+    return _calibrate(call, runner, read, target_ns, None, max_loops)[0]
+
+
+def bind_call(
+    fn: Callable[..., Any], args: Sequence[Any] = (), kwargs: Mapping[str, Any] | None = None,
+    setup: Callable[[], Any] | None = None,
+) -> tuple[Callable[[], Any], SetupRunner | None]:
+    """``fn`` bound to its arguments, and the runner of its per-call ``setup`` (None without),
+    as :func:`trial_ns` and :func:`calibrate` take them."""
+    if setup is not None and not callable(setup):
+        raise TrialError(f"setup={setup!r} is not callable; pass a function that returns the input")
+    runner = SetupRunner(fn, tuple(args), dict(kwargs or {}), setup) if setup else None
+    return _bind(fn, args, kwargs), runner
 
 
 def _bind(
@@ -377,7 +394,7 @@ def _drift(values: np.ndarray) -> DriftTest | None:
     return drift_test(points)
 
 
-class _SetupRunner:
+class SetupRunner:
     """Trials with a per-call setup, run before the trial's clock starts."""
 
     def __init__(
@@ -435,7 +452,7 @@ def _durations(count: int) -> array[int]:
     return array("q", bytes(8 * count))
 
 
-def _one(call: Callable[[], Any], runner: _SetupRunner | None, k: int, read: Reader) -> int:
+def _one(call: Callable[[], Any], runner: SetupRunner | None, k: int, read: Reader) -> int:
     buffer = _durations(1)
     if runner is not None:
         runner.run(k, buffer, 0, 1, read, None)
@@ -445,7 +462,7 @@ def _one(call: Callable[[], Any], runner: _SetupRunner | None, k: int, read: Rea
 
 
 def _calibrate(
-    call: Callable[[], Any], runner: _SetupRunner | None, read: Reader, target_ns: float,
+    call: Callable[[], Any], runner: SetupRunner | None, read: Reader, target_ns: float,
     deadline: int | None, max_loops: int | None = None,
 ) -> tuple[int, list[tuple[int, int]]]:
     """Smallest k found (growing geometrically) whose trial lasts ``target_ns``.
@@ -472,7 +489,7 @@ def _calibrate(
 
 
 def _warm_up(
-    call: Callable[[], Any], runner: _SetupRunner | None, k: int, read: Reader, count: int,
+    call: Callable[[], Any], runner: SetupRunner | None, k: int, read: Reader, count: int,
     seconds: float, deadline: int | None,
 ) -> list[int]:
     warm: list[int] = []

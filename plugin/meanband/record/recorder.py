@@ -449,9 +449,9 @@ class Recorder(Series):
 
     def compare(
         self,
-        new: Callable[[], Any],
-        old: Callable[[], Any],
-        *,
+        new: Callable[..., Any],
+        old: Callable[..., Any],
+        *args: Any,
         at_most: float | None = None,
         at_least: float | None = None,
         n: int | None = None,
@@ -460,10 +460,16 @@ class Recorder(Series):
         warmup: int = 2,
         seed: int | None = None,
         name: str | None = None,
+        setup: Callable[[], Any] | None = None,
+        **kwargs: Any,
     ) -> Any:
-        """Time ``new`` and ``old`` in interleaved pairs (random order within each pair) and
-        pass only if the interval of the time ratio new/old lies inside the limits, e.g.
-        ``trials.compare(parse_v2, parse_v1, at_most=1.05)``: "v2 is at most 5% slower".
+        """Time ``new(*args, **kwargs)`` and ``old(*args, **kwargs)`` in interleaved pairs
+        (random order within each pair) and pass only if the interval of the time ratio new/old
+        lies inside the limits, e.g. ``trials.compare(parse_v2, parse_v1, LINE, at_most=1.05)``:
+        "v2 is at most 5% slower on LINE". ``setup`` runs before every call, outside the timed
+        region, and a value it returns (not None) is passed as the first argument, as in
+        :meth:`time`. The row is named ``new / old`` from the callables; a lambda has no name,
+        so give ``name=``.
 
         Drift of the machine hits both sides of a pair alike and cancels in the ratio, which
         makes this the robust gate on a noisy CI machine (see ``meanband.collect.paired``).
@@ -474,7 +480,7 @@ class Recorder(Series):
         result, row, message = compare_callables(
             new, old, n=settings.n, at_most=at_most, at_least=at_least,
             confidence=settings.confidence, power=settings.power, repeats=repeats, warmup=warmup,
-            seed=seed, clock=settings.clock,
+            seed=seed, clock=settings.clock, args=args, kwargs=kwargs, setup=setup,
             name=name, nodeid=self.nodeid, settings=settings.to_dict(),
         )
         self._comparisons.append(row)
