@@ -484,3 +484,34 @@ def test_auto_limited(trials, fake):
     assert len(row["values"]) >= 8
     result.assert_outcomes(passed=1, failed=1)
     result.stdout.fnmatch_lines(["*the time limit stopped n='auto' after 2 of the 10 trials*"])
+
+
+PROGRESS_SUITE = """
+@pytest.mark.meanband(n=40, min_trial_time=0)
+def test_slow_call(trials, fake):
+    print("from the test")
+    trials.time(fake.work(250_000_000))  # 0.25 s a call on the fake clock: 10 s of trials
+
+@pytest.mark.meanband(n=5, min_trial_time=0)
+def test_quick_call(trials, fake):
+    trials.time(fake.work(1_000_000))
+"""
+
+
+def test_a_long_timing_run_reports_its_progress(suite) -> None:
+    # Before: a 0.4 s call ran 13.7 s with nothing between "collected" and "PASSED".
+    result, _ = suite(PROGRESS_SUITE)
+    assert result.ret == 0
+    lines = [line for line in result.outlines if line.startswith("meanband: test_timed.py::")]
+    assert lines and all("test_slow_call" in line for line in lines)  # the quick run is silent
+    assert any(" of 40 trials timed, " in line and "s so far" in line for line in lines)
+    assert lines[-1].startswith("meanband: test_timed.py::test_slow_call: 40 of 40 trials timed")
+    assert lines[-1].endswith("s done")
+    assert "from the test" not in result.stdout.str()  # the test's own output stays captured
+
+
+@pytest.mark.parametrize("args", [("-q",), ("-n", "2")], ids=["quiet", "xdist"])
+def test_progress_is_silent_under_q_and_in_xdist_workers(suite, args) -> None:
+    result, _ = suite(PROGRESS_SUITE, *args)
+    assert result.ret == 0
+    assert "trials timed" not in result.stdout.str()

@@ -24,7 +24,10 @@ from meanband.units import SECONDS, format_value, parse_duration
 
 __all__ = [
     "DEFAULT_MIN_TRIAL_TIME",
+    "PROGRESS_AFTER",
+    "PROGRESS_EVERY",
     "Note",
+    "Progress",
     "SetupRunner",
     "Timing",
     "bind_call",
@@ -178,6 +181,7 @@ def time_calls(
     min_trials: int = 2,
     drift_alpha: float = DRIFT_ALPHA,
     environ: Mapping[str, str] | None = None,
+    progress: Progress | None = None,
 ) -> Timing:
     """Time ``fn(*args, **kwargs)`` in ``n`` trials of k calls each; values are seconds per call.
 
@@ -195,7 +199,10 @@ def time_calls(
     - ``time_limit`` (seconds, for the whole call): once passed, trials stop, but never before
       ``min_trials`` have been kept;
     - notes: xdist worker (from ``environ``, default ``os.environ``), drift (Mann-Kendall),
-      coarse clock, one call per trial with a trial near the read cost, stopped early.
+      coarse clock, one call per trial with a trial near the read cost, stopped early;
+    - ``progress(done, wanted, seconds)`` is called between trials about every
+      ``PROGRESS_EVERY`` seconds once a run has lasted ``PROGRESS_AFTER``, and once at its end
+      if it was called before: a long run is not silent. Without it the trials run in one loop.
     """
     if not callable(fn):
         raise TrialError(f"time() needs a callable, got {fn!r}; pass the function, not its result")
@@ -237,12 +244,17 @@ def time_calls(
             k, calibration = loops, []
         warm = _warm_up(bound, runner, k, read, warm_count, warm_seconds, deadline)
         out = _durations(n)
-        if runner is not None:
-            taken = runner.run(k, out, 0, n, read, deadline, min_trials)
-        else:
-            taken = _run(bound, k, out, 0, min(min_trials, n), read, None)
-            if deadline is None or read() <= deadline:
-                taken = _run(bound, k, out, taken, n, read, deadline)
+
+        def run(first: int, stop: int) -> int:
+            if runner is not None:
+                return runner.run(k, out, first, stop, read, deadline, min_trials)
+            sure = min(max(min_trials - first, 0), stop - first)  # kept whatever the limit
+            reached = _run(bound, k, out, first, first + sure, read, None)
+            if reached < stop and (deadline is None or read() <= deadline):
+                reached = _run(bound, k, out, reached, stop, read, deadline)
+            return reached
+
+        taken = run(0, n) if progress is None else _reporting(run, n, read, start, progress)
 
     per_call = 1e-9 / k
     values = np.frombuffer(out, dtype=np.int64, count=taken) * per_call
@@ -445,6 +457,40 @@ class SetupRunner:
             if deadline is not None and t1 > deadline and i + 1 >= min_trials:
                 return i + 1
         return stop
+
+
+#: What reports a long run's progress: (trials done, trials wanted, seconds so far).
+Progress = Callable[[int, int, float], None]
+#: A run reports its progress once it has lasted this many seconds, then about this often.
+PROGRESS_AFTER = 2.0
+PROGRESS_EVERY = 2.0
+
+
+def _reporting(
+    run: Callable[[int, int], int], n: int, read: Reader, start: int, progress: Progress
+) -> int:
+    """``run`` over ``n`` trials in chunks of about a tenth of ``PROGRESS_EVERY``, calling
+    ``progress`` between chunks when due (never inside a trial's timed region)."""
+    done, chunk = 0, 1
+    due = start + int(PROGRESS_AFTER * 1e9)
+    reported = False
+    while done < n:
+        t0 = read()
+        stop = min(n, done + chunk)
+        reached = run(done, stop)
+        now = read()
+        per_trial = (now - t0) / max(reached - done, 1)
+        done = reached
+        if reached < stop:  # the time limit stopped it
+            break
+        chunk = max(1, min(n, int(PROGRESS_EVERY * 1e8 / max(per_trial, 1.0))))
+        if now >= due and done < n:
+            progress(done, n, (now - start) / 1e9)
+            reported = True
+            due = now + int(PROGRESS_EVERY * 1e9)
+    if reported:
+        progress(done, n, (read() - start) / 1e9)
+    return done
 
 
 def _durations(count: int) -> array[int]:

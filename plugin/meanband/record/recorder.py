@@ -119,6 +119,7 @@ class Series:
             clock_info=shared.clock_info(clock), min_trial_time=settings.min_trial_time,
             time_limit=shared.time_left(settings.time_limit), gc_enabled=settings.gc,
             environ=shared.environ,
+            progress=shared.progress(f"{self.nodeid}{f' [{self.name}]' if self.name else ''}"),
         )
         shared.spent += run.elapsed
         self._warmup = np.concatenate([self._warmup, run.warmup])
@@ -512,6 +513,10 @@ class SharedTiming:
     @property
     def environ(self) -> dict[str, str] | None:
         return None if self.session is None else self.session.environ
+
+    def progress(self, label: str) -> Any:
+        """Where a long timing run of ``label`` reports its progress (None: nowhere)."""
+        return None if self.session is None else self.session.progress(label)
 
     def time_left(self, limit: float | None) -> float | None:
         """Seconds left of ``limit``; once spent, a sliver, so the engine takes its minimum."""
