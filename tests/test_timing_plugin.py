@@ -318,7 +318,7 @@ def test_quote(trials, fake):
             "timing clocks (measured once per test process):",
             "  wall (fake clock): step 1.00 ns, one read 50.0 ns",
             "timed series:",
-            f"  test_timed.py::test_quote: k={k} calls/trial, 4 trials of about *, warm-up 2, "
+            f"  test_timed.py::test_quote: {k} calls per trial, 4 trials of about *, warm-up 2, "
             "gc off, wall clock",
         ]
     )
@@ -435,7 +435,7 @@ def test_mixed(trials, fake):
             "timing clocks (measured once per test process):",
             "  wall (fake clock): step 1.00 ns, one read 50.0 ns",
             "timed series:",
-            "  test_timed.py::test_mixed [[]engine[]]: k=*",
+            "  test_timed.py::test_mixed [[]engine[]]: * per trial, *",
         ]
     )
     clock_lines = result.stdout.str().split("timing clocks")[1].split("timed series:")[0]
@@ -459,7 +459,7 @@ def test_timing_lines_show_the_range_when_worker_processes_measured_differently(
 
     lines = timing_lines([row("test_a", 43.0), row("test_b", 45.0)])
     assert "  wall (time.perf_counter_ns): step 1.00 ns, one read 43.0 ns to 45.0 ns" in lines
-    assert any(line.startswith("  t.py::test_b: k=10 calls/trial, 3 trials of about 1.10 ms")
+    assert any(line.startswith("  t.py::test_b: 10 calls per trial, 3 trials of about 1.10 ms")
                for line in lines)
     assert timing_lines([{"source": "values", "timing": None}]) == []
 
