@@ -108,3 +108,21 @@ def test_summary_shows_threatening_notes_and_counts_the_rest(run_suite, pytester
     verbose = run_suite("-v").stdout.str()
     assert "test_notes.py::test_wide: trials autocorrelated" in verbose
     assert "more note" not in verbose
+
+
+def test_verbose_metrology_lines_leave_plain_timing_checks_alone(run_suite, pytester) -> None:
+    # Before: -v printed U, k and a probability of false acceptance like 9.17e-55 for plain
+    # timing checks, where "k" also meant calls per trial.
+    pytester.makepyfile(test_mixed="""
+def test_timing(trials):
+    trials.extend([1.0e-3, 1.1e-3, 0.9e-3, 1.05e-3, 0.95e-3], unit="s")
+    trials.check(high="5ms")
+
+def test_probe(trials):
+    trials.extend([85.0, 85.1, 84.9, 85.05, 84.95], unit="degC")
+    trials.check(center=85.0, tolerance=0.4)
+""")
+    text = run_suite("-v").stdout.str()
+    section = text.split("measurement uncertainty and decision rule:")[1]
+    assert "test_mixed.py::test_probe: U = " in section
+    assert "test_mixed.py::test_timing: U = " not in section
