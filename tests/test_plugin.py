@@ -410,6 +410,11 @@ def test_junit_properties_carry_each_check(run_suite, pytester):
     assert props[("test_pass", "meanband.verdict")] == "PASS"
     assert props[("test_fail", "meanband.verdict")] == "FAIL"
     assert props[("test_two_series", "meanband[cold].verdict")] == "PASS"
+    # Before: raw numbers with no unit and no band.
+    assert props[("test_pass", "meanband.unit")] == "degC"
+    assert props[("test_pass", "meanband.band")] == "[84.6 degC, 85.4 degC]"
+    assert float(props[("test_pass", "meanband.band_low")]) == pytest.approx(84.6)
+    assert float(props[("test_pass", "meanband.band_high")]) == pytest.approx(85.4)
 
 
 def test_junit_properties_under_xdist(run_suite, pytester):

@@ -162,7 +162,8 @@ def pytest_runtest_makereport(
 
 
 def _junit_properties(row: ResultRow, index: int | None) -> list[tuple[str, object]]:
-    """``meanband[series].index.field`` properties; series and index only where needed."""
+    """``meanband[series].index.field`` properties; series and index only where needed: n, the
+    interval (mean, low, high), its unit, the band (as written, and its edges) and the verdict."""
     decision = row["decision"]
     if decision is None:
         return []
@@ -171,12 +172,20 @@ def _junit_properties(row: ResultRow, index: int | None) -> list[tuple[str, obje
         prefix += f"[{row['series']}]"
     if index is not None:
         prefix += f".{index}"
-    interval = decision["interval"]
+    from meanband.units import format_band
+
+    interval, band = decision["interval"], decision["band"]
+    unit = row.get("unit")
+    # Numbers stay in the trials' unit (seconds for timings), named beside them, with the band.
     return [
         (f"{prefix}.n", interval["n"]),
         (f"{prefix}.mean", interval["mean"]),
         (f"{prefix}.low", interval["low"]),
         (f"{prefix}.high", interval["high"]),
+        (f"{prefix}.unit", unit or ""),
+        (f"{prefix}.band", format_band(band["low"], band["high"], unit)),
+        (f"{prefix}.band_low", band["low"]),
+        (f"{prefix}.band_high", band["high"]),
         (f"{prefix}.verdict", decision["verdict"]),
     ]
 
