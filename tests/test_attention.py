@@ -126,3 +126,19 @@ def test_probe(trials):
     section = text.split("measurement uncertainty and decision rule:")[1]
     assert "test_mixed.py::test_probe: U = " in section
     assert "test_mixed.py::test_timing: U = " not in section
+
+
+def test_a_repeated_check_says_so(run_suite, pytester) -> None:
+    # Before: check() twice on the same trials and band gave two identical rows silently.
+    pytester.makepyfile(test_twice="""
+def test_twice(trials):
+    trials.extend([1.0, 1.1, 0.9, 1.05, 0.95, 1.02, 0.98, 1.01, 0.99, 1.0], unit="V")
+    trials.check(high=2.0)
+    trials.check(high=2.0)
+    trials.check(high=3.0)  # another band: no repeat
+""")
+    result = run_suite()
+    result.assert_outcomes(passed=1)
+    text = result.stdout.str()
+    assert text.count("were already checked against this band") == 1
+    assert "(check 1 of this series): this row repeats it" in text

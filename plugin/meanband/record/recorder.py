@@ -370,6 +370,14 @@ class Series:
             notes = self._timing_notes + notes
             recorded = settings.to_dict()
         notes = drop_immaterial_drift(notes, decision)
+        repeated = self._repeats(recorded, decision)
+        if repeated:
+            notes = [*notes, {
+                "code": "repeated-check",
+                "text": f"the same {self._values.size} trials were already checked against this "
+                        f"band with these settings (check {repeated} of this series): this row "
+                        "repeats it; drop one of the checks",
+            }]
         row = self._row(recorded, decision, notes, **extra)
         self._rows.append(row)
         overdue = [note for note in notes if note["code"] == "calibration-overdue"]
@@ -380,6 +388,17 @@ class Series:
         if not decision.passed:
             raise BandViolation(describe(decision, label=self._label(), notes=notes), decision)
         return decision
+
+    def _repeats(self, settings: dict[str, Any], decision: Decision) -> int:
+        """The 1-based number of an earlier check of this series on the same trials, band and
+        settings (0 when there is none)."""
+        band = decision.band.to_dict()
+        for number, row in enumerate(self._rows, start=1):
+            earlier: dict[str, Any] = dict(row.get("decision") or {})
+            if (earlier.get("band") == band and row.get("settings") == settings
+                    and (earlier.get("interval") or {}).get("n") == decision.interval.n):
+                return number
+        return 0
 
     # -- reporting --------------------------------------------------------------------------
 
