@@ -79,10 +79,12 @@ def suggestion_for_row(
 
 
 def _instrument_count(row: Mapping[str, Any], decision: Mapping[str, Any]) -> dict[str, Any]:
-    """The decision's own count when an instrument uncertainty shares the budget, else nothing."""
+    """The decision's own count when an instrument uncertainty shares the budget (whose
+    per-trial spread is then the combined uncertainty, not a sample sd), else nothing."""
     budget = row.get("uncertainty") or {}
     if budget.get("type_b"):
-        return {"instrument_count": decision.get("suggested_n")}
+        return {"instrument_count": decision.get("suggested_n"),
+                "spread": "combined uncertainty x sqrt(n)"}
     return {}
 
 
