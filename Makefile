@@ -25,9 +25,12 @@ lint: $(STAMP)
 	$(VENV)/bin/ruff check plugin tests benchmarks sample_suites studies
 	$(VENV)/bin/mypy
 
-# The latency and bench suites, then the trial-tuning loop on sample_suites/tuning.
+# The latency and bench suites; one real failure, which must fail (exit status 1) for the demo
+# to go on; then the trial-tuning loop on sample_suites/tuning.
 demo: $(STAMP)
-	$(HERMETIC) $(PY) -m pytest -p meanband -p no:cacheprovider sample_suites --ignore=sample_suites/tuning
+	$(HERMETIC) $(PY) -m pytest -p meanband -p no:cacheprovider sample_suites --ignore=sample_suites/tuning --ignore=sample_suites/failure
+	@echo "--- what a failing check looks like: this run is expected to fail ---"
+	$(HERMETIC) $(PY) -m pytest -p meanband -p no:cacheprovider sample_suites/failure; test $$? -eq 1
 	$(MAKE) --no-print-directory tuning-demo
 
 pictures: $(STAMP)

@@ -27,6 +27,9 @@ settings.load_profile(os.environ.get("HYPOTHESIS_PROFILE", "fixed"))
 def run_suite(pytester: pytest.Pytester, monkeypatch: pytest.MonkeyPatch):
     """Run an inner pytest with only meanband (and xdist when ``-n`` is given) loaded."""
     monkeypatch.setenv("PYTEST_DISABLE_PLUGIN_AUTOLOAD", "1")
+    # A terminal wide enough that tests of the summary's content see whole lines; the tests of
+    # fitting the summary to a terminal set COLUMNS in their own body.
+    monkeypatch.setenv("COLUMNS", "1000")
 
     def run(*args: str, subprocess: bool = False) -> pytest.RunResult:
         extra = ["-p", "meanband", "-p", "no:cacheprovider"]

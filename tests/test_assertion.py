@@ -124,7 +124,7 @@ def test_zero_spread_message() -> None:
         ([1.0, 2.0], {}, "at least one edge"),
         ([1.0, 2.0], {"low": 3.0, "high": 1.0}, "swap them"),
         ([1.0, 2.0], {"high": 3.0, "confidence": 1.0}, "confidence"),
-        ([1.0, 2.0], {"high": "3ms"}, "needs timing trials"),
+        ([1.0, 2.0], {"high": "3ms"}, "needs trials in a time unit"),
         ([1.0, 2.0], {"high": "3 parsecs", "unit": "s"}, "cannot read"),
         ([1.0, 2.0], {"high": 3.0, "method": "median"}, "unknown interval method"),
     ],

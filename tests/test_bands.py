@@ -283,8 +283,11 @@ class TestMakeBand:
             ({"center": math.inf, "tolerance": 0.1}, "center= must be a finite number"),
             ({"center": 1.0, "tolerance": math.nan}, "tolerance= must be a finite number"),
             ({"low": math.nan}, "low= must be a finite number"),
-            ({"high": "fast"}, "needs timing trials"),
-            ({"high": "3ms", "unit": "degC"}, "needs timing trials"),
+            ({"high": "fast"}, "high= must be a number"),
+            # Before: the refusal of a unit-less series did not say what fixes it.
+            ({"high": "1ms"}, r"record them with unit='s'"),
+            ({"high": "1ms", "unit": "V"}, "give a plain number in V"),
+            ({"high": "3ms", "unit": "degC"}, "needs trials in a time unit"),
             ({"high": "3 lightyears", "unit": "s"}, "cannot read"),
             ({"high": [3.0]}, "high= must be a number"),
             ({"low": -math.inf, "high": math.inf}, "at least one finite edge"),
@@ -296,6 +299,19 @@ class TestMakeBand:
     def test_bad_bands(self, kwargs: dict[str, object], match: str) -> None:
         with pytest.raises(TrialError, match=match):
             make_band(**kwargs)  # type: ignore[arg-type]
+
+
+@pytest.mark.parametrize(
+    ("unit", "edge", "expected"),
+    [("ms", "1.5ms", 1.5), ("ms", "1500us", 1.5), ("us", "1.5ms", 1500.0), ("ns", "2us", 2000.0),
+     ("s", "250ms", 0.25), ("µs", "3µs", 3.0)],
+)
+def test_duration_edges_convert_to_the_trials_time_unit(unit: str, edge: str, expected: float) -> None:
+    # Before: only unit="s" took duration strings; ms trials against "1.5ms" were refused.
+    # Conversion factors: SI prefixes (BIPM SI Brochure, 9th ed., table 7).
+    band = make_band(high=edge, unit=unit)
+    assert band.high == pytest.approx(expected, rel=1e-12)
+    assert band.unit == unit
 
 
 class TestVerdictEnum:

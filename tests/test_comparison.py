@@ -211,7 +211,7 @@ def test_trials_compare_in_a_suite(pytester: pytest.Pytester, run_suite, workers
     ])
     result.stdout.fnmatch_lines(["*TrialError: a comparison needs a limit*"])
     result.stdout.re_match_lines([
-        r"test_parsers.py::test_v1_faster \[parse_v1 / parse_v2\]\s+60\s+0\.\d+ x\s+\[.*\]\s+"
+        r"test_parsers.py::test_v1_faster \[parse_v1 / parse_v2\]\s+60\s+0\.\d+ x\s+\[.*\] x\s+"
         r"95% paired-fieller \(time ratio\)\s+<= 0\.98 x\s+PASS",
         r"test_parsers.py::test_v2_not_slower \[parse_v2 / parse_v1\]\s+60\s+1\.\d+ x .* FAIL",
     ])
@@ -258,3 +258,87 @@ def test_paired_times_compare_with_equals() -> None:
     times = time_pairs(new, old, 4, repeats=1, warmup=0, seed=1, clock=machine.clock)
     assert times == times and times != time_pairs(new, old, 5, repeats=1, warmup=0, seed=1,
                                                    clock=machine.clock)
+
+
+COMPARE_LIKE_TIME = """
+import functools
+
+LINE = "fare,zone-3,adult," * 40
+
+
+def parse_v1(text, sep=","):
+    return text.split(sep)
+
+
+def parse_v2(text, sep=","):
+    return [part for part in text.split(sep)]
+
+
+def test_arguments_like_time(trials):
+    # Before: trials.compare(new, old, LINE, at_most=1.05) was a TypeError.
+    result = trials.compare(parse_v2, parse_v1, LINE, sep=",", at_most=50.0, n=6, seed=3)
+    assert result.passed
+
+
+def test_setup_per_call(trials):
+    seen = []
+
+    def fresh():
+        seen.append(1)
+        return LINE
+
+    trials.compare(parse_v2, parse_v1, setup=fresh, at_most=50.0, n=4, repeats=2, seed=4)
+    assert len(seen) >= 2 * 4 * 2  # every call of both sides got its own input
+
+
+def test_partial_names(trials):
+    trials.compare(functools.partial(parse_v2, LINE), functools.partial(parse_v1, LINE, sep=","),
+                   at_most=50.0, n=4, seed=5)
+
+
+def test_lambdas_need_a_name(trials):
+    trials.compare(lambda: parse_v2(LINE), lambda: parse_v1(LINE), at_most=50.0, n=4)
+
+
+def test_lambdas_with_a_name(trials):
+    trials.compare(lambda: parse_v2(LINE), lambda: parse_v1(LINE), at_most=50.0, n=4, seed=6,
+                   name="list copy / split")
+"""
+
+
+def test_compare_is_shaped_like_time(pytester: pytest.Pytester, run_suite) -> None:
+    pytester.makepyfile(test_shape=COMPARE_LIKE_TIME)
+    result = run_suite("-rf")
+    result.assert_outcomes(passed=4, failed=1)
+    text = result.stdout.str()
+    # Before: lambdas gave rows named "<lambda> / <lambda>".
+    result.stdout.fnmatch_lines(["*test_lambdas_need_a_name*TrialError: cannot name this "
+                                 "comparison's row from a lambda*pass name=*"])
+    assert "<lambda>" not in text
+    assert "test_shape.py::test_arguments_like_time [parse_v2 / parse_v1]" in text
+    assert "[parse_v2('fare,zone-3,adul...) / parse_v1('fare,zone-3,adul..., sep=',')]" in text
+    assert "test_shape.py::test_lambdas_with_a_name [list copy / split]" in text
+
+
+def test_callable_names() -> None:
+    import functools
+
+    from meanband.record.comparison import callable_name
+
+    class Parser:
+        def parse(self) -> None: ...
+
+        def __call__(self) -> None: ...
+
+    def outer():
+        def inner() -> None: ...
+        return inner
+
+    assert callable_name(Parser().parse) == "test_callable_names.<locals>.Parser.parse".rsplit(
+        "<locals>.", 1)[-1]
+    assert callable_name(outer()) == "inner"
+    assert callable_name(Parser()) == "Parser"
+    assert callable_name(functools.partial(outer, 3)) == "test_callable_names.<locals>.outer(3)".rsplit(
+        "<locals>.", 1)[-1]
+    assert callable_name(lambda: None) is None
+    assert callable_name(functools.partial(lambda x: x, 1)) is None

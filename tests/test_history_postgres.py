@@ -104,6 +104,7 @@ def test_password_is_masked_when_the_server_cannot_be_reached(postgres_server, c
 def test_password_is_masked_in_the_summary_and_the_reports(pytester: pytest.Pytester, postgres_url: str, monkeypatch: pytest.MonkeyPatch) -> None:
     # The test server trusts every local login, so any password is accepted and must not show.
     monkeypatch.setenv("PYTEST_DISABLE_PLUGIN_AUTOLOAD", "1")
+    monkeypatch.setenv("COLUMNS", "1000")  # the summary fits the terminal; keep the line whole
     url = postgres_url.replace("postgres@", "postgres:Zebra-Lantern-9@")
     pytester.makepyfile(test_fares="""
         import itertools

@@ -41,7 +41,7 @@ def test_one_table_row_per_result_under_a_headline():
     assert probe[6] == "[84.6 degC, 85.4 degC]"
     budget = body[("`tests/test_quote.py::test_quote_latency`", "")]
     assert budget[6] == "<= 2 ms"
-    assert budget[5].endswith("(95% upper bound)") and budget[5].startswith("≤ ")
+    assert budget[5].endswith("(95% upper bound)") and budget[5].startswith("<= ")
 
 
 def test_numbers_match_the_rows():
@@ -51,7 +51,7 @@ def test_numbers_match_the_rows():
     (line,) = table_lines(format_markdown([row]))[2:]
     mean, bound = cells(line)[4:6]
     assert mean == f"{interval['mean']:.2f} V"  # 4 significant digits
-    assert bound.startswith(f"≥ {interval['low']:.2f} V")
+    assert bound.startswith(f">= {interval['low']:.2f} V")
 
 
 def test_notes_are_numbered_and_referenced():
@@ -103,3 +103,10 @@ def test_job_summary_without_the_variable_says_which_variable():
 def test_write_markdown_creates_the_directory(tmp_path):
     path = write_markdown("hello\n", tmp_path / "ci" / "meanband.md")
     assert path.read_text() == "hello\n"
+
+
+def test_markdown_writes_bounds_and_bands_alike():
+    # Before: bounds were written "≤ 2.1 ms" beside bands written "<= 3 ms" in the same table.
+    text = format_markdown(sample_rows())
+    assert "≤" not in text and "≥" not in text
+    assert "<= " in text

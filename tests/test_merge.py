@@ -103,3 +103,13 @@ def test_pooling_needs_the_trials():
 def test_merging_nothing_is_an_error():
     with pytest.raises(ReportError, match="at least one report"):
         merge_reports([])
+
+
+def test_a_report_given_twice_is_refused(tmp_path):
+    # Before: `meanband merge --pool a.json a.json` pooled a report with itself, counting its
+    # trials twice and narrowing every interval for nothing.
+    rows = sample_rows()
+    path = str(tmp_path / "a.json")
+    for pool in (False, True):
+        with pytest.raises(ReportError, match=r"a\.json is given twice"):
+            merge_reports([(path, report(rows)), (path, report(rows))], pool=pool)

@@ -41,7 +41,7 @@ def test_geometric_mean(trials):
 
 def test_plain_t(trials):
     trials.extend(LATENCIES)
-    trials.check(high=60.0)
+    trials.check(high=25.0)  # passes, but not by so much that the data's shape cannot matter
 """
 
 

@@ -180,3 +180,18 @@ def test_bad_unchecked(trials):
     # The failed read left the series as it was: its two trials show as recorded, unchecked.
     assert rows["test_bad_keeps_what_was_recorded"]["values"] == [85.0, 85.2]
     assert "test_bad_unchecked" not in rows
+
+
+def test_a_huge_nu_eff_is_written_as_many() -> None:
+    # Before: "nu_eff 781483" from the Welch-Satterthwaite formula (JCGM 100 G.4.1): with that
+    # many degrees of freedom k equals the normal quantile to 0.2% (scipy.stats.t.ppf).
+    from meanband.record.message import budget_words
+    from scipy.stats import norm, t
+
+    assert abs(t.ppf(0.975, 1000) / norm.ppf(0.975) - 1) < 2e-3
+    budget = {"expanded": 0.0393, "coverage_factor": 1.96, "effective_df": 781483.0,
+              "type_a": 0.0017, "type_a_df": 39, "type_b": 0.02, "type_b_df": None,
+              "combined": 0.0201}
+    text = budget_words(budget, "mA", None, 3)
+    assert "nu_eff > 1000" in text and "781483" not in text
+    assert "nu_eff 39" in budget_words({**budget, "effective_df": 39.0}, "mA", None, 3)

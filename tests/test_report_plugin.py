@@ -337,8 +337,12 @@ def _small_report(tmp_path):
 
 @pytest.mark.parametrize("command", ["report", "merge"])
 def test_max_bytes_refuses_a_larger_report(tmp_path, capsys, command):
+    import shutil
+
     path = _small_report(tmp_path)
-    extra = [path, "-o", str(tmp_path / "m.json"), "--pool"] if command == "merge" else []
+    other = str(tmp_path / "r2.json")  # merge refuses one report given twice
+    shutil.copy(path, other)
+    extra = [other, "-o", str(tmp_path / "m.json"), "--pool"] if command == "merge" else []
     assert console([command, path, *extra, "--max-bytes", "1KiB"]) == 2
     err = capsys.readouterr().err
     assert "r.json is larger than the read limit of 1,024 bytes" in err and "--max-bytes" in err

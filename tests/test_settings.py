@@ -3,7 +3,16 @@
 from __future__ import annotations
 
 import pytest
-from meanband.record.settings import DEFAULTS, SettingError, marker_settings, resolve, validate
+from meanband.errors import TrialError
+from meanband.record.settings import (
+    DEFAULTS,
+    SettingError,
+    marker_settings,
+    resolve,
+    unknown_setting_names,
+    validate,
+)
+from meanband.stats.ratio import parse_fraction
 
 
 def test_defaults_are_the_documented_ones():
@@ -101,3 +110,63 @@ def test_a_call_argument_above_the_ceiling_is_refused():
 
 def test_the_ceiling_is_not_part_of_a_rows_settings():
     assert "max_trials" not in DEFAULTS.to_dict()
+
+
+@pytest.mark.parametrize(
+    ("name", "value", "expected"),
+    [("confidence", "95%", 0.95), ("confidence", " 99.5 % ", 0.995), ("confidence", "0.9", 0.9),
+     ("power", "80%", 0.8), ("normality_alpha", "5%", 0.05)],
+)
+def test_levels_accept_a_percentage_or_a_fraction(name, value, expected):
+    # Before: --meanband-confidence=95% was refused while --meanband-max-increase took 5%.
+    assert validate(name, value, "option --meanband-x") == pytest.approx(expected)
+
+
+def test_a_level_written_as_a_bare_percentage_suggests_both_spellings():
+    with pytest.raises(SettingError, match=r"did you mean 0\.95\? \(or write '95%'\)"):
+        validate("confidence", 95, "marker")
+    with pytest.raises(SettingError, match="strictly between 0 and 1, got '150%'"):
+        validate("confidence", "150%", "marker")
+
+
+def test_an_unknown_setting_lists_the_valid_ones_and_the_closest():
+    # Before: "marker_settings() got an unexpected keyword argument" and nothing more.
+    with pytest.raises(SettingError) as info:
+        validate("confidance", 0.99, "plan entry")
+    text = str(info.value)
+    assert "unknown meanband setting 'confidance' (did you mean 'confidence'?)" in text
+    assert "the settings are n, confidence, warmup, min_n," in text
+    assert unknown_setting_names(["n", "power"]) == ""
+    assert "'colour';" in unknown_setting_names(["colour"])  # nothing close: no guess
+
+
+@pytest.mark.parametrize(("text", "hint"), [(5, "did you mean '5%'?"), ("1.5", "did you mean '1.5%'?")])
+def test_a_relative_amount_above_one_without_a_percent_sign_is_refused(text, hint):
+    # Before: --meanband-max-increase=5 silently meant +500%.
+    with pytest.raises(TrialError, match="would mean") as info:
+        parse_fraction(text, "--meanband-max-increase")
+    assert hint in str(info.value)
+    assert parse_fraction("150%", "--meanband-max-increase") == pytest.approx(1.5)
+    assert parse_fraction(1, "--meanband-max-increase") == 1.0
+
+
+def test_marker_typo_option_percentages_and_max_increase_in_a_run(run_suite, pytester):
+    pytester.makepyfile(test_s="""
+import pytest
+
+@pytest.mark.meanband(confidance=0.99)
+def test_typo(trials):
+    pass
+
+def test_level(trials):
+    trials.extend([1.0, 1.1, 0.9, 1.05, 0.95, 1.02, 0.98, 1.01, 0.99, 1.0], unit="ms")
+    assert trials.settings.confidence == 0.99
+    trials.check(high="1.5ms")
+""")
+    result = run_suite("--meanband-confidence=99%")
+    result.assert_outcomes(passed=1, errors=1)
+    result.stdout.fnmatch_lines(["*unknown meanband setting 'confidance' (did you mean 'confidence'?)*"])
+    store = pytester.path / "h.sqlite"
+    result = run_suite(f"--meanband-store={store}", "--meanband-record=x", "--meanband-max-increase=5")
+    assert result.ret == pytest.ExitCode.USAGE_ERROR
+    result.stderr.fnmatch_lines(["*--meanband-max-increase*did you mean '5%'?*"])

@@ -244,3 +244,15 @@ def test_instrument_uncertainty_can_forbid_a_count_the_t_test_alone_would_promis
     plain_row = dict(row, decision=plain.to_dict(), uncertainty=None)
     assert plain.verdict.value == "PASS"
     assert suggestion_for_row(plain_row).n == max(plain.suggested_n, 10)
+
+
+def test_the_spread_of_a_budget_with_an_instrument_is_not_called_sd():
+    # Before: the suggestion labelled the combined uncertainty scaled to one trial as "sd".
+    rng = np.random.default_rng(43)
+    band = make_band(high=10.0)
+    row = _row(rng.normal(9.6, 0.8, 6), band)
+    assert "sd " in suggestion_for_row(row).reason
+    row["uncertainty"] = {"type_b": 0.1}
+    row["decision"]["suggested_n"] = 40
+    reason = suggestion_for_row(row).reason
+    assert "combined uncertainty x sqrt(n) " in reason and ", sd " not in reason

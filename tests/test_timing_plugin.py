@@ -274,7 +274,8 @@ def test_throttling(trials, fake):
     calls = itertools.count()
     noise = iter(__import__("numpy").random.default_rng(5).normal(0, 5_000, 1000).astype(int))
     trials.time(lambda: fake.work(200_000 + 2_000 * next(calls) + int(next(noise)))())
-"""
+""",
+        "-v",  # notes on trials never checked show at -v
     )
     assert "drift" in codes(one(rows, "test_throttling"))
     result.stdout.fnmatch_lines(["*test_throttling*trials trend upward*Mann-Kendall*"])
@@ -317,7 +318,7 @@ def test_quote(trials, fake):
             "timing clocks (measured once per test process):",
             "  wall (fake clock): step 1.00 ns, one read 50.0 ns",
             "timed series:",
-            f"  test_timed.py::test_quote: k={k} calls/trial, 4 trials of about *, warm-up 2, "
+            f"  test_timed.py::test_quote: {k} calls per trial, 4 trials of about *, warm-up 2, "
             "gc off, wall clock",
         ]
     )
@@ -338,6 +339,7 @@ def test_b(trials, fake):
 """,
         "-n",
         "2",
+        "-v",  # notes on trials never checked show at -v
     )
     assert result.ret == 0
     for name in ("test_a", "test_b"):
@@ -421,7 +423,8 @@ def test_verbose_timing_lines_skip_rows_timed_elsewhere(suite) -> None:
         """
 def test_mixed(trials, fake):
     trials.series("engine").time(fake.work(25_000), n=3)
-    trials.compare(lambda: sum(range(50)), lambda: sum(range(50)), at_most=10.0, n=4, seed=1)
+    trials.compare(lambda: sum(range(50)), lambda: sum(range(50)), at_most=10.0, n=4, seed=1,
+                   name="sum / sum")
 """,
         "-v",
     )
@@ -432,7 +435,7 @@ def test_mixed(trials, fake):
             "timing clocks (measured once per test process):",
             "  wall (fake clock): step 1.00 ns, one read 50.0 ns",
             "timed series:",
-            "  test_timed.py::test_mixed [[]engine[]]: k=*",
+            "  test_timed.py::test_mixed [[]engine[]]: * per trial, *",
         ]
     )
     clock_lines = result.stdout.str().split("timing clocks")[1].split("timed series:")[0]
@@ -456,7 +459,7 @@ def test_timing_lines_show_the_range_when_worker_processes_measured_differently(
 
     lines = timing_lines([row("test_a", 43.0), row("test_b", 45.0)])
     assert "  wall (time.perf_counter_ns): step 1.00 ns, one read 43.0 ns to 45.0 ns" in lines
-    assert any(line.startswith("  t.py::test_b: k=10 calls/trial, 3 trials of about 1.10 ms")
+    assert any(line.startswith("  t.py::test_b: 10 calls per trial, 3 trials of about 1.10 ms")
                for line in lines)
     assert timing_lines([{"source": "values", "timing": None}]) == []
 
@@ -481,3 +484,34 @@ def test_auto_limited(trials, fake):
     assert len(row["values"]) >= 8
     result.assert_outcomes(passed=1, failed=1)
     result.stdout.fnmatch_lines(["*the time limit stopped n='auto' after 2 of the 10 trials*"])
+
+
+PROGRESS_SUITE = """
+@pytest.mark.meanband(n=40, min_trial_time=0)
+def test_slow_call(trials, fake):
+    print("from the test")
+    trials.time(fake.work(250_000_000))  # 0.25 s a call on the fake clock: 10 s of trials
+
+@pytest.mark.meanband(n=5, min_trial_time=0)
+def test_quick_call(trials, fake):
+    trials.time(fake.work(1_000_000))
+"""
+
+
+def test_a_long_timing_run_reports_its_progress(suite) -> None:
+    # Before: a 0.4 s call ran 13.7 s with nothing between "collected" and "PASSED".
+    result, _ = suite(PROGRESS_SUITE)
+    assert result.ret == 0
+    lines = [line for line in result.outlines if line.startswith("meanband: test_timed.py::")]
+    assert lines and all("test_slow_call" in line for line in lines)  # the quick run is silent
+    assert any(" of 40 trials timed, " in line and "s so far" in line for line in lines)
+    assert lines[-1].startswith("meanband: test_timed.py::test_slow_call: 40 of 40 trials timed")
+    assert lines[-1].endswith("s done")
+    assert "from the test" not in result.stdout.str()  # the test's own output stays captured
+
+
+@pytest.mark.parametrize("args", [("-q",), ("-n", "2")], ids=["quiet", "xdist"])
+def test_progress_is_silent_under_q_and_in_xdist_workers(suite, args) -> None:
+    result, _ = suite(PROGRESS_SUITE, *args)
+    assert result.ret == 0
+    assert "trials timed" not in result.stdout.str()

@@ -65,7 +65,7 @@ def test_until_decided_stops_early_runs_to_the_cap_and_honours_the_time_limit(
         run_suite, pytester, workers) -> None:
     pytester.makeconftest(CONFTEST)
     pytester.makepyfile(test_pump=SUITE)
-    result = run_suite(*workers)
+    result = run_suite(*workers, "-v")  # a wide-margin PASS: its notes show at -v
     result.assert_outcomes(passed=1, failed=2)
     rows = _rows(pytester)
     clear = rows["test_clear_pass_stops_early"]

@@ -4,7 +4,14 @@ from __future__ import annotations
 
 from typing import Any
 
-__all__ = ["BandViolation", "MeanbandError", "ReportError", "StoreError", "TrialError"]
+__all__ = [
+    "BandViolation",
+    "MeanbandError",
+    "ReportError",
+    "StoreError",
+    "TrialError",
+    "hide_plugin_frames",
+]
 
 
 class MeanbandError(Exception):
@@ -31,3 +38,22 @@ class ReportError(MeanbandError, ValueError):
 
 class StoreError(MeanbandError):
     """The history store cannot be used; the message names the file and what to do."""
+
+
+def hide_plugin_frames(excinfo: Any) -> bool:
+    """pytest's ``__tracebackhide__`` for the modules between a test and the error it gets.
+
+    A module that sets ``__tracebackhide__ = hide_plugin_frames`` keeps its frames out of a
+    failing test's traceback when the error is meanband's own (a BandViolation or TrialError
+    says what went wrong in its message) or came from the user's code that the plugin called
+    (a timed function). A bug of the plugin itself keeps every frame; ``--full-trace`` shows all.
+    """
+    if excinfo is None:
+        return False
+    if isinstance(excinfo.value, MeanbandError):
+        return True
+    try:
+        raised_in = excinfo.traceback[-1].frame.f_globals.get("__name__", "")
+    except (AttributeError, IndexError):
+        return False
+    return not str(raised_in).startswith("meanband.")

@@ -6,20 +6,24 @@ from __future__ import annotations
 import math
 import re
 
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 
 __all__ = [
     "SECONDS",
+    "duration_scale",
     "format_band",
     "format_bound",
     "format_df",
     "format_number",
+    "format_pair",
     "format_probability",
     "format_value",
     "parse_duration",
+    "read_fraction",
     "significant_digits",
     "time_scale",
 ]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 #: The unit label of timing trials; values are seconds per call.
 SECONDS = "s"
@@ -44,6 +48,33 @@ def parse_duration(text: str) -> float:
             "ns, us (or µs), ms, s, e.g. '250us' or '3ms'"
         )
     return float(match.group(1)) * _DURATION_SCALE[match.group(2)]
+
+
+_FRACTION = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(%?)\s*$")
+
+
+def read_fraction(value: object, what: str) -> tuple[float, bool]:
+    """A fraction written ``0.05`` or ``"5%"`` (or ``"0.05"``), and whether it was a percentage.
+
+    The one reader of levels, powers and relative amounts, so each accepts both spellings.
+    """
+    if isinstance(value, bool):
+        raise TrialError(f"{what} must be a number such as 0.05 or '5%', got {value!r}")
+    if isinstance(value, str):
+        match = _FRACTION.match(value)
+        if not match:
+            raise TrialError(f"cannot read {what}={value!r} as a number; write e.g. 0.05 or '5%'")
+        number = float(match.group(1))
+        return (number / 100.0, True) if match.group(2) else (number, False)
+    try:
+        return float(value), False  # type: ignore[arg-type]
+    except (TypeError, ValueError):
+        raise TrialError(f"{what} must be a number such as 0.05 or '5%', got {value!r}") from None
+
+
+def duration_scale(unit: str | None) -> float | None:
+    """Seconds per ``unit`` when it is a time unit (``"ms"`` gives 0.001), else None."""
+    return None if unit is None else _DURATION_SCALE.get(unit)
 
 
 def format_number(value: float, digits: int = 4) -> str:
@@ -113,18 +144,36 @@ def format_bound(value: float, unit: str | None, digits: int = 4, *, scale: floa
     return format_value(value, unit, digits, scale=scale)
 
 
-def format_band(low: float, high: float, unit: str | None, digits: int = 4) -> str:
-    """A band as a user wrote it: ``<= 3 ms``, ``>= 10 V`` or ``[84.6, 85.4] degC``; timing
-    edges get a time unit of their own, so a 3 ms budget never shows as 3000 µs."""
+def format_band(
+    low: float, high: float, unit: str | None, digits: int = 4, *, unit_once: bool = False
+) -> str:
+    """A band as a user wrote it: ``<= 3 ms``, ``>= 10 V`` or ``[84.6 degC, 85.4 degC]``; timing
+    edges get a time unit of their own, so a 3 ms budget never shows as 3000 µs. ``unit_once``
+    writes a shared unit once, after the brackets: ``[84.6, 85.4] degC``."""
 
     def fmt(value: float) -> str:
         return format_value(value, unit, digits, trim=True)
 
     if math.isfinite(low) and math.isfinite(high):
-        return f"[{fmt(low)}, {fmt(high)}]"
+        return format_pair(fmt(low), fmt(high), unit_once=unit_once)
     if math.isfinite(high):
         return f"<= {fmt(high)}"
     return f">= {fmt(low)}"
+
+
+def format_pair(low: str, high: str, *, unit_once: bool = True) -> str:
+    """Two values with units as an interval; with ``unit_once``, a unit they share is written
+    once after the brackets (``[1.2, 3.4] ms``), else it stays with each value."""
+    if unit_once:
+        for label in sorted(_unit_endings(low), key=len, reverse=True):
+            if high.endswith(label):
+                return f"[{low.removesuffix(label)}, {high.removesuffix(label)}]{label}"
+    return f"[{low}, {high}]"
+
+
+def _unit_endings(text: str) -> list[str]:
+    """Every ending `` <unit>`` that ``text`` (a number, a space, a unit) may have."""
+    return [text[i:] for i, char in enumerate(text) if char == " "]
 
 
 def format_probability(p: float) -> str:

@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import argparse
+import os
+import shutil
 import sys
 from typing import Any, TextIO
 
@@ -134,7 +136,11 @@ def run_report(args: argparse.Namespace, out: TextIO | None = None,
     except ReportError as exc:
         return _fail("report", exc, err)
     rows = report["rows"]
-    for line in format_summary(rows, args.verbose - args.quiet):
+    # A terminal's width (or COLUMNS) is honoured; a pipe or a file gets lines as long as
+    # their content.
+    fitted = _is_terminal(out) or "COLUMNS" in os.environ
+    width = shutil.get_terminal_size().columns if fitted else None
+    for line in format_summary(rows, args.verbose - args.quiet, width):
         print(line, file=out)
     try:
         if args.markdown or args.job_summary:
@@ -166,3 +172,8 @@ def run_report(args: argparse.Namespace, out: TextIO | None = None,
         return _fail("report", exc, err)
     totals = report["totals"]
     return EXIT_CHECKS_FAILED if totals["FAIL"] or totals["UNDECIDED"] else EXIT_OK
+
+
+def _is_terminal(stream: TextIO) -> bool:
+    isatty = getattr(stream, "isatty", None)
+    return bool(isatty and isatty())

@@ -10,9 +10,10 @@ from pathlib import Path
 
 import numpy as np
 
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 
 __all__ = ["WHITESPACE", "log_time_notes", "read_column", "read_timed_column"]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 #: ``delimiter=WHITESPACE`` splits on runs of spaces and tabs.
 WHITESPACE = " "

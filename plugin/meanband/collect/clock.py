@@ -7,9 +7,10 @@ from collections.abc import Callable
 from dataclasses import asdict, dataclass
 from typing import Any
 
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 
 __all__ = ["CLOCKS", "Clock", "ClockInfo", "get_clock", "measure"]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 
 @dataclass(frozen=True, slots=True)

@@ -17,7 +17,7 @@ from typing import Any
 
 import numpy as np
 
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 
 __all__ = [
     "ERROR_QUERY",
@@ -27,6 +27,7 @@ __all__ = [
     "read_series",
     "resource_name",
 ]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 IDENTITY_QUERY = "*IDN?"
 ERROR_QUERY = "SYST:ERR?"

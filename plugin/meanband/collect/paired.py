@@ -15,12 +15,13 @@ from typing import Any
 import numpy as np
 
 from meanband.collect.clock import get_clock
-from meanband.collect.timing import calibrate, quiet_gc, trial_ns
-from meanband.errors import TrialError
+from meanband.collect.timing import bind_call, calibrate, quiet_gc, trial_ns
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.stats.ratio import side_blind_outliers
 from meanband.stats.sample import ArrayEquality
 
 __all__ = ["MAX_BATCH", "MIN_MEASUREMENT", "PairedTimes", "time_pairs"]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 #: Each timed measurement lasts at least this long (calls are batched to reach it), so the
 #: clock's resolution and the cost of reading it stay small next to what is measured.
@@ -47,14 +48,17 @@ class PairedTimes(ArrayEquality):
 
 
 def time_pairs(
-    first: Callable[[], Any],
-    second: Callable[[], Any],
+    first: Callable[..., Any],
+    second: Callable[..., Any],
     n: int,
     *,
     repeats: int = 5,
     warmup: int = 2,
     seed: int | None = None,
     clock: Callable[[], int] | None = None,
+    args: tuple[Any, ...] = (),
+    kwargs: dict[str, Any] | None = None,
+    setup: Callable[[], Any] | None = None,
 ) -> PairedTimes:
     """Time ``n`` pairs; each pair is ``repeats`` rounds of one call batch of each callable, in
     a random order per round, and keeps the mean of every round's calls.
@@ -65,7 +69,10 @@ def time_pairs(
     are dropped by ``meanband.stats.ratio.side_blind_outliers``. Calls are batched (the
     same batch size for both, calibrated by the timing engine) so each measurement lasts at least
     ``MIN_MEASUREMENT``; ``warmup`` pairs run first and are dropped. Garbage collection is off
-    while timing. ``clock`` reads integer nanoseconds; by default the wall clock.
+    while timing. ``clock`` reads integer nanoseconds; by default the wall clock. Both
+    callables are called with ``*args, **kwargs``; ``setup`` runs before every call, outside
+    the timed region, and a value it returns (not None) is passed as the first argument, as in
+    ``trials.time``.
     """
     read = get_clock("wall").read if clock is None else clock
     for value, what, least in ((n, "n", 2), (repeats, "repeats", 1), (warmup, "warmup", 0)):
@@ -76,18 +83,20 @@ def time_pairs(
     order = rng.random((total, repeats)) < 0.5
     a = np.empty((total, repeats))
     b = np.empty((total, repeats))
+    call_a, runner_a = bind_call(first, args, kwargs, setup)
+    call_b, runner_b = bind_call(second, args, kwargs, setup)
     with quiet_gc():
         target = MIN_MEASUREMENT * 1e9
-        batch = max(calibrate(first, read, target, max_loops=MAX_BATCH),
-                    calibrate(second, read, target, max_loops=MAX_BATCH))
+        batch = max(calibrate(call_a, read, target, max_loops=MAX_BATCH, runner=runner_a),
+                    calibrate(call_b, read, target, max_loops=MAX_BATCH, runner=runner_b))
         for i in range(total):
             for j in range(repeats):
                 if order[i, j]:
-                    a[i, j] = trial_ns(first, batch, read)
-                    b[i, j] = trial_ns(second, batch, read)
+                    a[i, j] = trial_ns(call_a, batch, read, runner_a)
+                    b[i, j] = trial_ns(call_b, batch, read, runner_b)
                 else:
-                    b[i, j] = trial_ns(second, batch, read)
-                    a[i, j] = trial_ns(first, batch, read)
+                    b[i, j] = trial_ns(call_b, batch, read, runner_b)
+                    a[i, j] = trial_ns(call_a, batch, read, runner_a)
     scale = 1e-9 / batch
     return paired_means(a[warmup:] * scale, b[warmup:] * scale, order[warmup:, 0].copy(), batch)
 

@@ -17,15 +17,20 @@ from typing import Any
 import numpy as np
 
 from meanband.collect.clock import Clock, ClockInfo, get_clock, measure
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.stats.diagnostics import DriftTest, drift_test
 from meanband.stats.sample import ArrayEquality
 from meanband.units import SECONDS, format_value, parse_duration
 
 __all__ = [
     "DEFAULT_MIN_TRIAL_TIME",
+    "PROGRESS_AFTER",
+    "PROGRESS_EVERY",
     "Note",
+    "Progress",
+    "SetupRunner",
     "Timing",
+    "bind_call",
     "calibrate",
     "default_min_trial_time",
     "parse_warmup",
@@ -33,6 +38,7 @@ __all__ = [
     "time_calls",
     "trial_ns",
 ]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 #: A clock read: integer nanoseconds from a fixed origin.
 Reader = Callable[[], int]
@@ -175,6 +181,7 @@ def time_calls(
     min_trials: int = 2,
     drift_alpha: float = DRIFT_ALPHA,
     environ: Mapping[str, str] | None = None,
+    progress: Progress | None = None,
 ) -> Timing:
     """Time ``fn(*args, **kwargs)`` in ``n`` trials of k calls each; values are seconds per call.
 
@@ -192,7 +199,10 @@ def time_calls(
     - ``time_limit`` (seconds, for the whole call): once passed, trials stop, but never before
       ``min_trials`` have been kept;
     - notes: xdist worker (from ``environ``, default ``os.environ``), drift (Mann-Kendall),
-      coarse clock, one call per trial with a trial near the read cost, stopped early.
+      coarse clock, one call per trial with a trial near the read cost, stopped early;
+    - ``progress(done, wanted, seconds)`` is called between trials about every
+      ``PROGRESS_EVERY`` seconds once a run has lasted ``PROGRESS_AFTER``, and once at its end
+      if it was called before: a long run is not silent. Without it the trials run in one loop.
     """
     if not callable(fn):
         raise TrialError(f"time() needs a callable, got {fn!r}; pass the function, not its result")
@@ -223,7 +233,7 @@ def time_calls(
         min_trial_time = default_min_trial_time(info)
     read = the_clock.read
     bound = _bind(fn, args, kwargs)
-    runner = _SetupRunner(fn, tuple(args), dict(kwargs or {}), setup) if setup else None
+    runner = SetupRunner(fn, tuple(args), dict(kwargs or {}), setup) if setup else None
 
     start = read()
     deadline = None if time_limit is None else start + int(time_limit * 1e9)
@@ -234,12 +244,17 @@ def time_calls(
             k, calibration = loops, []
         warm = _warm_up(bound, runner, k, read, warm_count, warm_seconds, deadline)
         out = _durations(n)
-        if runner is not None:
-            taken = runner.run(k, out, 0, n, read, deadline, min_trials)
-        else:
-            taken = _run(bound, k, out, 0, min(min_trials, n), read, None)
-            if deadline is None or read() <= deadline:
-                taken = _run(bound, k, out, taken, n, read, deadline)
+
+        def run(first: int, stop: int) -> int:
+            if runner is not None:
+                return runner.run(k, out, first, stop, read, deadline, min_trials)
+            sure = min(max(min_trials - first, 0), stop - first)  # kept whatever the limit
+            reached = _run(bound, k, out, first, first + sure, read, None)
+            if reached < stop and (deadline is None or read() <= deadline):
+                reached = _run(bound, k, out, reached, stop, read, deadline)
+            return reached
+
+        taken = run(0, n) if progress is None else _reporting(run, n, read, start, progress)
 
     per_call = 1e-9 / k
     values = np.frombuffer(out, dtype=np.int64, count=taken) * per_call
@@ -301,18 +316,33 @@ def quiet_gc(keep_enabled: bool = False) -> Iterator[None]:
             gc.enable()
 
 
-def trial_ns(call: Callable[[], Any], k: int, read: Callable[[], int]) -> int:
-    """Nanoseconds of one trial: ``k`` calls of ``call`` between two clock reads."""
-    return _one(call, None, k, read)
+def trial_ns(
+    call: Callable[[], Any], k: int, read: Callable[[], int], runner: SetupRunner | None = None
+) -> int:
+    """Nanoseconds of one trial: ``k`` calls of ``call`` between two clock reads (with a
+    ``runner``, its setup runs for each call before the clock starts)."""
+    return _one(call, runner, k, read)
 
 
 def calibrate(
     call: Callable[[], Any], read: Callable[[], int], target_ns: float, *,
-    max_loops: int = MAX_LOOPS,
+    max_loops: int = MAX_LOOPS, runner: SetupRunner | None = None,
 ) -> int:
     """Calls per trial so that a trial of ``call`` lasts at least ``target_ns``, at most
     ``max_loops`` (default ``MAX_LOOPS``; the engine's own calibration, see :func:`time_calls`)."""
-    return _calibrate(call, None, read, target_ns, None, max_loops)[0]
+    return _calibrate(call, runner, read, target_ns, None, max_loops)[0]
+
+
+def bind_call(
+    fn: Callable[..., Any], args: Sequence[Any] = (), kwargs: Mapping[str, Any] | None = None,
+    setup: Callable[[], Any] | None = None,
+) -> tuple[Callable[[], Any], SetupRunner | None]:
+    """``fn`` bound to its arguments, and the runner of its per-call ``setup`` (None without),
+    as :func:`trial_ns` and :func:`calibrate` take them."""
+    if setup is not None and not callable(setup):
+        raise TrialError(f"setup={setup!r} is not callable; pass a function that returns the input")
+    runner = SetupRunner(fn, tuple(args), dict(kwargs or {}), setup) if setup else None
+    return _bind(fn, args, kwargs), runner
 
 
 def _bind(
@@ -376,7 +406,7 @@ def _drift(values: np.ndarray) -> DriftTest | None:
     return drift_test(points)
 
 
-class _SetupRunner:
+class SetupRunner:
     """Trials with a per-call setup, run before the trial's clock starts."""
 
     def __init__(
@@ -429,12 +459,46 @@ class _SetupRunner:
         return stop
 
 
+#: What reports a long run's progress: (trials done, trials wanted, seconds so far).
+Progress = Callable[[int, int, float], None]
+#: A run reports its progress once it has lasted this many seconds, then about this often.
+PROGRESS_AFTER = 2.0
+PROGRESS_EVERY = 2.0
+
+
+def _reporting(
+    run: Callable[[int, int], int], n: int, read: Reader, start: int, progress: Progress
+) -> int:
+    """``run`` over ``n`` trials in chunks of about a tenth of ``PROGRESS_EVERY``, calling
+    ``progress`` between chunks when due (never inside a trial's timed region)."""
+    done, chunk = 0, 1
+    due = start + int(PROGRESS_AFTER * 1e9)
+    reported = False
+    while done < n:
+        t0 = read()
+        stop = min(n, done + chunk)
+        reached = run(done, stop)
+        now = read()
+        per_trial = (now - t0) / max(reached - done, 1)
+        done = reached
+        if reached < stop:  # the time limit stopped it
+            break
+        chunk = max(1, min(n, int(PROGRESS_EVERY * 1e8 / max(per_trial, 1.0))))
+        if now >= due and done < n:
+            progress(done, n, (now - start) / 1e9)
+            reported = True
+            due = now + int(PROGRESS_EVERY * 1e9)
+    if reported:
+        progress(done, n, (read() - start) / 1e9)
+    return done
+
+
 def _durations(count: int) -> array[int]:
     """A preallocated array of signed 64-bit nanosecond counts: storing into it makes no object."""
     return array("q", bytes(8 * count))
 
 
-def _one(call: Callable[[], Any], runner: _SetupRunner | None, k: int, read: Reader) -> int:
+def _one(call: Callable[[], Any], runner: SetupRunner | None, k: int, read: Reader) -> int:
     buffer = _durations(1)
     if runner is not None:
         runner.run(k, buffer, 0, 1, read, None)
@@ -444,7 +508,7 @@ def _one(call: Callable[[], Any], runner: _SetupRunner | None, k: int, read: Rea
 
 
 def _calibrate(
-    call: Callable[[], Any], runner: _SetupRunner | None, read: Reader, target_ns: float,
+    call: Callable[[], Any], runner: SetupRunner | None, read: Reader, target_ns: float,
     deadline: int | None, max_loops: int | None = None,
 ) -> tuple[int, list[tuple[int, int]]]:
     """Smallest k found (growing geometrically) whose trial lasts ``target_ns``.
@@ -471,7 +535,7 @@ def _calibrate(
 
 
 def _warm_up(
-    call: Callable[[], Any], runner: _SetupRunner | None, k: int, read: Reader, count: int,
+    call: Callable[[], Any], runner: SetupRunner | None, k: int, read: Reader, count: int,
     seconds: float, deadline: int | None,
 ) -> list[int]:
     warm: list[int] = []
@@ -540,17 +604,16 @@ def _notes(
             )
         )
     if drift is not None and drift.rejects(drift_alpha):
+        from meanband.stats.notes import drift_words
+
         direction = "upward (slowing)" if drift.statistic > 0 else "downward (speeding up)"
-        level = _median(values)
-        relative = drift.change / level if level > 0 else math.nan
-        change = f"{relative:+.1%}" if math.isfinite(relative) else "n/a"
         notes.append(
             Note(
                 "drift",
-                f"trials trend {direction} across the run ({drift.method} tau="
-                f"{drift.statistic:.2f}, p={drift.pvalue:.2g}; first to last trial {change}): "
-                "warm-up too short, "
-                "a throttling CPU or a busy neighbour; the t interval assumes independent trials",
+                f"trials trend {direction} across the run: {drift_words(drift, SECONDS)} "
+                f"({drift.method} tau={drift.statistic:.2f}, p={drift.pvalue:.2g}): warm-up too "
+                "short, a throttling CPU or a busy neighbour; the t interval assumes independent "
+                "trials",
             )
         )
     if math.isfinite(trial_ns) and info.resolution_ns > COARSE_STEP_SHARE * trial_ns:

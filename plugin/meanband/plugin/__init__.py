@@ -10,7 +10,13 @@ import pytest
 
 from meanband import defaults
 from meanband.plugin.options import ini_value, option_value
-from meanband.record.settings import SettingError, marker_settings, resolve, validate
+from meanband.record.settings import (
+    SettingError,
+    marker_settings,
+    resolve,
+    unknown_setting_names,
+    validate,
+)
 
 if TYPE_CHECKING:
     from meanband.record.recorder import Recorder
@@ -121,10 +127,10 @@ def trials(request: pytest.FixtureRequest) -> Recorder:
         where = f"marker @pytest.mark.meanband on {item.nodeid}"
         if marker.args:
             raise SettingError(f"{where}: give settings as keywords, e.g. meanband(n=40)")
-        try:
-            layers.insert(0, (where, marker_settings(**marker.kwargs)))
-        except TypeError as exc:
-            raise SettingError(f"{where}: {exc}") from None
+        unknown = unknown_setting_names(marker.kwargs)
+        if unknown:
+            raise SettingError(f"{where}: {unknown}")
+        layers.insert(0, (where, marker_settings(**marker.kwargs)))
     plan = dict(config.hook.pytest_meanband_item_settings(item=item) or {})
     series_plans = plan.pop("series", None) or {}
     tail: list[tuple[str, dict[str, Any]]] = config.stash[CONFIG_LAYERS_KEY]
@@ -176,7 +182,8 @@ def pytest_runtest_makereport(
 
 
 def _junit_properties(row: ResultRow, index: int | None) -> list[tuple[str, object]]:
-    """``meanband[series].index.field`` properties; series and index only where needed."""
+    """``meanband[series].index.field`` properties; series and index only where needed: n, the
+    interval (mean, low, high), its unit, the band (as written, and its edges) and the verdict."""
     decision = row["decision"]
     if decision is None:
         return []
@@ -185,12 +192,20 @@ def _junit_properties(row: ResultRow, index: int | None) -> list[tuple[str, obje
         prefix += f"[{row['series']}]"
     if index is not None:
         prefix += f".{index}"
-    interval = decision["interval"]
+    from meanband.units import format_band
+
+    interval, band = decision["interval"], decision["band"]
+    unit = row.get("unit")
+    # Numbers stay in the trials' unit (seconds for timings), named beside them, with the band.
     return [
         (f"{prefix}.n", interval["n"]),
         (f"{prefix}.mean", interval["mean"]),
         (f"{prefix}.low", interval["low"]),
         (f"{prefix}.high", interval["high"]),
+        (f"{prefix}.unit", unit or ""),
+        (f"{prefix}.band", format_band(band["low"], band["high"], unit)),
+        (f"{prefix}.band_low", band["low"]),
+        (f"{prefix}.band_high", band["high"]),
         (f"{prefix}.verdict", decision["verdict"]),
     ]
 
@@ -236,13 +251,15 @@ class SummaryPlugin:
 
     def pytest_terminal_summary(self, terminalreporter: pytest.TerminalReporter) -> None:
         from meanband.plugin.isolation import call_isolated, failures, settle_exit_status
+        from meanband.report.tables import fit_lines
 
         lines: list[str] = []
         verbosity = self.config.get_verbosity()
+        width = self.config.get_terminal_writer().fullwidth
         try:
             from meanband.report.terminal import format_summary
 
-            lines = format_summary(self.rows, verbosity)
+            lines = format_summary(self.rows, verbosity, width)
         except Exception as exc:  # the test results above must stay readable
             failures(self.config).add("printing the meanband summary",
                                       f"{type(exc).__name__}: {exc}")
@@ -250,7 +267,7 @@ class SummaryPlugin:
         # through one hook; everything that rows alone say is in format_summary.
         for extra in call_isolated(self.config, "pytest_meanband_summary_lines",
                                    {"config": self.config, "rows": self.rows}):
-            lines.extend(extra or ())
+            lines.extend(fit_lines(list(extra or ()), width))
         errors = failures(self.config).lines
         if self.session is not None:
             settle_exit_status(self.session)  # a summary hook may have failed just now

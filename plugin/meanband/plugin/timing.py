@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import contextlib
+from collections.abc import Callable
 from typing import TYPE_CHECKING
 
 import pytest
@@ -12,12 +14,36 @@ if TYPE_CHECKING:
 TIMING_SESSION_KEY = pytest.StashKey["TimingSession"]()
 
 class TimingSession:
-    """What every timing call of a session shares: clock measurements and the process's role."""
+    """What every timing call of a session shares: clock measurements, the process's role and
+    where a long run reports its progress."""
 
-    def __init__(self, environ: dict[str, str]) -> None:
+    def __init__(self, environ: dict[str, str], config: pytest.Config | None = None) -> None:
         #: Passed to the engine for its notes: names the xdist worker when this is one.
         self.environ = environ
         self._infos: dict[Clock, ClockInfo] = {}
+        self._config = config
+
+    def progress(self, label: str) -> Callable[[int, int, float], None] | None:
+        """A reporter of a long timing run's progress for ``label`` (a test id), or None where
+        none is wanted: under ``-q``, in an xdist worker (only the controller owns the
+        terminal) and without pytest's terminal."""
+        config = self._config
+        if config is None or self.environ or config.get_verbosity() < 0:
+            return None
+        terminal = config.pluginmanager.get_plugin("terminalreporter")
+        if terminal is None:
+            return None
+        capture = config.pluginmanager.get_plugin("capturemanager")
+
+        def report(done: int, wanted: int, seconds: float) -> None:
+            state = "done" if done >= wanted else "so far"
+            line = f"meanband: {label}: {done} of {wanted} trials timed, {seconds:.1f} s {state}"
+            # Past the test's output capture, as pytest's own live lines are written.
+            quiet = capture.global_and_fixture_disabled() if capture else contextlib.nullcontext()
+            with quiet:
+                terminal.write_line(line)
+
+        return report
 
     def clock_info(self, clock: Clock) -> ClockInfo:
         """The clock's step and read cost, measured on first use and then reused."""
@@ -30,14 +56,14 @@ class TimingSession:
 
 
 def pytest_configure(config: pytest.Config) -> None:
-    config.stash[TIMING_SESSION_KEY] = TimingSession(_worker_environ(config))
+    config.stash[TIMING_SESSION_KEY] = TimingSession(_worker_environ(config), config)
 
 
 def timing_session(config: pytest.Config) -> TimingSession:
     """The session's :class:`TimingSession` (made on first use if configure has not run)."""
     session = config.stash.get(TIMING_SESSION_KEY, None)
     if session is None:
-        session = config.stash[TIMING_SESSION_KEY] = TimingSession(_worker_environ(config))
+        session = config.stash[TIMING_SESSION_KEY] = TimingSession(_worker_environ(config), config)
     return session
 
 

@@ -8,7 +8,7 @@ from typing import Any
 
 import numpy as np
 
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.record.settings import Settings
 from meanband.stats.bands import Band, Edge, Tolerance, make_band
 from meanband.stats.decision import Decision
@@ -22,6 +22,7 @@ from meanband.stats.twostage import (
 )
 
 __all__ = ["AdaptiveRun", "collect", "planning_band", "refuse_options"]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 _BAND_KEYS = ("low", "high", "center", "tolerance")
 
@@ -101,7 +102,8 @@ class AdaptiveRun:
             self.run.pilot, self.run.second, self.band, plan, alpha=settings.normality_alpha
         )
         notes = assumption_notes(
-            decision.diagnostics, min_n=settings.min_n, normality_alpha=settings.normality_alpha
+            decision.diagnostics, min_n=settings.min_n, normality_alpha=settings.normality_alpha,
+            unit=self.band.unit,
         )
         notes.append({"code": "two-stage-capped" if plan.capped else "two-stage",
                       "text": plan.note()})

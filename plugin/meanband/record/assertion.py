@@ -7,7 +7,7 @@ from collections.abc import Iterable
 import numpy as np
 
 from meanband import defaults
-from meanband.errors import BandViolation
+from meanband.errors import BandViolation, hide_plugin_frames
 from meanband.record.message import describe
 from meanband.stats.bands import Edge, Tolerance, make_band
 from meanband.stats.decision import Decision, decide
@@ -17,6 +17,7 @@ from meanband.stats.rules import GUARDED
 from meanband.stats.uncertainty import InstrumentSpec
 
 __all__ = ["assert_mean_within"]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 
 def assert_mean_within(
@@ -48,6 +49,7 @@ def assert_mean_within(
         instrument_uncertainty=instrument_uncertainty, rule=rule, process=process,
     )
     if not decision.passed:
-        raise BandViolation(describe(decision, notes=assumption_notes(decision.diagnostics, method=method)),
+        raise BandViolation(describe(decision, notes=assumption_notes(
+            decision.diagnostics, method=method, unit=unit)),
                             decision)
     return decision

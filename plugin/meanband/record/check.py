@@ -3,20 +3,29 @@
 from __future__ import annotations
 
 import datetime
+import math
 from collections.abc import Collection, Iterable, Mapping
 from typing import Any
 
 import numpy as np
 
 from meanband import defaults
+from meanband.errors import hide_plugin_frames
 from meanband.stats.bands import Band
-from meanband.stats.decision import Decision, decide
+from meanband.stats.decision import WIDE_MARGIN, Decision, decide, edge_margin, headroom
 from meanband.stats.decision_rules import DecisionRule, ProcessPrior
 from meanband.stats.notes import assumption_notes
 from meanband.stats.rules import GUARDED
 from meanband.stats.uncertainty import InstrumentSpec
 
-__all__ = ["decide_with_notes", "metrology_notes"]
+__all__ = [
+    "DRIFT_SHARE",
+    "SHAPE_NOTES",
+    "decide_with_notes",
+    "drop_immaterial_drift",
+    "metrology_notes",
+]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 
 def decide_with_notes(
@@ -46,13 +55,43 @@ def decide_with_notes(
     )
     notes = assumption_notes(
         decision.diagnostics, min_n=setting("min_n", defaults.MIN_N),
-        normality_alpha=normality_alpha, method=method, skip=skip,
+        normality_alpha=normality_alpha, method=method, skip=skip, unit=band.unit,
     )
     notes.extend(metrology_notes(
         decision, today=today,
         min_ratio=setting("min_uncertainty_ratio", defaults.MIN_UNCERTAINTY_RATIO),
     ))
+    notes = drop_immaterial_drift(notes, decision)
+    if decision.passed and _wide_margin(decision):
+        # The shape of the data cannot change this verdict: nothing to say about normality.
+        notes = [note for note in notes if note["code"] not in SHAPE_NOTES]
     return decision, notes
+
+
+#: Notes on the shape of the data (normality, and the outliers that make a skew): left out of
+#: a check that passes with a wide margin (``WIDE_MARGIN``), which no shape of them could change.
+SHAPE_NOTES = frozenset({"not-normal", "not-normal-harmless", "log-not-normal", "outliers"})
+
+
+#: A drift matters to a check when the level moved, first third to last, by at least this share
+#: of the room between the mean and the nearest band edge (common practice, no source).
+DRIFT_SHARE = 0.25
+
+
+def drop_immaterial_drift(notes: list[dict[str, str]], decision: Decision) -> list[dict[str, str]]:
+    """``notes`` without a drift note when the drift is too small to matter against the band:
+    a 0.4 s call that drifts by 0.01% says nothing a 1 s budget needs to know."""
+    drift = decision.diagnostics.drift
+    shift = abs(drift.last - drift.first)
+    room = edge_margin(decision.interval.mean, decision.band)
+    if not (math.isfinite(shift) and math.isfinite(room)) or shift >= DRIFT_SHARE * room:
+        return notes
+    return [note for note in notes if note["code"] != "drift"]
+
+
+def _wide_margin(decision: Decision) -> bool:
+    iv, band = decision.interval, decision.band
+    return headroom(iv.mean, iv.low, iv.high, band.low, band.high) >= WIDE_MARGIN
 
 
 def metrology_notes(

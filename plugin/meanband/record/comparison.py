@@ -3,6 +3,7 @@ record the check as a result row."""
 
 from __future__ import annotations
 
+import functools
 import math
 from collections.abc import Callable
 from typing import Any
@@ -12,17 +13,22 @@ import numpy as np
 from meanband import defaults
 from meanband.collect.clock import get_clock
 from meanband.collect.paired import time_pairs
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.record.row import DecisionRecord, IntervalRecord, ResultRow, build_row
 from meanband.stats.ratio import RatioCheck, check_ratio
 from meanband.stats.verdict import Verdict
 
-__all__ = ["compare_callables"]
+__all__ = ["callable_name", "compare_callables"]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 
 def compare_callables(
-    new: Callable[[], Any],
-    old: Callable[[], Any],
+    new: Callable[..., Any],
+    old: Callable[..., Any],
     *,
+    args: tuple[Any, ...] = (),
+    kwargs: dict[str, Any] | None = None,
+    setup: Callable[[], Any] | None = None,
     n: int,
     at_most: float | None,
     at_least: float | None,
@@ -41,10 +47,19 @@ def compare_callables(
     from meanband.stats.diagnostics import diagnose
     from meanband.stats.planning import trials_needed
 
-    # Validate the limits before spending time on the callables.
+    # Validate the limits and the names before spending time on the callables.
     check_ratio(np.ones(2), np.ones(2), at_most=at_most, at_least=at_least)
+    new_name, old_name = callable_name(new), callable_name(old)
+    if name is None and (new_name is None or old_name is None or new_name == old_name):
+        unnamed = "a lambda or a callable without a name" if None in (new_name, old_name) else (
+            f"two callables both called {new_name}")
+        raise TrialError(
+            f"cannot name this comparison's row from {unnamed}; pass name=, e.g. "
+            "trials.compare(new, old, at_most=1.05, name='parse v2 / v1')"
+        )
     timer = get_clock(clock)
-    times = time_pairs(new, old, n, repeats=repeats, warmup=warmup, seed=seed, clock=timer.read)
+    times = time_pairs(new, old, n, repeats=repeats, warmup=warmup, seed=seed, clock=timer.read,
+                       args=args, kwargs=kwargs, setup=setup)
     result = check_ratio(
         times.first, times.second, at_most=at_most, at_least=at_least, confidence=confidence
     )
@@ -58,8 +73,8 @@ def compare_callables(
         suggested = trials_needed(
             sd_log, margin=margin, confidence=confidence, side="two-sided", power=power
         ) if margin > 0 and sd_log > 0 else None
-    new_name, old_name = _name(new), _name(old)
     label = name or f"{new_name} / {old_name}"
+    new_name, old_name = new_name or "first", old_name or "second"
     interval: IntervalRecord = {
         "mean": iv.ratio, "low": iv.low, "high": iv.high, "confidence": iv.confidence,
         "side": "two-sided", "n": iv.n_current, "df": iv.df,
@@ -80,7 +95,8 @@ def compare_callables(
     row = build_row(
         nodeid=nodeid, series=label, unit="x", source="compare",
         values=times.first / times.second, decision=decision, settings=settings,
-        timing={"clock": timer.name, "k": times.batch, "interleaved": True, "repeats": repeats},
+        timing={"clock": timer.name, "k": times.batch, "interleaved": True, "repeats": repeats,
+                "setup": setup is not None},
         comparison={
             "new": new_name,
             "old": old_name,
@@ -123,5 +139,24 @@ def _allowed(low: float, high: float) -> str:
     return f"{low:g}x to {high:g}x"
 
 
-def _name(fn: Callable[..., Any]) -> str:
-    return getattr(fn, "__name__", None) or type(fn).__name__
+def callable_name(fn: Callable[..., Any]) -> str | None:
+    """A readable name for a row: the function's qualified name without ``<locals>``, a
+    partial's function with its bound arguments (``parse(strict=True)``), a callable object's
+    class; None for a lambda, which has no name to give."""
+    if isinstance(fn, functools.partial):
+        inner = callable_name(fn.func)
+        if inner is None:
+            return None
+        bound = [_short(a) for a in fn.args] + [f"{k}={_short(v)}" for k, v in fn.keywords.items()]
+        return f"{inner}({', '.join(bound)})"
+    name = getattr(fn, "__qualname__", None) or getattr(fn, "__name__", None)
+    if not isinstance(name, str):
+        return type(fn).__name__
+    if "<lambda>" in name:
+        return None
+    return name.rsplit("<locals>.", 1)[-1]
+
+
+def _short(value: Any) -> str:
+    text = repr(value)
+    return text if len(text) <= 20 else text[:17] + "..."

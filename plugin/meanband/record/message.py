@@ -6,6 +6,7 @@ import math
 from collections.abc import Mapping, Sequence
 from typing import Any
 
+from meanband.errors import hide_plugin_frames
 from meanband.stats.decision import Decision
 from meanband.stats.verdict import Verdict
 from meanband.units import (
@@ -19,6 +20,7 @@ from meanband.units import (
 )
 
 __all__ = ["CAUTION", "budget_words", "describe", "gates_a_measurement", "rule_words"]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 #: What a passing gate on a measurement does and does not say; printed with every result that
 #: gates hardware (the summary, the Markdown and the JSON report).
@@ -60,7 +62,7 @@ def budget_words(
         return format_bound(value, unit, digits, scale=scale)
 
     text = (f"U = {fmt(budget['expanded'])} (k = {budget['coverage_factor']:.3f}, "
-            f"nu_eff {format_df(budget['effective_df'])}); u_A {fmt(budget['type_a'])} "
+            f"nu_eff {_effective_df(budget['effective_df'])}); u_A {fmt(budget['type_a'])} "
             f"(df {format_df(budget['type_a_df'])})")
     if budget.get("type_b"):
         text += f", u_B {fmt(budget['type_b'])} (df {format_df(budget['type_b_df'])})"
@@ -148,3 +150,15 @@ def describe(
     for note in notes or []:
         lines.append(f"  note       {note['text']}")
     return "\n".join(lines)
+
+
+#: Above this many effective degrees of freedom, k is within 0.2% of the normal quantile and
+#: the exact count (Welch-Satterthwaite gives figures like 781483) says nothing more.
+_MANY_DF = 1000
+
+
+def _effective_df(df: float | None) -> str:
+    """nu_eff as the budget line writes it: ``> 1000`` for the many that make k normal."""
+    if df is not None and math.isfinite(df) and df > _MANY_DF:
+        return f"> {_MANY_DF}"
+    return format_df(df)

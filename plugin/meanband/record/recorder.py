@@ -10,9 +10,9 @@ import numpy as np
 
 from meanband.collect.clock import get_clock
 from meanband.collect.timing import time_calls
-from meanband.errors import BandViolation, TrialError
+from meanband.errors import BandViolation, TrialError, hide_plugin_frames
 from meanband.record import adaptive, sequential
-from meanband.record.check import decide_with_notes
+from meanband.record.check import decide_with_notes, drop_immaterial_drift
 from meanband.record.message import describe
 from meanband.record.row import ResultRow, build_row
 from meanband.record.settings import Settings
@@ -24,9 +24,10 @@ from meanband.stats.methods import mean_interval
 from meanband.stats.rules import GUARDED
 from meanband.stats.sample import as_sample
 from meanband.stats.uncertainty import InstrumentSpec
-from meanband.units import SECONDS
+from meanband.units import SECONDS, duration_scale
 
 __all__ = ["Recorder", "Series"]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 class Series:
     """One named stream of trials in a test, with the checks made on it."""
@@ -121,6 +122,7 @@ class Series:
             clock_info=shared.clock_info(clock), min_trial_time=settings.min_trial_time,
             time_limit=shared.time_left(settings.time_limit), gc_enabled=settings.gc,
             environ=shared.environ,
+            progress=shared.progress(f"{self.nodeid}{f' [{self.name}]' if self.name else ''}"),
         )
         shared.spent += run.elapsed
         self._warmup = np.concatenate([self._warmup, run.warmup])
@@ -253,10 +255,12 @@ class Series:
     def extend(self, values: Iterable[float] | np.ndarray, *, unit: str | None = None) -> None:
         """Record values measured elsewhere; nothing is recorded if any value is bad."""
         clean = as_sample(values, minimum=0)
-        if (unit if unit is not None else self.unit) == "s" and clean.size and clean.min() < 0:
+        time_unit = unit if unit is not None else self.unit
+        if duration_scale(time_unit) is not None and clean.size and clean.min() < 0:
             bad = int(np.count_nonzero(clean < 0))
             raise TrialError(
-                f"{bad} of {clean.size} timings are negative (smallest {clean.min():.4g} s); a "
+                f"{bad} of {clean.size} timings are negative (smallest {clean.min():.4g} "
+                f"{time_unit}); a "
                 "duration cannot be below zero, so the clock or the subtraction that made them "
                 "is wrong: fix it before checking a budget"
             )
@@ -371,6 +375,15 @@ class Series:
             )
             notes = self._timing_notes + notes
             recorded = settings.to_dict()
+        notes = drop_immaterial_drift(notes, decision)
+        repeated = self._repeats(recorded, decision)
+        if repeated:
+            notes = [*notes, {
+                "code": "repeated-check",
+                "text": f"the same {self._values.size} trials were already checked against this "
+                        f"band with these settings (check {repeated} of this series): this row "
+                        "repeats it; drop one of the checks",
+            }]
         row = self._row(recorded, decision, notes, **extra)
         self._rows.append(row)
         overdue = [note for note in notes if note["code"] == "calibration-overdue"]
@@ -381,6 +394,17 @@ class Series:
         if not decision.passed:
             raise BandViolation(describe(decision, label=self._label(), notes=notes), decision)
         return decision
+
+    def _repeats(self, settings: dict[str, Any], decision: Decision) -> int:
+        """The 1-based number of an earlier check of this series on the same trials, band and
+        settings (0 when there is none)."""
+        band = decision.band.to_dict()
+        for number, row in enumerate(self._rows, start=1):
+            earlier: dict[str, Any] = dict(row.get("decision") or {})
+            if (earlier.get("band") == band and row.get("settings") == settings
+                    and (earlier.get("interval") or {}).get("n") == decision.interval.n):
+                return number
+        return 0
 
     # -- reporting --------------------------------------------------------------------------
 
@@ -454,9 +478,9 @@ class Recorder(Series):
 
     def compare(
         self,
-        new: Callable[[], Any],
-        old: Callable[[], Any],
-        *,
+        new: Callable[..., Any],
+        old: Callable[..., Any],
+        *args: Any,
         at_most: float | None = None,
         at_least: float | None = None,
         n: int | None = None,
@@ -465,10 +489,16 @@ class Recorder(Series):
         warmup: int = 2,
         seed: int | None = None,
         name: str | None = None,
+        setup: Callable[[], Any] | None = None,
+        **kwargs: Any,
     ) -> Any:
-        """Time ``new`` and ``old`` in interleaved pairs (random order within each pair) and
-        pass only if the interval of the time ratio new/old lies inside the limits, e.g.
-        ``trials.compare(parse_v2, parse_v1, at_most=1.05)``: "v2 is at most 5% slower".
+        """Time ``new(*args, **kwargs)`` and ``old(*args, **kwargs)`` in interleaved pairs
+        (random order within each pair) and pass only if the interval of the time ratio new/old
+        lies inside the limits, e.g. ``trials.compare(parse_v2, parse_v1, LINE, at_most=1.05)``:
+        "v2 is at most 5% slower on LINE". ``setup`` runs before every call, outside the timed
+        region, and a value it returns (not None) is passed as the first argument, as in
+        :meth:`time`. The row is named ``new / old`` from the callables; a lambda has no name,
+        so give ``name=``.
 
         Drift of the machine hits both sides of a pair alike and cancels in the ratio, which
         makes this the robust gate on a noisy CI machine (see ``meanband.collect.paired``).
@@ -479,7 +509,7 @@ class Recorder(Series):
         result, row, message = compare_callables(
             new, old, n=settings.n, at_most=at_most, at_least=at_least,
             confidence=settings.confidence, power=settings.power, repeats=repeats, warmup=warmup,
-            seed=seed, clock=settings.clock,
+            seed=seed, clock=settings.clock, args=args, kwargs=kwargs, setup=setup,
             name=name, nodeid=self.nodeid, settings=settings.to_dict(),
         )
         self._comparisons.append(row)
@@ -511,6 +541,10 @@ class SharedTiming:
     @property
     def environ(self) -> dict[str, str] | None:
         return None if self.session is None else self.session.environ
+
+    def progress(self, label: str) -> Any:
+        """Where a long timing run of ``label`` reports its progress (None: nowhere)."""
+        return None if self.session is None else self.session.progress(label)
 
     def time_left(self, limit: float | None) -> float | None:
         """Seconds left of ``limit``; once spent, a sliver, so the engine takes its minimum."""

@@ -13,6 +13,8 @@ import os
 from collections.abc import Mapping, Sequence
 from typing import TYPE_CHECKING, Any, TypedDict
 
+from meanband.errors import hide_plugin_frames
+
 if TYPE_CHECKING:
     import numpy as np
 
@@ -40,6 +42,7 @@ __all__ = [
     "build_row",
     "decision_record",
 ]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 class BandRecord(TypedDict):
     """``Band.to_dict()``: an open edge is -inf or +inf."""

@@ -18,7 +18,7 @@ from typing import Any
 
 import numpy as np
 
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.record.adaptive import planning_band
 from meanband.record.settings import Settings
 from meanband.stats.bands import Band, Edge, Tolerance, make_band, side_alpha
@@ -48,6 +48,7 @@ __all__ = [
     "is_sequential",
     "parse_looks",
 ]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 #: The value of ``n`` that asks for this mode.
 UNTIL_DECIDED = "until-decided"
@@ -169,7 +170,7 @@ class SequentialRun(ArrayEquality):
             diagnostics, None, self.band.unit, power=settings.power,
         )
         notes = assumption_notes(diagnostics, min_n=settings.min_n,
-                                 normality_alpha=settings.normality_alpha)
+                                 normality_alpha=settings.normality_alpha, unit=self.band.unit)
         notes.append(self.note())
         return decision, notes, {"sequential": self.record()}
 

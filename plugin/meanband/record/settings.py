@@ -8,9 +8,18 @@ from dataclasses import dataclass, fields, replace
 from typing import Any
 
 from meanband import defaults
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 
-__all__ = ["DEFAULTS", "SettingError", "Settings", "marker_settings", "resolve", "validate"]
+__all__ = [
+    "DEFAULTS",
+    "SettingError",
+    "Settings",
+    "marker_settings",
+    "resolve",
+    "unknown_setting_names",
+    "validate",
+]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 
 class SettingError(TrialError):
@@ -93,6 +102,24 @@ def marker_settings(
 ) -> dict[str, Any]:
     """The signature of ``@pytest.mark.meanband(...)``: a wrong keyword is a TypeError."""
     return {k: v for k, v in locals().items() if v is not None}
+
+
+def unknown_setting_names(given: Iterable[str]) -> str:
+    """What is wrong with the names in ``given`` that are no setting ("" when all are), with
+    the closest valid name for each and the list of valid ones, e.g. for a marker typo."""
+    import difflib
+    import inspect
+
+    valid = list(inspect.signature(marker_settings).parameters)
+    unknown = [name for name in given if name not in valid]
+    if not unknown:
+        return ""
+    parts = []
+    for name in unknown:
+        close = difflib.get_close_matches(name, valid, n=1)
+        parts.append(f"{name!r} (did you mean {close[0]!r}?)" if close else repr(name))
+    plural = "s" if len(parts) > 1 else ""
+    return f"unknown meanband setting{plural} {', '.join(parts)}; the settings are {', '.join(valid)}"
 
 
 def _integer(minimum: int) -> Callable[[Any], int]:
@@ -219,7 +246,7 @@ def validate(name: str, value: Any, source: str) -> Any:
     """Return ``value`` converted for setting ``name``, or raise SettingError naming ``source``."""
     check = _VALIDATORS.get(name)
     if check is None:
-        raise SettingError(f"{source}: unknown meanband setting {name!r}")
+        raise SettingError(f"{source}: {unknown_setting_names([name])}")
     try:
         return check(value)
     except (TypeError, ValueError) as exc:

@@ -7,9 +7,11 @@ from collections.abc import Mapping
 from typing import Any
 
 from meanband import defaults
+from meanband.errors import hide_plugin_frames
 from meanband.stats.suggest import Suggestion, suggest_trials
 
 __all__ = ["suggestion_for_row", "trial_seconds"]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 
 def trial_seconds(row: Mapping[str, Any]) -> float | None:
@@ -77,10 +79,12 @@ def suggestion_for_row(
 
 
 def _instrument_count(row: Mapping[str, Any], decision: Mapping[str, Any]) -> dict[str, Any]:
-    """The decision's own count when an instrument uncertainty shares the budget, else nothing."""
+    """The decision's own count when an instrument uncertainty shares the budget (whose
+    per-trial spread is then the combined uncertainty, not a sample sd), else nothing."""
     budget = row.get("uncertainty") or {}
     if budget.get("type_b"):
-        return {"instrument_count": decision.get("suggested_n")}
+        return {"instrument_count": decision.get("suggested_n"),
+                "spread": "combined uncertainty x sqrt(n)"}
     return {}
 
 

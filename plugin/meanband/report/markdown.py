@@ -43,9 +43,9 @@ def _interval_text(
     side = interval["side"]
     level = f"{interval['confidence'] * 100:g}%"
     if side == "upper":
-        bound = f"≤ {_number(interval['high'], unit, digits, scale)}"
+        bound = f"<= {_number(interval['high'], unit, digits, scale)}"
     elif side == "lower":
-        bound = f"≥ {_number(interval['low'], unit, digits, scale)}"
+        bound = f">= {_number(interval['low'], unit, digits, scale)}"
     else:
         bound = (f"[{_number(interval['low'], unit, digits, scale)}, "
                  f"{_number(interval['high'], unit, digits, scale)}]")

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import os
 from collections.abc import Mapping, Sequence
 from typing import Any
 
@@ -28,6 +29,20 @@ def _label(key: tuple[str, str, int]) -> str:
     return text + (f" (check {ordinal + 1} of the series)" if ordinal else "")
 
 
+def _refuse_repeats(reports: Sequence[tuple[str, Mapping[str, Any]]]) -> None:
+    """A report file given twice would count its trials twice: pooled with itself, its
+    intervals would narrow for nothing."""
+    seen: set[str] = set()
+    for name, _ in reports:
+        key = os.path.normcase(os.path.realpath(name))
+        if key in seen:
+            raise ReportError(
+                f"{name} is given twice: merging a report with itself would count its trials "
+                "twice; give each report once"
+            )
+        seen.add(key)
+
+
 def merge_reports(
     reports: Sequence[tuple[str, Mapping[str, Any]]], *, pool: bool = False
 ) -> dict[str, Any]:
@@ -39,6 +54,7 @@ def merge_reports(
     """
     if not reports:
         raise ReportError("nothing to merge: give at least one report")
+    _refuse_repeats(reports)
     runs: list[dict[str, Any]] = []
     groups: dict[tuple[str, str, int], list[tuple[str, dict[str, Any]]]] = {}
     for name, report in reports:

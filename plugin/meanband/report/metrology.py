@@ -9,15 +9,16 @@ from typing import Any
 from meanband.record.message import CAUTION, budget_words, gates_a_measurement, rule_words
 from meanband.record.row import ResultRow
 from meanband.report.rows import row_name, sorted_rows
-from meanband.units import SECONDS, significant_digits, time_scale
+from meanband.units import SECONDS, duration_scale, significant_digits, time_scale
 
 __all__ = ["caution_lines", "metrology_lines"]
 
 
 def metrology_lines(rows: Sequence[ResultRow], verbosity: int = 0) -> list[str]:
     """One line per check that carries an instrument uncertainty or uses simple acceptance
-    (every check at ``verbosity > 0``): U, k, nu_eff, u_A, u_B, the rule and the conformance
-    probability, in the unit of the trials, in the words of the failure message."""
+    (every check of a measured value, not a timing, at ``verbosity > 0``): U, k, nu_eff, u_A,
+    u_B, the rule and the conformance probability, in the unit of the trials, in the words of
+    the failure message."""
     if verbosity < 0:
         return []
     out = []
@@ -27,7 +28,10 @@ def metrology_lines(rows: Sequence[ResultRow], verbosity: int = 0) -> list[str]:
             continue
         instrument = bool(budget and budget.get("type_b"))
         simple = bool(rule and rule.get("rule") == "simple")
-        if instrument or simple or verbosity > 0:
+        # A plain timing check is no measurement gate: U, k and conformance probabilities
+        # would only crowd its -v summary.
+        timing = duration_scale(row.get("unit")) is not None
+        if instrument or simple or (verbosity > 0 and not timing):
             out.append(f"  {row_name(row)}: {_describe(row, budget, rule)}")
     return ["", "measurement uncertainty and decision rule:", *out] if out else []
 

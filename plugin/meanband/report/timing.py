@@ -52,7 +52,8 @@ def timing_lines(rows: Sequence[ResultRow], verbosity: int = 1) -> list[str]:
         values = row.get("values") or []
         trial = sorted(values)[len(values) // 2] * k if values else float("nan")
         parts = [
-            f"k={k} call{'s' if k != 1 else ''}/trial",
+            # "k" is the coverage factor in the uncertainty lines: the count is written out.
+            f"{k} call{'s' if k != 1 else ''} per trial",
             f"{t.get('trials', len(values))} trials of about {duration(trial)}",
             f"min trial {duration(float(t.get('min_trial_time', 0.0)))}",
             f"warm-up {t.get('warmup_trials', 0)}",

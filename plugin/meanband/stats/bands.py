@@ -6,10 +6,11 @@ import math
 from dataclasses import dataclass
 from typing import Any
 
-from meanband.errors import TrialError
-from meanband.units import SECONDS, parse_duration
+from meanband.errors import TrialError, hide_plugin_frames
+from meanband.units import duration_scale, parse_duration
 
 __all__ = ["Band", "Edge", "Tolerance", "make_band", "side_alpha"]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 Edge = float | int | str | None
 #: A tolerance: symmetric ``0.4``, or asymmetric ``(below, above)`` such as ``(0.3, 0.5)``.
@@ -48,7 +49,7 @@ def make_band(
 
     ``tolerance=(below, above)`` is asymmetric: ``center=85, tolerance=(0.3, 0.5)`` is the
     band 84.7..85.5 (-0.3/+0.5). Edges may be duration strings (``"3ms"``) when the trials are
-    timings (``unit="s"``).
+    in a time unit (``"s"``, ``"ms"``, ``"us"``, ``"ns"``): they are converted to it.
     """
     if center is not None or tolerance is not None:
         if low is not None or high is not None:
@@ -98,12 +99,20 @@ def _tolerance_values(tolerance: Tolerance, unit: str | None) -> tuple[float, fl
 
 def _edge_value(edge: Edge, unit: str | None, name: str) -> float:
     if isinstance(edge, str):
-        if unit != SECONDS:
+        per_unit = duration_scale(unit)
+        if per_unit is None:
+            try:
+                parse_duration(edge)
+            except TrialError:
+                raise TrialError(f"{name}= must be a number, got {edge!r}") from None
+            remedy = ("record them with unit='s' (e.g. trials.extend(values, unit='s')) to give "
+                      "edges as durations" if unit is None else "give a plain number in "
+                      f"{unit}")
             raise TrialError(
-                f"{name}={edge!r}: a band edge with a unit string needs timing trials "
-                f"(these trials are in {unit or 'no unit'}); give a plain number"
+                f"{name}={edge!r}: a band edge with a time unit needs trials in a time unit "
+                f"(these trials are in {unit or 'no unit'}); {remedy}"
             )
-        return parse_duration(edge)
+        return parse_duration(edge) / per_unit
     try:
         value = float(edge)  # type: ignore[arg-type]
     except (TypeError, ValueError) as exc:

@@ -13,7 +13,7 @@ from typing import TYPE_CHECKING, Any, ClassVar
 
 import numpy as np
 
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.stats.rules import (
     conformance_probability,
 )
@@ -61,6 +61,7 @@ __all__ = [
     "specific_risk_guard_band",
     "uncertainty_ratio",
 ]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 #: meanband's verdicts (the values of :class:`meanband.Verdict`).
 PASS, FAIL, UNDECIDED = "PASS", "FAIL", "UNDECIDED"

@@ -9,7 +9,7 @@ from typing import Any
 
 import numpy as np
 
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.stats.sample import as_sample, check_probability, deviations, sum_of_products
 
 __all__ = [
@@ -22,9 +22,11 @@ __all__ = [
     "dagostino_pearson",
     "diagnose",
     "drift_test",
+    "end_means",
     "lag1_autocorrelation",
     "tukey_fences",
 ]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 #: Largest n for which scipy's Shapiro-Wilk (Royston 1995, AS R94) gives an accurate p-value.
 SHAPIRO_MAX_N = 5000
@@ -59,6 +61,9 @@ class DriftTest:
 
     ``change`` is the slope times (n - 1): how far the level moved from first trial to last.
     ``used`` is the number of trials tested (fewer than n when evenly spaced trials stand in).
+    ``first`` and ``last`` are the means of the first and the last third of the trials: what a
+    note reports, since a slope extrapolated over a curved trend can overshoot (a timing that
+    falls from 13 ms to 2 ms is not "-315%").
     """
 
     method: str
@@ -69,6 +74,16 @@ class DriftTest:
     testable: bool
     used: int = 0
     reason: str = ""
+    first: float = math.nan
+    last: float = math.nan
+
+    @property
+    def relative_change(self) -> float:
+        """``last / first - 1``, for positive quantities such as timings (never below -100%);
+        nan when the first part's mean is not positive."""
+        if not (math.isfinite(self.first) and math.isfinite(self.last)) or self.first <= 0:
+            return math.nan
+        return self.last / self.first - 1.0
 
     def rejects(self, alpha: float) -> bool:
         """Whether the test finds a trend at level ``alpha``."""
@@ -373,8 +388,15 @@ def _drift(x: np.ndarray) -> DriftTest:
     tau = kendalltau(order[tested], x[tested])
     sloped = _evenly_spaced(n, SLOPE_MAX_N)
     slope = float(theilslopes(x[sloped], order[sloped]).slope)
+    first, last = end_means(x)
     return DriftTest("Mann-Kendall", float(tau.statistic), float(tau.pvalue), slope,
-                     slope * (n - 1), True, int(tested.size))
+                     slope * (n - 1), True, int(tested.size), first=first, last=last)
+
+
+def end_means(values: np.ndarray) -> tuple[float, float]:
+    """Means of the first and the last third of ``values`` (at least one value each)."""
+    part = max(values.size // 3, 1)
+    return float(np.mean(values[:part])), float(np.mean(values[-part:]))
 
 
 def _evenly_spaced(n: int, limit: int) -> np.ndarray:

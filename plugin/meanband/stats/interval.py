@@ -8,10 +8,11 @@ from typing import Any
 
 import numpy as np
 
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.stats.sample import check_confidence, location_scale
 
 __all__ = ["SIDES", "Interval", "check_side", "critical_t", "t_interval"]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 SIDES = ("two-sided", "upper", "lower")
 

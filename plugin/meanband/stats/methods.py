@@ -14,7 +14,7 @@ from collections.abc import Callable, Iterable
 import numpy as np
 
 from meanband import defaults
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.stats.interval import Interval, check_side, critical_t, t_interval
 from meanband.stats.sample import as_sample, check_confidence, location_scale
 from meanband.stats.skewed_intervals import bootstrap_t_interval, hall_interval
@@ -32,6 +32,7 @@ __all__ = [
     "log_t_interval",
     "mean_interval",
 ]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 #: Seed of the bootstrap's generator: the same trials always give the same interval.
 BOOTSTRAP_SEED = 20_260_907

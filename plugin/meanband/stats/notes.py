@@ -6,7 +6,8 @@ import math
 from collections.abc import Collection
 from statistics import NormalDist
 
-from meanband.stats.diagnostics import BIMODAL_THRESHOLD, Diagnostics
+from meanband.errors import hide_plugin_frames
+from meanband.stats.diagnostics import BIMODAL_THRESHOLD, Diagnostics, DriftTest
 
 __all__ = [
     "ASSUMPTION_CODES",
@@ -14,10 +15,12 @@ __all__ = [
     "MIN_BOOTSTRAP_TRIALS",
     "SHAPE_FREE_METHOD",
     "assumption_notes",
+    "drift_words",
     "judged_skewness",
     "lognormal_skewness",
     "trials_for_skewness",
 ]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 
 #: Codes of the notes that :func:`assumption_notes` writes (a pool of runs recomputes them).
@@ -66,6 +69,7 @@ def assumption_notes(
     alpha: float = 0.05,
     drift_alpha: float = 0.01,
     skip: Collection[str] = (),
+    unit: str | None = None,
 ) -> list[dict[str, str]]:
     """Notes on the assumptions behind the interval, each ``{"code": ..., "text": ...}``.
 
@@ -76,6 +80,7 @@ def assumption_notes(
     drift when Mann-Kendall rejects at ``drift_alpha`` (stricter, as a drift note asks for action);
     ``method`` is the interval method in use, so no note recommends what is already used.
     Codes in ``skip`` are left out (e.g. "drift" when the timing engine has its own drift note).
+    ``unit`` is the trials' unit, written with every value a note gives.
     """
     notes: list[dict[str, str]] = []
     d = diagnostics
@@ -122,9 +127,9 @@ def assumption_notes(
     independence = _independence_notes(d, alpha, method)
     notes.extend(independence)
     if drifting:
-        text = (f"trials drift: the level moved by about {drift.change:.4g} from first to last "
-                f"trial (Mann-Kendall p = {drift.pvalue:.3g}); the mean is not steady, so the "
-                "interval describes this run only: warm up longer or find the cause")
+        text = (f"trials drift: {drift_words(drift, unit)} (Mann-Kendall p = "
+                f"{drift.pvalue:.3g}); the mean is not steady, so the interval describes this "
+                "run only: warm up longer or find the cause")
         if independence or d.lag1_significant:
             text += " (autocorrelated trials alone can make this test fire)"
         notes.append({"code": "drift", "text": text})
@@ -250,3 +255,22 @@ def _independence_notes(d: Diagnostics, alpha: float, method: str) -> list[dict[
         "method='batch-means' allows for it",
         "recommend": "batch-means",
     }]
+
+
+def drift_words(drift: DriftTest, unit: str | None) -> str:
+    """How the level moved, first third to last, with the unit: as a relative change for
+    timings (``the level moved from 13.1 ms (first third) to 2.03 ms (last third), -84.5%``;
+    a change of means of durations cannot fall below -100%), else by how much in the unit (a
+    percentage of a reading in degC or V would depend on the scale's zero)."""
+    from meanband.units import SECONDS, duration_scale, format_value, time_scale
+
+    scale = time_scale(max(abs(drift.first), abs(drift.last))) if unit == SECONDS else None
+    first = format_value(drift.first, unit, 4, scale=scale)
+    last = format_value(drift.last, unit, 4, scale=scale)
+    text = f"the level moved from {first} (first third) to {last} (last third)"
+    relative = drift.relative_change
+    if duration_scale(unit) is not None and math.isfinite(relative) and drift.last >= 0:
+        text += f", {relative:+.1%}"
+    else:
+        text += f", by {format_value(drift.last - drift.first, unit, 3, scale=scale)}"
+    return text

@@ -7,10 +7,11 @@ import math
 import numpy as np
 
 from meanband import defaults
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.stats.sample import check_confidence, check_probability
 
 __all__ = ["power_against_edge", "power_inside_band", "trials_needed"]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 _N_MIN = 2
 

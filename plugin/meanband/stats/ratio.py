@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import math
-import re
 from collections.abc import Iterable
 from dataclasses import asdict, dataclass
 from typing import Any
@@ -11,7 +10,7 @@ from typing import Any
 import numpy as np
 
 from meanband import defaults
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.stats.sample import as_sample, check_confidence, location_scale
 from meanband.stats.verdict import Verdict
 
@@ -29,6 +28,7 @@ __all__ = [
     "ratio_interval",
     "side_blind_outliers",
 ]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 #: A measurement longer than this many times its side's median is a candidate interruption
 #: (a descheduling costs a time slice, milliseconds, against measurements of tens of µs).
@@ -365,22 +365,24 @@ def judge_ratio(interval: RatioInterval, low: float = -math.inf, high: float = m
     return Verdict.UNDECIDED
 
 
-_FRACTION = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(%?)\s*$")
-
-
 def parse_fraction(text: str | float, what: str) -> float:
-    """A relative amount written ``"5%"`` or ``0.05``; refuses negative or unreadable values."""
-    if isinstance(text, int | float) and not isinstance(text, bool):
-        value = float(text)
-    else:
-        match = _FRACTION.match(str(text))
-        if not match:
-            raise TrialError(
-                f"cannot read {what}={text!r} as a relative amount; write e.g. '5%' or 0.05"
-            )
-        value = float(match.group(1)) / (100.0 if match.group(2) else 1.0)
+    """A relative amount written ``"5%"`` or ``0.05``; refuses negative or unreadable values,
+    and a bare number above 1, which is almost always a percentage written without its sign."""
+    from meanband.units import read_fraction
+
+    try:
+        value, percent = read_fraction(text, what)
+    except TrialError:
+        raise TrialError(
+            f"cannot read {what}={text!r} as a relative amount; write e.g. '5%' or 0.05"
+        ) from None
     if not math.isfinite(value) or value < 0.0:
         raise TrialError(f"{what} must be a finite amount >= 0, got {text!r}; write e.g. '5%'")
+    if not percent and value > 1.0:
+        raise TrialError(
+            f"{what}={text!r} would mean {value:.0%}: a bare number is a fraction (0.05 is 5%); "
+            f"did you mean '{value:g}%'? Write an amount above 100% with its sign, e.g. '150%'"
+        )
     return value
 
 

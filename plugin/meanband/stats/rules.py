@@ -6,7 +6,7 @@ import math
 from dataclasses import dataclass
 from typing import Any
 
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.stats.verdict import Verdict
 
 __all__ = [
@@ -18,6 +18,7 @@ __all__ = [
     "check_rule",
     "conformance_probability",
 ]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 #: Guarded acceptance, guard band w = U: PASS only when the interval lies inside the band.
 GUARDED = "guarded"

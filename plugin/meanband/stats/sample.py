@@ -9,7 +9,7 @@ from collections.abc import Iterable, Mapping, Sequence
 
 import numpy as np
 
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 
 __all__ = [
     "ArrayEquality",
@@ -20,6 +20,7 @@ __all__ = [
     "location_scale",
     "sum_of_products",
 ]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 _MAX_LISTED_POSITIONS = 8
 
@@ -87,18 +88,22 @@ def check_probability(value: object, what: str = "confidence") -> float:
     """Return ``value`` as a float strictly between 0 and 1, or raise naming ``what``.
 
     The one validator of levels and powers (confidence, power, test levels), so every one of
-    them refuses the same values with the same words.
+    them refuses the same values with the same words. ``"95%"`` and ``0.95`` are the same.
     """
-    if isinstance(value, bool):
-        raise TrialError(f"{what} must be a number between 0 and 1, got {value!r}")
+    from meanband.units import read_fraction
+
     try:
-        level = float(value)  # type: ignore[arg-type]
-    except (TypeError, ValueError) as exc:
-        raise TrialError(f"{what} must be a number between 0 and 1, got {value!r}") from exc
+        level, percent = read_fraction(value, what)
+    except TrialError:
+        raise TrialError(
+            f"{what} must be a number between 0 and 1 (or a percentage such as '95%'), "
+            f"got {value!r}"
+        ) from None
     if not (0.0 < level < 1.0) or math.isnan(level):
         # A percentage such as 95 or 99.9 was meant as a fraction; 1.5 is no percentage of a
         # level anyone uses, and "0.015" would mislead.
-        hint = f"; did you mean {level / 100:g}?" if 50.0 <= level < 100.0 else ""
+        hint = (f"; did you mean {level / 100:g}? (or write '{level:g}%')"
+                if not percent and 50.0 <= level < 100.0 else "")
         raise TrialError(f"{what} must lie strictly between 0 and 1, got {value!r}{hint}")
     return level
 

@@ -47,7 +47,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.stats.bands import side_alpha
 from meanband.stats.interval import Interval
 from meanband.stats.sample import as_sample, check_confidence, location_scale
@@ -72,6 +72,7 @@ __all__ = [
     "spending",
     "stop_or_go_on",
 ]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 #: The trial count at which the anytime bound is tuned to be narrowest.
 DEFAULT_TIGHTEST_AT = 20

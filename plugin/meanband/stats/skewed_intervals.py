@@ -18,7 +18,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.stats.bands import side_alpha
 from meanband.stats.interval import Interval, critical_t
 from meanband.stats.sample import as_sample, location_scale
@@ -39,6 +39,7 @@ __all__ = [
     "resample_pivots",
     "row_moments",
 ]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 #: Seed of the resampling methods' generator: the same trials always give the same interval.
 BOOTSTRAP_SEED = 20_261_202

@@ -7,7 +7,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from meanband import defaults
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.stats.planning import power_against_edge, power_inside_band, trials_needed
 from meanband.stats.sample import check_confidence, check_probability
 from meanband.stats.verdict import Verdict
@@ -20,6 +20,7 @@ __all__ = [
     "check_power",
     "suggest_trials",
 ]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 #: Power asked of a suggested count unless the settings say otherwise.
 DEFAULT_POWER = defaults.POWER
@@ -82,10 +83,13 @@ def suggest_trials(
     trial_seconds: float | None = None,
     unit: str | None = None,
     instrument_count: int | str | None = "none given",
+    spread: str = "sd",
 ) -> Suggestion | None:
     """The count that decides a check at ``power``, from its mean, sd and band.
 
-    The count is the one-sample t test's at the edge nearest the mean (for a mean inside a
+    ``spread`` names ``sd`` in the words: ``"sd"`` for a sample's, another name when it is a
+    combined uncertainty scaled to one trial. The count is the one-sample t test's at the edge
+    nearest the mean (for a mean inside a
     two-sided band, the two one-sided tests' at both edges at once), with the effect
     (mean - edge) / sd taken from this run (noncentral t; see ``planning.trials_needed``). A
     FAIL gets no suggestion: the interval already lies wholly outside the band, and more
@@ -136,7 +140,7 @@ def suggest_trials(
         else:
             reason = (
                 f"{verdict} at n={n}; more than {_N_CEILING:,} trials would be needed: the mean "
-                f"lies {format_value(margin, unit)} from the edge, small beside its sd "
+                f"lies {format_value(margin, unit)} from the edge, small beside its {spread} "
                 f"{format_value(sd, unit)}"
             )
         return Suggestion(None, reason, "none", n, power, power_now)
@@ -146,7 +150,7 @@ def suggest_trials(
         count = max(needed, n + 1)
         reason = (
             f"UNDECIDED at n={n}; about {count} trials would decide it with {power:.0%} power "
-            f"(mean {format_value(mean, unit)}, sd {format_value(sd, unit)}, "
+            f"(mean {format_value(mean, unit)}, {spread} {format_value(sd, unit)}, "
             f"{format_value(margin, unit)} from the edge)"
         )
         return Suggestion(count, reason, "more", n, power, power_now)

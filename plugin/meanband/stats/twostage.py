@@ -42,7 +42,7 @@ from typing import Any
 import numpy as np
 
 from meanband import defaults
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.stats.bands import Band, side_alpha
 from meanband.stats.decision import Decision
 from meanband.stats.diagnostics import diagnose
@@ -70,6 +70,7 @@ __all__ = [
     "stein_interval",
     "verdicts",
 ]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 #: Pilot size when none is given: enough degrees of freedom (9) that t's tail stays modest.
 DEFAULT_PILOT = 10

@@ -14,7 +14,7 @@ from typing import Any
 import numpy as np
 
 from meanband import defaults
-from meanband.errors import TrialError
+from meanband.errors import TrialError, hide_plugin_frames
 from meanband.stats.interval import SIDES, Interval, critical_t
 from meanband.stats.sample import as_sample, check_confidence, check_probability, location_scale
 
@@ -29,6 +29,7 @@ __all__ = [
     "uncertainty_budget",
     "welch_satterthwaite",
 ]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 #: ``Interval.method`` of an interval that carries a Type B part (a plain t interval says "t").
 COMBINED_METHOD = "t+instrument"

@@ -4,7 +4,10 @@ from __future__ import annotations
 
 import enum
 
+from meanband.errors import hide_plugin_frames
+
 __all__ = ["Verdict"]
+__tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 
 class Verdict(str, enum.Enum):
