@@ -77,6 +77,9 @@ def test_show_lists_each_check(store: Any, capsys: pytest.CaptureFixture[str]) -
     assert "machine x86_64, 2 CPUs, Linux, meanband 0.1.0" in out
     assert "test_fares.py::test_quote" in out and "µs" in out and "PASS" in out
     assert re.search(r"^test_bench.py::test_rail +volts +25 +5.0\d* V .* unchecked$", out, re.M)
+    # A budget's bound reads as in the summary, not as an interval to minus infinity.
+    assert re.search(r"^test_fares.py::test_quote .*<= [0-9.]+ ms", out, re.M), out
+    assert "-inf" not in out
 
 
 def test_compare_flags_the_slowdown_and_the_moved_value(

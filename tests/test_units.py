@@ -129,3 +129,11 @@ class TestTimeScale:
     )
     def test_largest_unit_showing_at_least_one(self, seconds: float, scale: float) -> None:
         assert time_scale(seconds) == scale
+
+
+def test_a_probability_that_rounds_to_one_is_not_written_as_certainty() -> None:
+    from meanband.units import format_probability
+
+    assert format_probability(1.0) == "1 - <1e-16"
+    assert format_probability(1 - 2e-6) == "1 - 2e-06"
+    assert format_probability(0.0) == "0" and format_probability(0.333) == "0.333"

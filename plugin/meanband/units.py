@@ -177,9 +177,12 @@ def _unit_endings(text: str) -> list[str]:
 
 
 def format_probability(p: float) -> str:
-    """A probability with enough digits to tell 0.9999 from 1 (``1 - 2e-06``)."""
-    if p == 0.0 or p == 1.0:
-        return f"{p:g}"
+    """A probability with enough digits to tell 0.9999 from 1 (``1 - 2e-06``); one that rounds
+    to 1 in float64 is ``1 - <1e-16``, since certainty is not what was computed."""
+    if p == 1.0:
+        return "1 - <1e-16"
+    if p == 0.0:
+        return "0"
     if p > 0.99:
         return f"1 - {1.0 - p:.2g}"
     return f"{p:.3g}"

@@ -378,11 +378,14 @@ def _value(value: float, unit: str | None) -> str:
 
 
 def _bounds(check: StoredCheck) -> str:
+    """The interval as the summary writes it: ``<= 3.856 µs`` for an upper bound alone."""
     if check.low is None and check.high is None:
         return "-"
-    low = "-inf" if check.low is None else _value(check.low, check.unit)
-    high = "inf" if check.high is None else _value(check.high, check.unit)
-    return f"[{low}, {high}]"
+    if check.low is None:
+        return f"<= {_value(check.high, check.unit)}"  # type: ignore[arg-type]
+    if check.high is None:
+        return f">= {_value(check.low, check.unit)}"
+    return f"[{_value(check.low, check.unit)}, {_value(check.high, check.unit)}]"
 
 
 def _table(headers: Sequence[str], rows: Sequence[Sequence[str]]) -> str:
