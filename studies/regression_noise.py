@@ -13,6 +13,11 @@ adjustment), for contrast.
 
 Run: .venv/bin/python studies/regression_noise.py [aa_runs] [slow_runs] [baseline_runs]
 (defaults 20, 10, 3: about five minutes on a 2-core machine).
+
+``.venv/bin/python studies/regression_noise.py probe [runs]`` instead asks whether the run-to-run
+movement is the machine's speed: it runs the unchanged suite ``runs`` times (default 5), times a
+fixed pure-Python reference loop right after each check in the same process, and prints each
+check's spread of run means before and after dividing by the reference.
 """
 
 from __future__ import annotations
@@ -31,9 +36,10 @@ from meanband.stats.regression import REGRESSED, compare_samples
 from meanband.store.history import HistoryStore
 from scipy import stats
 
-AA_RUNS = int(sys.argv[1]) if len(sys.argv) > 1 else 20
-SLOW_RUNS = int(sys.argv[2]) if len(sys.argv) > 2 else 10
-BASELINE_RUNS = int(sys.argv[3]) if len(sys.argv) > 3 else 3
+_NUMBERS = [a for a in sys.argv[1:] if a.isdigit()]
+AA_RUNS = int(_NUMBERS[0]) if _NUMBERS else 20
+SLOW_RUNS = int(_NUMBERS[1]) if len(_NUMBERS) > 1 else 10
+BASELINE_RUNS = int(_NUMBERS[2]) if len(_NUMBERS) > 2 else 3
 SLOWED = "test_office.py::test_fare_table"
 
 SUITE = '''
@@ -207,5 +213,58 @@ def main() -> None:
               f"'regressed' elsewhere: {false}/{SLOW_RUNS}")
 
 
+PROBE = '''
+import statistics
+import time
+
+
+def _work():
+    total = 0
+    for i in range(20000):
+        total += i * i % 7
+    return total
+
+
+def pytest_runtest_makereport(item, call):
+    if call.when != "call":
+        return
+    for _ in range(3):
+        _work()
+    times = []
+    for _ in range(15):
+        start = time.perf_counter_ns()
+        _work()
+        times.append(time.perf_counter_ns() - start)
+    with open("reference.txt", "a", encoding="utf-8") as handle:
+        handle.write(f"{item.nodeid} {statistics.median(times) * 1e-9!r}\\n")
+'''
+
+
+def probe(runs: int) -> None:
+    with tempfile.TemporaryDirectory() as tmp:
+        folder = Path(tmp)
+        (folder / "test_office.py").write_text(textwrap.dedent(SUITE), encoding="utf-8")
+        (folder / "conftest.py").write_text(PROBE, encoding="utf-8")
+        raw, reference = [], []
+        for _ in range(runs):
+            (folder / "reference.txt").unlink(missing_ok=True)
+            report = run(folder)
+            ref = dict(line.split() for line in
+                       (folder / "reference.txt").read_text(encoding="utf-8").splitlines())
+            rows = sorted(report["rows"], key=lambda r: r["nodeid"])
+            raw.append([float(np.mean(np.log(r["values"]))) for r in rows])
+            reference.append([float(np.log(float(ref[r["nodeid"]]))) for r in rows])
+    logs, refs = np.array(raw), np.array(reference)
+    print(f"{runs} runs of unchanged code; sd of each check's run mean on the log scale")
+    print("  as timed:            " + " ".join(f"{v:.3f}" for v in logs.std(axis=0, ddof=1)))
+    print("  over the reference:  " + " ".join(f"{v:.3f}" for v in
+                                            (logs - refs).std(axis=0, ddof=1)))
+    print("  reference per run:   " + " ".join(f"{np.exp(v) * 1e3:.3f} ms"
+                                            for v in refs.mean(axis=1)))
+
+
 if __name__ == "__main__":
-    main()
+    if len(sys.argv) > 1 and sys.argv[1] == "probe":
+        probe(int(sys.argv[2]) if len(sys.argv) > 2 else 5)
+    else:
+        main()
