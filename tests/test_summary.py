@@ -57,3 +57,24 @@ def test_verbose_adds_sd_df_and_critical_value():
     assert header.split()[-3:] == ["sd", "df", "t"]
     row = next(line for line in lines if line.startswith("t.py::a"))
     assert " 19 " in row and "2.093" in row  # df = n - 1; t(0.975, 19) = 2.093, e-Handbook 1.3.6.7.2 (from memory)
+
+
+def test_an_auto_row_shows_its_pilot_beside_the_second_stage(pytester, run_suite) -> None:
+    # Stein's interval takes its mean from the second stage alone; the pilot is shown beside it,
+    # so the summary and `meanband history show` (all trials) no longer seem to disagree.
+    pytester.makepyfile(
+        """
+        import numpy as np
+
+        def test_tank_level(trials):
+            rng = np.random.default_rng(1)
+            trials.sample(lambda: float(rng.normal(1.0, 0.1)), n="auto", unit="m",
+                          band=dict(high=1.2), max_n=200)
+            trials.check()
+        """
+    )
+    result = run_suite("--meanband-markdown=out.md")
+    line = next(x for x in result.outlines
+                if x.startswith("test_an_auto_row_shows_its_pilot_beside_the_second_stage.py::"))
+    assert " 2 + 10 pilot " in line, line
+    assert "| 2 + 10 pilot |" in (pytester.path / "out.md").read_text()

@@ -9,6 +9,7 @@ from pathlib import Path
 from typing import Any
 
 from meanband.record.message import CAUTION, budget_words, gates_a_measurement, rule_words
+from meanband.report.rows import trials_text
 from meanband.store.report_json import ReportError, totals
 from meanband.units import SECONDS, format_band, format_value, significant_digits, time_scale
 
@@ -90,7 +91,7 @@ def _row_cells(row: Mapping[str, Any]) -> list[str]:
     verdict = decision["verdict"]
     return [
         (verdict if verdict == "PASS" else f"**{verdict}**") + _rule_mark(row),
-        str(interval["n"]),
+        trials_text(row),
         _number(mean, unit, digits, scale),
         _interval_text(interval, unit, digits, scale),
         format_band(band["low"], band["high"], unit, digits),

@@ -12,7 +12,7 @@ from meanband.record.row import ResultRow
 from meanband.report.attention import threatens_verdict
 from meanband.report.baseline import baseline_lines
 from meanband.report.metrology import caution_lines, metrology_lines
-from meanband.report.rows import row_name, sorted_rows
+from meanband.report.rows import row_name, sorted_rows, trials_text
 from meanband.report.tables import MIN_NAME, fit_lines, fit_table, shorten_left
 from meanband.report.timing import timing_lines
 from meanband.stats.verdict import Verdict
@@ -133,7 +133,7 @@ def _cells(row: Row) -> list[str]:
     t_text = f"{critical:.4g}" if critical is not None and math.isfinite(critical) else "-"
     sd = interval.get("sd")
     sd_text = fmt(sd) if sd is not None and math.isfinite(sd) else "-"
-    return [row_name(row), str(interval["n"]), fmt(mean), bounds, level, band_text,
+    return [row_name(row), trials_text(row), fmt(mean), bounds, level, band_text,
             decision["verdict"], sd_text, format_df(interval.get("df")), t_text]
 
 
