@@ -180,3 +180,21 @@ def test_plots_are_written_atomically_and_never_through_a_planted_link(tmp_path)
     assert victim.read_text() == "keep me"
     assert not planted.is_symlink() and image(planted).ndim == 3
     assert [p.name for p in (tmp_path / "img").iterdir() if p.name.startswith(".")] == []
+
+
+def test_a_temperature_budget_keeps_a_pass_and_a_fail_apart():
+    # Against 61.2 degC a PASS near 61.16 and a FAIL near 61.30 both sat at about 1.00 when the
+    # position was a fraction of the limit; a temperature's zero means nothing, so the data
+    # set the scale and the two lie on either side of the edge.
+    passing = make_row("t.py::test_oven[a]", [61.14, 61.16, 61.15, 61.17, 61.16, 61.15],
+                       band={"high": 61.2}, unit="degC")
+    failing = make_row("t.py::test_oven[b]", [61.29, 61.31, 61.30, 61.30, 61.29, 61.31],
+                       band={"high": 61.2}, unit="degC")
+    assert passing["decision"]["verdict"] == "PASS" and failing["decision"]["verdict"] == "FAIL"
+    below = plots.band_position(passing["decision"])
+    above = plots.band_position(failing["decision"])
+    assert below.mean < 0.8 and below.high <= 1.0
+    assert above.mean > 1.2 and above.high > above.mean  # an upper bound: its low end is open
+    # Volts keep the fraction of the limit: zero volts is zero.
+    volts = make_row("t.py::test_rail", [4.9, 5.1, 5.0, 5.0], band={"high": 6.0}, unit="V")
+    assert plots.band_position(volts["decision"]).mean == pytest.approx(5.0 / 6.0)

@@ -107,13 +107,19 @@ def slugs(rows: Sequence[Mapping[str, Any]]) -> list[str]:
     return out
 
 
+#: Units whose zero is a convention: a one-sided band is drawn on a scale set by the data.
+OFFSET_UNITS = frozenset({"degC", "°C", "degF", "°F"})
+
+
 @dataclass(frozen=True)
 class Position:
     """Where an interval lies relative to its band, on an axis shared by all units.
 
     Two-sided band: 0 is the low edge, 1 the high edge. An upper budget puts its edge at 1 and
     zero at 0 (a position is then the fraction of the budget); a lower limit puts its edge at 0
-    and its own size at 1. Open ends of one-sided bounds are infinite.
+    and its own size at 1. In a unit whose zero is a convention (degC, degF) a one-sided band's
+    scale is twice the farther of the mean and its bound from the edge instead. Open ends of
+    one-sided bounds are infinite (the chart draws them as arrows).
     """
 
     low: float
@@ -126,8 +132,18 @@ def band_position(decision: Mapping[str, Any]) -> Position:
     band, interval = decision["band"], decision["interval"]
     low_edge, high_edge = float(band["low"]), float(band["high"])
     mean = float(interval["mean"])
+    unit = band.get("unit") or decision.get("unit")
     if math.isfinite(low_edge) and math.isfinite(high_edge):
         origin, size = low_edge, high_edge - low_edge
+    elif unit in OFFSET_UNITS:
+        # A temperature's zero is a convention, so "a fraction of the limit" means nothing (a
+        # PASS at 61.16 and a FAIL at 61.30 degC against 61.2 would both sit at 1.00): scale by
+        # the data instead, twice the farther of the mean and its bound from the edge.
+        edge = high_edge if math.isfinite(high_edge) else low_edge
+        bound = float(interval["high"]) if math.isfinite(high_edge) else float(interval["low"])
+        size = 2.0 * max(abs(edge - mean), abs(edge - bound)) if math.isfinite(bound) else 0.0
+        size = size or 1.0
+        origin = edge - size if math.isfinite(high_edge) else edge
     elif math.isfinite(high_edge):
         size = abs(high_edge)
         origin = high_edge - size
@@ -263,7 +279,7 @@ def _draw_intervals(rows: Sequence[Mapping[str, Any]], title: str) -> Any:
     ax.set_ylim(-0.7, len(rows) - 0.3)
     ax.set_yticks(y, _short_labels(rows), fontsize=8)
     ax.set_xlabel("position in the band: 0 = low edge, 1 = high edge; a budget's edge is at 1, "
-                  "zero at 0", fontsize=8)
+                  "zero at 0 (degC and degF: set by the data)", fontsize=8)
     ax.set_title(title, fontsize=10)
     from matplotlib.lines import Line2D
     from matplotlib.patches import Patch
