@@ -31,6 +31,18 @@ def test_a_series_reads_the_query_and_records_the_identity(dmm) -> None:
     assert reading.errors == () and reading.query == "MEAS:VOLT:DC?"
 
 
+def test_a_long_series_reports_its_progress_between_readings(dmm, monkeypatch) -> None:
+    from meanband.collect import progress
+
+    monkeypatch.setattr(progress, "PROGRESS_AFTER", 0.0)
+    monkeypatch.setattr(progress, "PROGRESS_EVERY", 0.0)
+    heard: list[tuple[int, int]] = []
+    values, _ = read_series(dmm, "MEAS:VOLT:DC?", 6,
+                            progress=lambda done, n, seconds: heard.append((done, n)))
+    assert values.size == 6
+    assert heard == [(1, 6), (2, 6), (3, 6), (4, 6), (5, 6), (6, 6)]
+
+
 def test_the_error_queue_is_read_after_the_series(dmm) -> None:
     dmm.write("CONF:VOLT:DC:RANGE 10")  # a command this meter does not know: -113 is queued
     _, reading = read_series(dmm, "MEAS:VOLT:DC?", 3)

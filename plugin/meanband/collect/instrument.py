@@ -17,6 +17,8 @@ from typing import Any
 
 import numpy as np
 
+from meanband.collect.progress import take_with_progress
+from meanband.collect.timing import Progress
 from meanband.errors import TrialError, hide_plugin_frames
 
 __all__ = [
@@ -73,13 +75,14 @@ def read_series(
     timeout_ms: float | None = None,
     identity_query: str | None = IDENTITY_QUERY,
     error_query: str | None = ERROR_QUERY,
+    progress: Progress | None = None,
 ) -> tuple[np.ndarray, InstrumentReading]:
     """``n`` readings of ``query``, each answer parsed as one number.
 
     ``timeout_ms`` sets the resource's own VISA timeout first (None keeps the one it has). A VISA
     error, a timeout or an answer that is not a finite number raises :class:`TrialError` naming
     the resource, the query and the reading. ``identity_query``/``error_query`` may be None for an
-    instrument that does not speak SCPI.
+    instrument that does not speak SCPI. ``progress`` hears of a long series between readings.
     """
     name = resource_name(resource)
     if not callable(getattr(resource, "query", None)):
@@ -96,9 +99,9 @@ def read_series(
             raise TrialError(f"timeout={timeout_ms!r} must be a positive number of milliseconds")
         resource.timeout = timeout_ms
     identity = _ask(resource, identity_query, name).strip() if identity_query else None
-    values = np.empty(int(n), dtype=np.float64)
-    for i in range(int(n)):
-        values[i] = _number(_ask(resource, query, name), query, name, i)
+    values = np.array(take_with_progress(
+        lambda i: _number(_ask(resource, query, name), query, name, i), int(n), progress),
+        dtype=np.float64)
     errors = _drain(resource, error_query, name) if error_query else ()
     timeout = getattr(resource, "timeout", None)
     return values, InstrumentReading(

@@ -23,7 +23,7 @@ class TimingSession:
         self._infos: dict[Clock, ClockInfo] = {}
         self._config = config
 
-    def progress(self, label: str) -> Callable[[int, int, float], None] | None:
+    def progress(self, label: str, verb: str = "timed") -> Callable[[int, int, float], None] | None:
         """A reporter of a long timing run's progress for ``label`` (a test id), or None where
         none is wanted: under ``-q``, in an xdist worker (only the controller owns the
         terminal) and without pytest's terminal."""
@@ -37,7 +37,8 @@ class TimingSession:
 
         def report(done: int, wanted: int, seconds: float) -> None:
             state = "done" if done >= wanted else "so far"
-            line = f"meanband: {label}: {done} of {wanted} trials timed, {seconds:.1f} s {state}"
+            line = (f"meanband: {label}: {done} of {wanted} trials {verb}, {seconds:.1f} s "
+                    f"{state}")
             # Past the test's output capture, as pytest's own live lines are written.
             quiet = capture.global_and_fixture_disabled() if capture else contextlib.nullcontext()
             with quiet:

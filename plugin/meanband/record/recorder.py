@@ -9,6 +9,7 @@ from typing import Any
 import numpy as np
 
 from meanband.collect.clock import get_clock
+from meanband.collect.progress import take_with_progress
 from meanband.collect.timing import time_calls
 from meanband.errors import BandViolation, TrialError, hide_plugin_frames
 from meanband.record import adaptive, sequential
@@ -157,7 +158,8 @@ class Series:
             raise TrialError("timeout= goes with query= (an instrument's VISA timeout, in ms)")
 
         def collect(count: int) -> np.ndarray:
-            collected = [fn(*args, **kwargs) for _ in range(count)]
+            collected = take_with_progress(lambda _: fn(*args, **kwargs), count,
+                                           self._progress("taken"))
             try:
                 return as_sample(collected, minimum=1)
             except TrialError as exc:
@@ -202,7 +204,8 @@ class Series:
         readings: list[Any] = []
 
         def collect(count: int) -> np.ndarray:
-            values, reading = read_series(instrument, query, count, timeout_ms=timeout)
+            values, reading = read_series(instrument, query, count, timeout_ms=timeout,
+                                          progress=self._progress("read"))
             readings.append(reading)
             self._instrument = reading.to_dict()
             return values
@@ -430,6 +433,11 @@ class Series:
             settings=settings, timing=self._timing, **extra,
         )
 
+    def _progress(self, verb: str) -> Any:
+        """This series' progress reporter (None where no line is wanted)."""
+        return self._test_timing.progress(
+            f"{self.nodeid}{f' [{self.name}]' if self.name else ''}", verb)
+
     def _label(self) -> str:
         return self.name
 
@@ -542,9 +550,9 @@ class SharedTiming:
     def environ(self) -> dict[str, str] | None:
         return None if self.session is None else self.session.environ
 
-    def progress(self, label: str) -> Any:
-        """Where a long timing run of ``label`` reports its progress (None: nowhere)."""
-        return None if self.session is None else self.session.progress(label)
+    def progress(self, label: str, verb: str = "timed") -> Any:
+        """Where a long run of ``label`` reports its progress (None: nowhere)."""
+        return None if self.session is None else self.session.progress(label, verb)
 
     def time_left(self, limit: float | None) -> float | None:
         """Seconds left of ``limit``; once spent, a sliver, so the engine takes its minimum."""
