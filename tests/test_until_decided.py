@@ -15,13 +15,43 @@ from meanband.stats.sequential import anytime_interval
 CONFTEST = """
 import json
 
+import pytest
+
+import meanband.collect.clock as clock_module
+
+
+class FakeClock:
+    \"\"\"A wall clock that moves only when the timed call says so: the time limit is then
+    reached after the same trials however busy the machine is.\"\"\"
+
+    def __init__(self):
+        self.now = 0
+
+    def read(self):
+        self.now += 50
+        return self.now
+
+    def varying(self, durations):
+        def call(*args):
+            self.now += next(durations)
+        return call
+
+
+@pytest.fixture
+def fake(monkeypatch):
+    clock = FakeClock()
+    monkeypatch.setitem(clock_module.CLOCKS, "wall",
+                        clock_module.Clock("wall", clock.read, "fake clock",
+                                           stated_resolution_ns=1.0))
+    return clock
+
+
 def pytest_meanband_session_finish(config, rows):
     (config.rootpath / "rows.json").write_text(json.dumps(rows))
 """
 
 SUITE = """
 import itertools
-import time
 
 import numpy as np
 import pytest
@@ -39,17 +69,14 @@ def test_mean_on_the_edge_runs_to_the_cap(trials):
                   max_n=60)
     trials.check()
 
-def busy(seconds):
-    end = time.perf_counter() + seconds
-    while time.perf_counter() < end:
-        pass
-
-WAITS = itertools.cycle(np.random.default_rng(3).uniform(0.0002, 0.0008, 997).tolist())
+WAITS = itertools.cycle(
+    np.random.default_rng(3).uniform(200_000, 800_000, 997).astype(int).tolist())
 
 @pytest.mark.meanband(time_limit="150ms", min_trial_time="1ms")
-def test_the_time_limit_ends_it(trials):
-    # Mean about 0.5 ms, 0.01 ms above the low edge: deciding takes far longer than the limit allows.
-    trials.time(lambda: busy(next(WAITS)), n="until-decided",
+def test_the_time_limit_ends_it(trials, fake):
+    # Calls of 0.2-0.8 ms on a fake clock (mean 0.5 ms, 0.01 ms above the low edge): deciding
+    # takes far longer than the limit allows, on an idle machine or a busy one.
+    trials.time(fake.varying(WAITS), n="until-decided",
                 band=dict(low="0.49ms", high="0.9ms"), max_n=100_000)
     trials.check()
 """
