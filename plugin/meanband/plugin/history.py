@@ -401,6 +401,7 @@ class HistoryPlugin:
     def compare(self, row: dict[str, Any]) -> dict[str, Any]:
         """The row's ``baseline`` entry: the verdict against the baseline runs, or why none."""
         from meanband.errors import TrialError
+        from meanband.stats.bands import side_alpha
         from meanband.stats.multiplicity import immediate_threshold
         from meanband.stats.regression import (
             CANNOT_COMPARE,
@@ -441,7 +442,7 @@ class HistoryPlugin:
                     "reason": f"{busy}; --meanband-compare-anywhere compares anyway"}
         settings = row.get("settings") or {}
         confidence = settings.get("confidence", defaults.CONFIDENCE)
-        alpha = (1.0 - confidence) / 2.0
+        alpha = side_alpha(confidence, "two-sided")
         threshold = immediate_threshold(alpha, self.comparisons, self.settings.adjustment)
         try:
             result = compare_with_runs(
@@ -476,6 +477,7 @@ class HistoryPlugin:
         """The full Holm step-down or BH step-up over all p-values of the run: checks it adds
         are regressed too, but their tests have already reported, so the session fails."""
         from meanband.report.rows import row_name
+        from meanband.stats.bands import side_alpha
         from meanband.stats.multiplicity import adjusted_rejections
         from meanband.stats.regression import REGRESSED
 
@@ -485,7 +487,7 @@ class HistoryPlugin:
         family = max(int(r["baseline"].get("comparisons") or 0) for r in judged)
         by_level: dict[float, list[dict[str, Any]]] = {}
         for row in judged:
-            alpha = (1.0 - float(row["baseline"]["ratio"]["confidence"])) / 2.0
+            alpha = side_alpha(float(row["baseline"]["ratio"]["confidence"]), "two-sided")
             by_level.setdefault(alpha, []).append(row)
         for alpha, group in by_level.items():
             p_values = [float(r["baseline"]["p_value"]) for r in group]

@@ -11,8 +11,9 @@ import numpy as np
 
 from meanband import defaults
 from meanband.errors import TrialError
+from meanband.stats.bands import side_alpha
 from meanband.stats.ratio import RatioInterval, judge_ratio, ratio_interval
-from meanband.stats.run_noise import Between, TwoLevelRatio
+from meanband.stats.run_noise import Between, TwoLevelRatio, satterthwaite_df
 from meanband.stats.verdict import Verdict
 from meanband.units import SECONDS
 
@@ -105,12 +106,7 @@ def compare_samples(
         "status": status,
         "timing": timing,
         "ratio": interval.to_dict(),
-        "limit_low": None if math.isinf(low) else low,
-        "limit_high": high,
-        "current_mean": interval.mean_current,
-        "baseline_mean": interval.mean_baseline,
-        "n_current": interval.n_current,
-        "n_baseline": interval.n_baseline,
+        **_limits_and_means(low, high, interval),
     }
     if status == CANNOT_TELL:
         result["suggested_n"] = _trials_to_decide(xc, xb, interval, (low, high), confidence, power)
@@ -120,6 +116,20 @@ def compare_samples(
             "(Fieller) rather than on the log scale"
         )
     return result
+
+
+def _limits_and_means(
+    low: float, high: float, interval: RatioInterval | TwoLevelRatio
+) -> dict[str, Any]:
+    """The allowed range and the two sides' means and counts, as every comparison row has them."""
+    return {
+        "limit_low": None if math.isinf(low) else low,
+        "limit_high": high,
+        "current_mean": interval.mean_current,
+        "baseline_mean": interval.mean_baseline,
+        "n_current": interval.n_current,
+        "n_baseline": interval.n_baseline,
+    }
 
 
 def _trials_to_decide(
@@ -242,7 +252,7 @@ def compare_with_runs(
     p_value = interval.one_sided_p(high, above=True)
     if math.isfinite(low):
         p_value = min(p_value, interval.one_sided_p(low, above=False))
-    alpha = (1.0 - interval.confidence) / 2.0
+    alpha = side_alpha(interval.confidence, "two-sided")
     limit = alpha if threshold is None else threshold
     if p_value <= limit:
         status = REGRESSED
@@ -259,12 +269,7 @@ def compare_with_runs(
             "method": "two-level log" if positive else "two-level relative",
             "estimand": "geometric means" if positive else "means",
         },
-        "limit_low": None if math.isinf(low) else low,
-        "limit_high": high,
-        "current_mean": interval.mean_current,
-        "baseline_mean": interval.mean_baseline,
-        "n_current": interval.n_current,
-        "n_baseline": interval.n_baseline,
+        **_limits_and_means(low, high, interval),
         "p_value": p_value,
         "threshold": limit,
         "noise": {"between_sd": interval.between_sd, "source": interval.between_source,
@@ -314,15 +319,10 @@ def _runs_or_trials_to_decide(
                 "interval wider than its distance to the limit, so more trials per run will not "
                 "decide it; more baseline runs, an A/A calibration or a quieter machine can")}
         following = max(2, math.ceil((var_c + var_b / k) / needed))
-        df = _satterthwaite_df([(run_part, between.df), (var_c / following, following - 1.0),
+        df = satterthwaite_df([(run_part, between.df), (var_c / following, following - 1.0),
                                 (var_b / (following * k), k * (following - 1.0))])
         if following == n:
             break
         n = following
     return {"suggested_n": n}
 
-
-def _satterthwaite_df(parts: list[tuple[float, float]]) -> float:
-    total = sum(v for v, _ in parts)
-    denominator = sum(v * v / d for v, d in parts if v > 0 and d > 0 and math.isfinite(d))
-    return math.inf if total <= 0 or denominator == 0 else total * total / denominator

@@ -33,6 +33,7 @@ __all__ = [
     "pool_between",
     "position_shift",
     "run_level",
+    "satterthwaite_df",
     "two_level_ratio",
 ]
 
@@ -190,7 +191,7 @@ def two_level_ratio(
     ]
     variance = sum(v for v, _ in parts)
     se = math.sqrt(variance)
-    df = _satterthwaite(parts)
+    df = satterthwaite_df(parts)
     from scipy import stats
 
     half = float(stats.t.ppf(0.5 + level / 2.0, df)) * se if se > 0 else 0.0
@@ -207,12 +208,15 @@ def two_level_ratio(
     )
 
 
-def _satterthwaite(parts: Sequence[tuple[float, float]]) -> float:
-    total = sum(v for v, _ in parts)
-    if total <= 0.0:
+def satterthwaite_df(parts: Sequence[tuple[float, float]]) -> float:
+    """Welch-Satterthwaite degrees of freedom of a sum of variance parts ``(variance, df)``:
+    :func:`meanband.stats.uncertainty.welch_satterthwaite` on their standard deviations, and
+    infinite when every part is zero (nothing is estimated)."""
+    from meanband.stats.uncertainty import welch_satterthwaite
+
+    if sum(v for v, _ in parts) <= 0.0:
         return math.inf
-    denominator = sum(v * v / df for v, df in parts if v > 0 and df > 0 and math.isfinite(df))
-    return math.inf if denominator == 0.0 else total * total / denominator
+    return welch_satterthwaite([math.sqrt(v) for v, _ in parts], [df for _, df in parts])
 
 
 def position_shift(runs: Sequence[Sequence[float] | np.ndarray]) -> tuple[float, float] | None:

@@ -79,8 +79,7 @@ def load_baseline(
     assumed: float = ASSUMED_RUN_NOISE,
 ) -> Baseline:
     """The newest ``keep`` runs of label ``ref`` (or the one run it names), read from ``store``."""
-    runs = store.baseline_runs(ref, keep)
-    return read_baseline(store, [run.id for run in runs], assumed=assumed)
+    return _read(store, tuple(store.baseline_runs(ref, keep)), assumed)
 
 
 def read_baseline(
@@ -91,6 +90,11 @@ def read_baseline(
     runs = tuple(by_id[i] for i in run_ids if i in by_id)
     if not runs:
         raise ValueError(f"none of the runs {list(run_ids)} is in the store any more")
+    return _read(store, runs, assumed)
+
+
+def _read(store: HistoryStore, runs: tuple[RunInfo, ...], assumed: float) -> Baseline:
+    """The stored checks of ``runs`` and the label's noise floors, assembled."""
     stored: dict[tuple[str, str], list[StoredCheck]] = {}
     for run in runs:
         for check in store.checks(run.id):

@@ -423,9 +423,7 @@ class HistoryStore:
             db.begin(write=True)
             try:
                 run_id = db.insert_id(
-                    "INSERT INTO runs (label, started, git_commit, git_branch, git_dirty, host, "
-                    "machine, cpus, system, python, meanband, fingerprint_json) "
-                    "VALUES (?,?,?,?,?,?,?,?,?,?,?,?)",
+                    _INSERT_RUN,
                     (
                         str(label), when, env.get("commit"), env.get("branch"),
                         None if env.get("dirty") is None else int(bool(env["dirty"])),
@@ -451,9 +449,7 @@ class HistoryStore:
             db.begin(write=True)
             try:
                 run_id = db.insert_id(
-                    "INSERT INTO runs (label, started, git_commit, git_branch, git_dirty, host, "
-                    "machine, cpus, system, python, meanband, fingerprint_json) "
-                    "VALUES (?,?,?,?,?,?,?,?,?,?,?,?)",
+                    _INSERT_RUN,
                     (
                         run.label, run.started, run.commit, run.branch,
                         None if run.dirty is None else int(run.dirty), run.host, run.machine,
@@ -512,7 +508,10 @@ class HistoryStore:
     def find_run(self, ref: str | int | None = None) -> RunInfo:
         """The run a user means: the newest run (``None`` or ``"latest"``), the newest run with
         that label, or the run with that id (``7`` or ``"#7"``)."""
-        runs = self.runs()
+        return self._pick(self.runs(), ref)
+
+    def _pick(self, runs: list[RunInfo], ref: str | int | None) -> RunInfo:
+        """:meth:`find_run` among ``runs`` (newest first), read once by the caller."""
         if not runs:
             raise StoreError(
                 f"the history store {self.location} holds no runs yet; record one with "
@@ -541,10 +540,11 @@ class HistoryStore:
         ``ref``, or the single run a number or ``"latest"`` names."""
         if keep < 1:
             raise StoreError(f"a baseline needs at least 1 run, got {keep}")
-        first = self.find_run(ref)
+        runs = self.runs()
+        first = self._pick(runs, ref)
         if ref is None or str(ref) in ("", "latest") or first.label != str(ref):
             return [first]
-        return [run for run in self.runs() if run.label == first.label][:keep]
+        return [run for run in runs if run.label == first.label][:keep]
 
     def save_noise_floors(self, label: str, floors: Iterable[NoiseFloor]) -> int:
         """Store measured noise floors for ``label`` in one transaction; return how many.
@@ -713,6 +713,10 @@ def _check_file(path: Path, create: bool) -> None:
         )
 
 
+_INSERT_RUN = (
+    "INSERT INTO runs (label, started, git_commit, git_branch, git_dirty, host, machine, cpus, "
+    "system, python, meanband, fingerprint_json) VALUES (?,?,?,?,?,?,?,?,?,?,?,?)"
+)
 _INSERT_CHECK = (
     "INSERT INTO checks (run_id, nodeid, series, kind, unit, source, n, mean, low, high, "
     "verdict, row_json, trials, warmup) VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?)"
