@@ -95,7 +95,7 @@ def test_a_bad_count_names_its_line(bad):
 
 def test_unknown_keys_are_refused_with_the_known_ones():
     text = dumps_plan(ENTRIES).replace("n = 24", "n = 24\ntrials = 5")
-    with pytest.raises(PlanError, match="unknown key 'trials'; known keys: n, reason"):
+    with pytest.raises(PlanError, match="unknown key 'trials'; known keys: n, max_n, reason"):
         loads_plan(text, source="plan.toml")
     with pytest.raises(PlanError, match="unknown top-level key 'extra'"):
         loads_plan("extra = 1\n", source="plan.toml")

@@ -13,10 +13,14 @@ from meanband import defaults
 from meanband.errors import TrialError
 from meanband.store.database import store_location
 
-__all__ = ["add_max_bytes", "load_rows", "register", "rows_from_file", "rows_from_store"]
+__all__ = [
+    "add_max_bytes", "load_rows", "register", "rows_from_file", "rows_from_store", "stops_from_store",
+]
 
 #: Exit status for a bad command line, or a store or file that cannot be used.
 USAGE_ERROR = 2
+#: Stored runs whose stops teach the cap of a check collected until decided.
+LEARN_RUNS = 10
 
 Row = dict[str, Any]
 
@@ -59,6 +63,11 @@ def register(subparsers: argparse._SubParsersAction[argparse.ArgumentParser]) ->
                       help="Also write the suggestions to this plan file (TOML)")
     plan.add_argument("--all", action="store_true",
                       help="List every check, also those whose count is about right")
+    plan.add_argument(
+        "--learn-runs", metavar="K", type=_runs, default=LEARN_RUNS,
+        help="A check that stops when decided gets its cap (max_n) from where it stopped in "
+        f"this run and the K - 1 runs before it in the store (default {LEARN_RUNS})",
+    )
     plan.set_defaults(handler=_guarded(_plan))
 
 
@@ -177,6 +186,29 @@ def _run_index(run: str, tags: list[int], path: str | Path) -> int:
     return int(text)
 
 
+def _runs(text: str) -> int:
+    if not text.strip().isdigit() or int(text) < 1:
+        raise argparse.ArgumentTypeError(f"a whole number of runs >= 1 is needed, got {text!r}")
+    return int(text)
+
+
+def stops_from_store(path: str | Path, run: str | None, runs: int) -> dict[tuple[str, str], list[Any]]:
+    """Where each check collected until decided stopped in the ``runs - 1`` stored runs before
+    ``run`` (newest when None), oldest first, by (test id, series)."""
+    from meanband.record.suggestion import stop_of_row
+    from meanband.store.history import HistoryStore
+
+    stops: dict[tuple[str, str], list[Any]] = {}
+    with HistoryStore(path, create=False, read_only=True) as store:
+        newest = store.find_run(run)
+        older = [info for info in store.runs() if info.id < newest.id][: max(runs - 1, 0)]
+        for info in reversed(older):
+            for check in store.checks(info.id):
+                if check.row.get("sequential") and check.row.get("decision"):
+                    stops.setdefault(check.key, []).append(stop_of_row(check.row))
+    return stops
+
+
 def load_rows(args: argparse.Namespace) -> tuple[list[Row], str]:
     """Rows chosen by the command line: ``--rows FILE`` or the history store."""
     if args.rows is not None:
@@ -199,11 +231,17 @@ def _plan(args: argparse.Namespace) -> int:
     power = None if args.power is None else check_power(args.power, "--power")
     rows, where = load_rows(args)
     checks = [r for r in rows if r.get("kind") == "check" and r.get("decision")]
+    earlier: dict[tuple[str, str], list[Any]] = {}
+    if args.rows is None and any(r.get("sequential") for r in checks):
+        from meanband.store.history import DEFAULT_STORE
+
+        earlier = stops_from_store(args.store or DEFAULT_STORE, args.run, args.learn_runs)
     index = {id(row): number for number, row in enumerate(rows)}
     lines = []
     for row in sorted(checks, key=lambda r: (str(r.get("nodeid")), str(r.get("series") or ""))):
         try:
-            suggestion = suggestion_for_row(row, power=power)
+            key = (str(row.get("nodeid")), str(row.get("series") or ""))
+            suggestion = suggestion_for_row(row, power=power, earlier=earlier.get(key, ()))
         except (KeyError, TypeError, AttributeError) as exc:
             # The schema check above catches malformed rows; this names any it lets through.
             raise SourceError(f"{where}: row {index[id(row)]} ({row.get('nodeid')}) cannot be "
@@ -216,10 +254,13 @@ def _plan(args: argparse.Namespace) -> int:
                 lines.append((row_name(row), str(n), "-", f"{verdict} at n={n}; {why}"))
             continue
         quiet = suggestion.direction == "keep" or (
-            suggestion.direction == "auto" and verdict != "UNDECIDED")
+            suggestion.direction == "auto" and verdict != "UNDECIDED"
+            and suggestion.max_n is None)
         if quiet and not args.all:
             continue
         shown = "-" if suggestion.n is None else str(suggestion.n)
+        if suggestion.max_n is not None:
+            shown = f"max_n={suggestion.max_n}"
         lines.append((row_name(row), str(n), shown, suggestion.reason))
 
     powers = {power} if power is not None else {

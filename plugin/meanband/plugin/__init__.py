@@ -62,6 +62,8 @@ _SETTING_OPTIONS = (
      "early with a note (default: no limit).", "string"),
     ("max_trials", "max-trials", "Ceiling on any trial count asked for (n, a plan entry, "
      f"max_n); a larger count is an error (default {defaults.MAX_TRIALS:,}).", "string"),
+    ("max_n", "max-n", "Cap of n='auto', n='until-decided' and n='looks:K' when the call gives "
+     "no max_n (default: 1000 for auto, 200 for the others).", "string"),
 )
 
 
@@ -83,7 +85,7 @@ def pytest_configure(config: pytest.Config) -> None:
         "markers",
         "meanband(n=None, confidence=None, warmup=None, min_n=None, normality_alpha=None, "
         "method=None, power=None, min_trial_time=None, clock=None, gc=None, time_limit=None, "
-        "overdue_calibration=None, min_uncertainty_ratio=None, max_trials=None): "
+        "overdue_calibration=None, min_uncertainty_ratio=None, max_trials=None, max_n=None): "
         "settings for the test's `trials` fixture.",
     )
     config.stash[CONFIG_LAYERS_KEY] = _config_layers(config)

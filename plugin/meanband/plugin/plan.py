@@ -92,11 +92,9 @@ class PlanPlugin:
         entries = self.plan.for_test(item.nodeid)
         if not entries:
             return None
-        settings: dict[str, Any] = {}
-        own = entries.get("")
-        if own is not None and own.n is not None:
-            settings["n"] = own.n
-        series = {name: {"n": e.n} for name, e in entries.items() if name and e.n is not None}
+        settings = _entry_settings(entries.get(""))
+        series = {name: _entry_settings(e) for name, e in entries.items() if name}
+        series = {name: values for name, values in series.items() if values}
         if series:
             settings["series"] = series
         return settings or None
@@ -148,7 +146,7 @@ class PlanPlugin:
         if suggestion is None:
             return
         data = suggestion.to_dict()
-        data["text"] = _summary_text(data)
+        data["text"] = _summary_text(data, (row.get("sequential") or {}).get("max_n"))
         row["suggestion"] = data
 
     def pytest_meanband_session_finish(self, config: pytest.Config, rows: list[dict[str, Any]]
@@ -219,13 +217,24 @@ class PlanPlugin:
         return ["", *out] if self.config.get_verbosity() >= 0 else out
 
 
-def _summary_text(suggestion: dict[str, Any]) -> str:
+def _entry_settings(entry: Any) -> dict[str, Any]:
+    """The settings a plan entry gives: its count and its cap, where set."""
+    if entry is None:
+        return {}
+    return {name: getattr(entry, name) for name in ("n", "max_n")
+            if getattr(entry, name) is not None}
+
+
+def _summary_text(suggestion: dict[str, Any], cap: int | None = None) -> str:
     """The summary line: the reason, which leads with the verdict and count.
 
-    Nothing for a count that is about right, nor for an n="auto" check that decided.
+    Nothing for a count that is about right, nor for an n="auto" check that decided (unless a
+    check that stops when decided is told a cap other than its ``cap``).
     """
     direction, reason = suggestion.get("direction"), str(suggestion.get("reason", ""))
-    if direction == "keep" or (direction == "auto" and not reason.startswith("UNDECIDED")):
+    quiet_auto = (direction == "auto" and not reason.startswith("UNDECIDED")
+                  and suggestion.get("max_n") in (None, cap))
+    if direction == "keep" or quiet_auto:
         return ""
     return reason
 

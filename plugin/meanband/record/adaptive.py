@@ -132,6 +132,7 @@ def collect(
         take, planned,
         pilot_n=DEFAULT_PILOT if pilot is None else pilot,
         confidence=settings.confidence, power=settings.power,
-        max_n=DEFAULT_MAX_N if max_n is None else max_n,
+        max_n=max_n if max_n is not None else (
+            DEFAULT_MAX_N if settings.max_n is None else settings.max_n),
     )
     return AdaptiveRun(run, planned)

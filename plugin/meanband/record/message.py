@@ -137,7 +137,9 @@ def describe(
         lines.append(f"  normality  not testable ({normality.reason})")
     if not math.isnan(d.lag1):
         lines.append(f"  lag-1 r    {d.lag1:.3f} (effective n about {d.effective_n:.0f})")
-    if decision.verdict is Verdict.UNDECIDED:
+    # A check that stopped when decided says in its own note what its cap did.
+    own_account = any(note.get("code") in _SEQUENTIAL_CODES for note in notes or [])
+    if decision.verdict is Verdict.UNDECIDED and not own_account:
         if decision.suggested_n is None and budget is not None and budget.has_instrument:
             lines.append("  to decide  more trials will not decide it: the instrument's own "
                          "uncertainty leaves too little room; a better calibrated instrument may")
@@ -155,6 +157,9 @@ def describe(
 #: Above this many effective degrees of freedom, k is within 0.2% of the normal quantile and
 #: the exact count (Welch-Satterthwaite gives figures like 781483) says nothing more.
 _MANY_DF = 1000
+
+
+_SEQUENTIAL_CODES = ("until-decided-capped", "planned-looks")
 
 
 def _effective_df(df: float | None) -> str:

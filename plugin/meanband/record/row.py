@@ -118,6 +118,7 @@ class SettingsRecord(_SettingsCore, total=False):
     clock: str
     gc: bool
     time_limit: float | None
+    max_n: int | None
 
 
 class TimingRecord(TypedDict, total=False):
@@ -263,6 +264,7 @@ class SuggestionRecord(_SuggestionCore, total=False):
     """``Suggestion.to_dict()``, and the line the summary prints for it (``text``)."""
 
     saves_seconds: float
+    max_n: int
     text: str
 
 

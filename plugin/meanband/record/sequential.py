@@ -138,8 +138,24 @@ class SequentialRun(ArrayEquality):
                else "the time limit")
         return {"code": "until-decided-capped",
                 "text": f"until decided: {why} ended collection at {n} trials after {self.looks} "
-                        "look(s) without a decision; raise the cap, or look at the mean's "
-                        f"distance from the edge{went_on}"}
+                        f"look(s) without a decision; {self._what_decides()}{went_on}"}
+
+    def _what_decides(self) -> str:
+        """How many trials the anytime interval would need at this mean and sd."""
+        from meanband import defaults
+        from meanband.stats.stopping_caps import trials_to_decide
+
+        interval = self.last.interval
+        edges = [e for e in (self.band.low, self.band.high) if math.isfinite(e)]
+        effect = (min(abs(interval.mean - e) for e in edges) / interval.sd
+                  if edges and interval.sd > 0 else math.nan)
+        needed = trials_to_decide(effect, confidence=interval.confidence,
+                                  side=self.band.side, ceiling=defaults.MAX_TRIALS)
+        if needed is None:
+            return ("the mean sits too close to the edge for any count to decide it: look at "
+                    "its distance from the edge")
+        return (f"at this mean and sd the interval would decide at about {needed:,} trials: "
+                "raise the cap (max_n), or look at the mean's distance from the edge")
 
     def check(
         self, low: Edge, high: Edge, center: Edge, tolerance: Tolerance, *, held: int,
@@ -210,8 +226,10 @@ def collect(
             f"{held} trials; use trials.series('name') for it"
         )
     planned = planning_band(band, unit)
-    cap = DEFAULT_MAX_N if max_n is None else settings.check_count(
-        _whole(max_n, "max_n", 2), "the call's argument max_n")
+    if max_n is not None:
+        cap = settings.check_count(_whole(max_n, "max_n", 2), "the call's argument max_n")
+    else:
+        cap = DEFAULT_MAX_N if settings.max_n is None else settings.max_n
     if mode != UNTIL_DECIDED:
         earlier = None  # planned looks keep their own plan; a rerun starts it again
         if block is not None:

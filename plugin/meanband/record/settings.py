@@ -51,6 +51,10 @@ class Settings:
     min_uncertainty_ratio: float = defaults.MIN_UNCERTAINTY_RATIO
     #: The ceiling on any trial count asked for (n, a plan entry, max_n).
     max_trials: int = defaults.MAX_TRIALS
+    #: Cap of the modes that choose their own count (n="auto", "until-decided", "looks:K") when
+    #: the call gives no max_n; None leaves each mode its own default. A plan learns it from
+    #: where earlier runs stopped (stats/stopping_caps.py).
+    max_n: int | None = None
 
     def merged(self, **overrides: Any) -> Settings:
         """A copy with the non-None ``overrides`` (call arguments), validated."""
@@ -99,6 +103,7 @@ def marker_settings(
     overdue_calibration: str | None = None,
     min_uncertainty_ratio: float | None = None,
     max_trials: int | None = None,
+    max_n: int | None = None,
 ) -> dict[str, Any]:
     """The signature of ``@pytest.mark.meanband(...)``: a wrong keyword is a TypeError."""
     return {k: v for k, v in locals().items() if v is not None}
@@ -239,6 +244,7 @@ _VALIDATORS: dict[str, Callable[[Any], Any]] = {
     "overdue_calibration": _choice("note", "fail"),
     "min_uncertainty_ratio": _positive,
     "max_trials": _integer(2),
+    "max_n": _integer(2),
 }
 
 
@@ -267,6 +273,7 @@ def resolve(layers: Iterable[tuple[str, Mapping[str, Any]]]) -> Settings:
                 chosen[name] = validate(name, value, source)
                 sources[name] = source
     settings = replace(DEFAULTS, **chosen)
-    if "n" in sources:
-        settings.check_count(settings.n, sources["n"], sources.get("max_trials"))
+    for name in ("n", "max_n"):
+        if name in sources:
+            settings.check_count(getattr(settings, name), sources[name], sources.get("max_trials"))
     return settings

@@ -3,14 +3,16 @@
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from typing import Any
 
 from meanband import defaults
 from meanband.errors import hide_plugin_frames
+from meanband.record.sequential import DEFAULT_MAX_N, LOOK_TRIALS
+from meanband.stats.stopping_caps import CapAdvice, Stop, advise_cap
 from meanband.stats.suggest import Suggestion, suggest_trials
 
-__all__ = ["suggestion_for_row", "trial_seconds"]
+__all__ = ["stop_of_row", "suggestion_for_row", "trial_seconds"]
 __tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 
@@ -33,13 +35,15 @@ def trial_seconds(row: Mapping[str, Any]) -> float | None:
 
 
 def suggestion_for_row(
-    row: Mapping[str, Any], *, power: float | None = None
+    row: Mapping[str, Any], *, power: float | None = None, earlier: Sequence[Stop] = (),
 ) -> Suggestion | None:
     """The suggestion for one result row (see the row contract), or None.
 
     None for a series with no check and for a FAIL. A check whose count the two-stage rule
     chose at run time (``n="auto"``) gets direction ``"auto"`` and no count, with a reason that
     says what to change when it stayed UNDECIDED. ``power`` overrides the row's own setting.
+    A check collected until decided gets its cap learned from where it stopped, and from
+    ``earlier`` stops of the same check (oldest first; from the history store).
     """
     decision = row.get("decision")
     if row.get("kind") != "check" or not decision:
@@ -48,7 +52,7 @@ def suggestion_for_row(
     if interval.get("method") == "two-stage":
         return _two_stage_suggestion(row, decision)
     if row.get("sequential"):
-        return _until_decided_suggestion(row, decision)
+        return _until_decided_suggestion(row, decision, earlier)
     settings = row.get("settings") or {}
     if power is None:
         power = settings.get("power", defaults.POWER)
@@ -110,15 +114,63 @@ def _two_stage_suggestion(row: Mapping[str, Any], decision: Mapping[str, Any]) -
     return Suggestion(None, reason, "auto", n, power, None)
 
 
-def _until_decided_suggestion(row: Mapping[str, Any], decision: Mapping[str, Any]) -> Suggestion:
-    """n="until-decided" chose its own count: no count to plan, but a capped run says what to do."""
+def _until_decided_suggestion(
+    row: Mapping[str, Any], decision: Mapping[str, Any], earlier: Sequence[Stop] = (),
+) -> Suggestion:
+    """A check that stops when decided chose its own count: the suggestion is its cap, learned
+    from where this run (and ``earlier`` runs of the check, oldest first) stopped."""
     run = row.get("sequential") or {}
     n = int(decision["interval"]["n"])
     power = float((row.get("settings") or {}).get("power", defaults.POWER))
+    if run.get("reason") == "time limit":
+        reason = (f"UNDECIDED at n={n}: collection until decided ended at the time limit; "
+                  "raise it to let the data decide")
+        return Suggestion(None, reason, "auto", n, power, None)
+    advice = _cap_advice(row, decision, [*earlier, stop_of_row(row)])
+    verdict = decision["verdict"]
     if run.get("reason") == "decided":
-        reason = f"count chosen at run time: stopped at {n} trials ({decision['verdict']})"
+        reason = f"count chosen at run time: stopped at {n} trials ({verdict})"
+        if advice.direction != "keep":
+            reason += f"; {advice.reason}"
     else:
-        cap = f"cap max_n={run.get('max_n')}" if run.get("reason") == "max_n" else "time limit"
-        reason = (f"UNDECIDED at n={n}: collection until decided ended at the {cap}; raise it "
-                  "to let the data decide")
-    return Suggestion(None, reason, "auto", n, power, None)
+        reason = advice.reason
+    # A cap that is kept is still written when it is not the mode's default, so a plan that
+    # learned it keeps it (its entry would otherwise vanish and the cap fall back).
+    learned = int(run.get("max_n") or 0) != DEFAULT_MAX_N
+    cap = advice.max_n if advice.direction != "keep" or learned else None
+    return Suggestion(None, reason, "auto", n, power, None, max_n=cap)
+
+
+def stop_of_row(row: Mapping[str, Any]) -> Stop:
+    """Where the row's collection stopped; for an undecided stop, the mean's distance to its
+    nearest edge in sds (NaN when the row lacks the figures)."""
+    run = row.get("sequential") or {}
+    decision = row.get("decision") or {}
+    interval = decision.get("interval") or {}
+    n = int(run.get("stopped_at") or interval.get("n") or 0)
+    if run.get("reason") == "decided":
+        return Stop(n, True)
+    band = decision.get("band") or {}
+    edges = [float(band[k]) for k in ("low", "high")
+             if band.get(k) is not None and math.isfinite(float(band[k]))]
+    mean, sd = interval.get("mean"), interval.get("sd")
+    if not edges or mean is None or not sd:
+        return Stop(n, False)
+    return Stop(n, False, min(abs(float(mean) - edge) for edge in edges) / float(sd))
+
+
+def _cap_advice(row: Mapping[str, Any], decision: Mapping[str, Any],
+                stops: Sequence[Stop]) -> CapAdvice:
+    run = row.get("sequential") or {}
+    band = decision.get("band") or {}
+    finite = [band.get(k) is not None and math.isfinite(float(band[k])) for k in ("low", "high")]
+    side = "two-sided" if all(finite) else ("upper" if finite[1] else "lower")
+    planned = run.get("planned") or []
+    block = int(run.get("block") or 0) or max(int(planned[0]) if planned else 1, 1)
+    floor = (LOOK_TRIALS * len(planned) if planned
+             else int(run.get("first_look") or 2) + block)
+    return advise_cap(
+        stops, cap=int(run.get("max_n") or decision["interval"]["n"]), block=block,
+        floor=max(floor, 2), confidence=float(decision["interval"]["confidence"]), side=side,
+        ceiling=defaults.MAX_TRIALS,
+    )

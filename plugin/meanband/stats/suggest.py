@@ -38,7 +38,8 @@ class Suggestion:
 
     ``direction`` is ``"more"``, ``"fewer"`` or ``"keep"`` (a count), ``"none"`` when no count
     decides the check, or ``"auto"`` when the two-stage rule chose it (``n`` is None then).
-    ``power_now`` is the power of the current count.
+    ``power_now`` is the power of the current count. ``max_n`` is a new cap for a check that
+    stops when decided (``stats/stopping_caps.py``), when its stops call for one.
     """
 
     n: int | None
@@ -48,6 +49,7 @@ class Suggestion:
     power: float
     power_now: float | None
     saves_seconds: float | None = None
+    max_n: int | None = None
 
     def to_dict(self) -> dict[str, Any]:
         """Builtin types only (the row crosses from xdist workers); no key for a missing saving."""
@@ -61,6 +63,8 @@ class Suggestion:
         }
         if self.saves_seconds is not None:
             out["saves_seconds"] = float(self.saves_seconds)
+        if self.max_n is not None:
+            out["max_n"] = int(self.max_n)
         return out
 
 

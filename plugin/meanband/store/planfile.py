@@ -35,7 +35,7 @@ _HEADER = (
     "# Written by --meanband-write-plan; read with --meanband-plan (or ini meanband_plan).\n"
     "# Counts may be edited by hand; a call argument or a marker still wins over this file.\n"
 )
-_ENTRY_KEYS = ("n", "reason", "saves_seconds")
+_ENTRY_KEYS = ("n", "max_n", "reason", "saves_seconds")
 _TEST_KEYS = (*_ENTRY_KEYS, "series")
 
 
@@ -45,13 +45,18 @@ class PlanError(TrialError):
 
 @dataclass(frozen=True, slots=True)
 class PlanEntry:
-    """The planned count of one series of one test (``series=""`` is the default series)."""
+    """The planned count of one series of one test (``series=""`` is the default series).
+
+    ``max_n`` is the cap for a check that chooses its own count (n="until-decided", "looks:K",
+    "auto"), learned from where its runs stopped; such an entry has no ``n``.
+    """
 
     nodeid: str
     series: str
     n: int | None
     reason: str = ""
     saves_seconds: float | None = None
+    max_n: int | None = None
 
 
 @dataclass(frozen=True)
@@ -84,7 +89,8 @@ def entries_from_rows(rows: Iterable[Mapping[str, Any]]) -> list[PlanEntry]:
 
     A series with several checks gets the largest count any of them asks for. A check that
     failed decisively keeps the count it ran with: more trials would not change its verdict.
-    A check whose count ``n="auto"`` chose has no entry.
+    A check whose count ``n="auto"`` chose has no entry; one that stops when decided has an
+    entry when its suggestion moves the cap (``max_n``).
     """
     chosen: dict[tuple[str, str], PlanEntry] = {}
     for row in rows:
@@ -94,8 +100,11 @@ def entries_from_rows(rows: Iterable[Mapping[str, Any]]) -> list[PlanEntry]:
         suggestion = row.get("suggestion")
         decision = row["decision"]
         if suggestion and suggestion.get("direction") == "auto":
-            continue  # the two-stage rule picks this count at run time
-        if suggestion:
+            if suggestion.get("max_n") is None:
+                continue  # the mode picks this count at run time
+            entry = PlanEntry(key[0], key[1], None, str(suggestion.get("reason", "")),
+                              max_n=int(suggestion["max_n"]))
+        elif suggestion:
             entry = PlanEntry(
                 key[0], key[1], suggestion.get("n"), str(suggestion.get("reason", "")),
                 suggestion.get("saves_seconds"),
@@ -129,6 +138,8 @@ def dumps_plan(entries: Iterable[PlanEntry], *, power: float | None = None) -> s
         table: dict[str, Any] = {}
         if entry.n is not None:
             table["n"] = int(entry.n)
+        if entry.max_n is not None:
+            table["max_n"] = int(entry.max_n)
         table["reason"] = entry.reason
         if entry.saves_seconds is not None:
             table["saves_seconds"] = round(float(entry.saves_seconds), 6)
@@ -264,6 +275,10 @@ def _entry(nodeid: str, series: str, table: Mapping[str, Any], fail: Any) -> Pla
     n = table.get("n")
     if n is not None and (isinstance(n, bool) or not isinstance(n, int) or n < 2):
         raise fail(f"{label}.n must be a whole number of trials >= 2, got {n!r}", anchor, "n")
+    cap = table.get("max_n")
+    if cap is not None and (isinstance(cap, bool) or not isinstance(cap, int) or cap < 2):
+        raise fail(f"{label}.max_n must be a whole number of trials >= 2, got {cap!r}",
+                   anchor, "max_n")
     reason = table.get("reason", "")
     if not isinstance(reason, str):
         raise fail(f"{label}.reason must be a string, got {reason!r}", anchor, "reason")
@@ -271,7 +286,7 @@ def _entry(nodeid: str, series: str, table: Mapping[str, Any], fail: Any) -> Pla
     if saves is not None and not (_is_number(saves) and saves >= 0):
         raise fail(f"{label}.saves_seconds must be a number >= 0, got {saves!r}",
                    anchor, "saves_seconds")
-    return PlanEntry(nodeid, series, n, reason, None if saves is None else float(saves))
+    return PlanEntry(nodeid, series, n, reason, None if saves is None else float(saves), cap)
 
 
 def _is_number(value: Any) -> bool:
