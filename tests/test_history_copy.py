@@ -79,3 +79,23 @@ def test_file_to_file_copy_and_errors(tmp_path: Path, capsys: pytest.CaptureFixt
     assert "no history store at" in capsys.readouterr().err
     assert main(["history", "copy", str(original), str(other), "--run", "nightly"]) == 2
     assert "no run labelled or numbered 'nightly'" in capsys.readouterr().err
+
+
+def test_noise_floors_travel_with_a_whole_store_copy(tmp_path: Path, postgres_url: str, capsys: pytest.CaptureFixture[str]) -> None:
+    from meanband.store.history import NoiseFloor
+
+    original = tmp_path / "history.sqlite"
+    _fill(original)
+    floors = [NoiseFloor("t.py::test_a", "", 0.04, 2, 3, 0.01, 0.5, "2026-11-30T08:00:00+00:00"),
+              NoiseFloor("t.py::test_edges", "probe", 0.002, 4, 5, None, None,
+                         "2026-11-30T08:00:00+00:00")]
+    with HistoryStore(original) as store:
+        store.save_noise_floors("main", floors)
+    assert main(["history", "copy", str(original), postgres_url, "--run", "main"]) == 0
+    assert "noise floor" not in capsys.readouterr().out  # one run: its floors stay behind
+    assert main(["history", "copy", str(original), postgres_url]) == 0
+    assert "copied 2 measured noise floor(s)" in capsys.readouterr().out
+    assert main(["history", "copy", str(original), postgres_url]) == 0
+    assert "noise floor" not in capsys.readouterr().out  # not copied twice
+    with HistoryStore(postgres_url, create=False) as store:
+        assert store.noise_floors("main") == {(f.nodeid, f.series): f for f in floors}

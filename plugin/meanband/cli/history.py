@@ -308,6 +308,8 @@ def _copy(args: argparse.Namespace) -> int:
           f"{where(args.target)} (run ids {copied})")
     if result.already_there:
         print(f"{len(result.already_there)} run(s) were already there and were skipped")
+    if result.floors:
+        print(f"copied {result.floors} measured noise floor(s)")
     return 0
 
 

@@ -587,6 +587,16 @@ class HistoryStore:
                                               r[5], r[6], r[7])
         return floors
 
+    def all_noise_floors(self) -> list[tuple[str, NoiseFloor]]:
+        """Every stored floor with its label, oldest first (for a copy to another store)."""
+        with self._translate_errors():
+            rows = self._db.execute(
+                "SELECT label, nodeid, series, between_sd, df, runs, position_shift, position_p, "
+                "measured FROM noise_floors ORDER BY id"
+            ).fetchall()
+        return [(str(r[0]), NoiseFloor(r[1], r[2], float(r[3]), int(r[4]), int(r[5]), r[6], r[7],
+                                       r[8])) for r in rows]
+
     def checks(self, run_id: int) -> list[StoredCheck]:
         """Every check of run ``run_id``, in the order they were recorded."""
         with self._translate_errors():
