@@ -70,3 +70,27 @@ def test_another_pipeline_starts_afresh(checkout: pytest.Pytester, run_suite,
     outside = run_suite("--meanband-continue-sequence")
     outside.stdout.fnmatch_lines(["meanband: no CI pipeline id in the environment (set "
                                   "MEANBAND_PIPELINE)*"])
+
+
+def test_a_retry_continues_from_a_postgresql_store(checkout: pytest.Pytester, run_suite,
+                                                   monkeypatch: pytest.MonkeyPatch,
+                                                   postgres_url: str) -> None:
+    # The team's shared history: the earlier try is found in PostgreSQL, not a local file.
+    monkeypatch.setenv("MEANBAND_PIPELINE", "bench-pipeline-91")
+    store = ("--meanband-store", postgres_url)
+    checkout.makepyfile(test_valves=SUITE.format(seed=1, cap=20))
+    first = run_suite("--meanband-record=ci", "--meanband-continue-sequence",
+                      "--meanband-report=first.json", *store)
+    first.assert_outcomes(failed=1)
+    first.stdout.fnmatch_lines(["meanband: no earlier try in this pipeline "
+                                "(MEANBAND_PIPELINE=bench-pipeline-91): the database holds no "
+                                "history yet"])
+    earlier = json.loads((checkout.path / "first.json").read_text())["rows"][0]["values"]
+    checkout.makepyfile(test_valves=SUITE.format(seed=2, cap=60))
+    retry = run_suite("--meanband-record=ci", "--meanband-continue-sequence",
+                      "--meanband-report=retry.json", *store)
+    retry.stdout.fnmatch_lines(["meanband: n='until-decided' checks continue the sequences of "
+                                "run 1 (the same commit, *"])
+    row = json.loads((checkout.path / "retry.json").read_text())["rows"][0]
+    assert row["values"][:20] == earlier and row["sequential"]["continued"]["trials"] == 20
+    assert not (checkout.path / ".meanband").exists()  # nothing went to a local file

@@ -302,7 +302,7 @@ class HistoryPlugin:
         """The newest stored run of this commit in this CI pipeline, whose n="until-decided"
         trials this run continues; the summary says what was found."""
         from meanband.errors import StoreError
-        from meanband.store.history import HistoryStore
+        from meanband.store.history import HistoryStore, NoHistoryYet
         from meanband.store.sequence import earlier_try
 
         env = self.environment()
@@ -318,6 +318,10 @@ class HistoryPlugin:
             with HistoryStore(self.store, create=False, read_only=True,
                               timeout=self.timeout) as store:
                 run = earlier_try(store, env.get("commit"), pipeline)
+        except NoHistoryYet:
+            self.earlier_words = (f"no earlier try in this pipeline ({pipeline}): the database "
+                                  "holds no history yet")
+            return
         except StoreError as exc:
             raise pytest.UsageError(f"--meanband-continue-sequence: {exc}") from None
         if run is None:

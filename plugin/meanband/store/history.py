@@ -38,6 +38,7 @@ __all__ = [
     "MIGRATIONS",
     "SCHEMA_VERSION",
     "HistoryStore",
+    "NoHistoryYet",
     "NoiseFloor",
     "RunInfo",
     "StoreError",
@@ -53,6 +54,10 @@ _ELSEWHERE = "choose another store path (--meanband-store, or --store for the me
 _SQLITE_MAGIC = b"SQLite format 3\x00"
 # Trials are stored as little-endian float64 bytes (numpy tobytes/frombuffer): exact and portable.
 _TRIAL_DTYPE = np.dtype("<f8")
+
+
+class NoHistoryYet(StoreError):
+    """A database that holds no meanband tables yet: no run was ever recorded into it."""
 
 
 @dataclass(frozen=True, slots=True)
@@ -367,7 +372,7 @@ class HistoryStore:
                 if version == 0 and self.backend == SQLITE:
                     return  # an empty file: it holds no runs yet
                 if version == 0:
-                    raise StoreError(
+                    raise NoHistoryYet(
                         f"the database {self.location} holds no meanband history yet; record a "
                         "run into it first with --meanband-record"
                     )
