@@ -51,9 +51,8 @@ def timing_default_bounds(x: np.ndarray, confidence: float, side: str
                           ) -> tuple[np.ndarray, np.ndarray]:
     """The default interval of a timing check, row by row: ``defaults.METHOD`` (t) unless the
     package says otherwise for timings (``stats.notes.timing_method`` when present)."""
-    from skewed_budgets import t_bounds
-
     from meanband import defaults
+    from skewed_budgets import t_bounds
 
     chooser = _timing_chooser()
     if chooser is None and defaults.METHOD == "t":
