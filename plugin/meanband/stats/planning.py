@@ -129,20 +129,20 @@ def expected_power(
     where it is beyond an edge): the assurance of O'Hagan, Stevens & Campbell (2005,
     Pharmaceutical Statistics 4:187-201) under the reference prior.
     """
-    from scipy.stats import chi2, nct, norm
-    from scipy.stats import t as student_t
+    # scipy.special directly: the distributions' wrappers cost more than the sums here.
+    from scipy.special import chdtri, nctdtr, ndtr, ndtri, stdtrit
 
     df = float(sd_df)
     points = _PILOT_POINTS if pilot_n is None else _ASSURANCE_SD_POINTS
     u = (np.arange(points) + 0.5) / points
-    shrink = np.sqrt(chi2.ppf(u, df) / df)  # s / sigma at each quantile
+    shrink = np.sqrt(chdtri(df, 1.0 - u) / df)  # s / sigma at each quantile
     rerun_df = float(n - 1)
-    critical = float(student_t.ppf(1.0 - alpha, rerun_df))
+    critical = float(stdtrit(rerun_df, 1.0 - alpha))
     root_n = math.sqrt(n)
     near = effect * shrink
     far = None if far_effect is None else far_effect * shrink
     if pilot_n is not None:
-        z = norm.ppf((np.arange(_ASSURANCE_MEAN_POINTS) + 0.5) / _ASSURANCE_MEAN_POINTS)
+        z = ndtri((np.arange(_ASSURANCE_MEAN_POINTS) + 0.5) / _ASSURANCE_MEAN_POINTS)
         step = z / math.sqrt(pilot_n)
         # near edge first: the mean moves by z sigma / sqrt(pilot_n) towards it or away.
         near = (near[:, None] - step[None, :]).ravel()
@@ -150,15 +150,16 @@ def expected_power(
             far = (far[:, None] + step[None, :]).ravel()
     if far is None:
         # Beyond the edge (near < 0) the correct decision is FAIL, at the same level.
-        return float(np.mean(nct.sf(critical, rerun_df, np.abs(near) * root_n)))
+        return float(np.mean(1.0 - nctdtr(rerun_df, np.abs(near) * root_n, critical)))
     inside = (near > 0) & (far > 0)
     out = np.empty(near.shape)
-    out[~inside] = nct.sf(critical, rerun_df, np.abs(np.minimum(near, far)[~inside]) * root_n)
+    beyond = np.abs(np.minimum(near, far)[~inside]) * root_n
+    out[~inside] = 1.0 - nctdtr(rerun_df, beyond, critical)
     rerun_points = _RERUN_POINTS if pilot_n is None else _RERUN_POINTS // 4
     v = (np.arange(rerun_points) + 0.5) / rerun_points
-    ratio = np.sqrt(chi2.ppf(v, rerun_df) / rerun_df)[None, :]  # the rerun's s' / sigma
+    ratio = np.sqrt(chdtri(rerun_df, 1.0 - v) / rerun_df)[None, :]  # the rerun's s' / sigma
     low, high = near[inside][:, None], far[inside][:, None]
-    both = norm.cdf(root_n * high - critical * ratio) - norm.cdf(-root_n * low + critical * ratio)
+    both = ndtr(root_n * high - critical * ratio) - ndtr(-root_n * low + critical * ratio)
     out[inside] = np.mean(np.clip(both, 0.0, None), axis=1)
     return float(np.mean(out))
 

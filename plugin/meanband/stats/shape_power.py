@@ -100,7 +100,7 @@ def _power_function(
     mean_uncertain: bool, top: int,
 ) -> Callable[[int], float]:
     """The simulated power as a function of the count, with its draws fixed once."""
-    from scipy.stats import t as student_t
+    from scipy.special import stdtrit
 
     x = np.asarray(values, dtype=np.float64)
     m = x.size
@@ -121,7 +121,7 @@ def _power_function(
     def power_at(n: int) -> float:
         trials = true_mean[:, None] + true_sd[:, None] * shape[picks[:, :n]]
         centre = trials.mean(axis=1)
-        reach = float(student_t.ppf(q, n - 1)) * trials.std(axis=1, ddof=1) / math.sqrt(n)
+        reach = float(stdtrit(n - 1, q)) * trials.std(axis=1, ddof=1) / math.sqrt(n)
         lower, upper = centre - reach, centre + reach
         passed = (lower >= low) & (upper <= high)
         failed = (upper < low) | (lower > high)

@@ -100,10 +100,14 @@ def suggest_trials(
     (mean - edge) / sd taken from this run (noncentral t; see ``planning.trials_needed``). This
     run's sd is an estimate with ``sd_df`` degrees of freedom (n - 1 unless given, e.g. fewer for
     batch means): the count reaches ``power`` on average over the true sd it leaves possible
-    (Julious & Owen 2006, ``planning.expected_power``), and ``power_now`` is that average too. A
-    FAIL gets no suggestion: the interval already lies wholly outside the band, and more
-    trials only confirm it. A PASS whose count could shrink by at least ``MIN_SAVING`` of its
-    trials gets the smaller count, with the CI seconds saved when ``trial_seconds`` is known.
+    (Julious & Owen 2006, ``planning.expected_power``), and ``power_now`` is that average too.
+    After a PASS the mean's uncertainty is averaged over as well (the assurance of O'Hagan,
+    Stevens & Campbell 2005); after an UNDECIDED it is not, since its interval straddles the
+    edge and that average would ask for many times the count needed
+    (studies/suggested_power.py). A FAIL gets no suggestion: the interval already lies
+    wholly outside the band, and more trials only confirm it. A PASS whose count could shrink
+    by at least ``MIN_SAVING`` of its trials gets the smaller count, with the CI seconds saved
+    when ``trial_seconds`` is known.
     When the check carries an instrument (Type B) uncertainty, pass the count its decision
     computed with it as ``instrument_count`` (None: no count decides it); the t test alone
     would promise a decision that the instrument's own uncertainty can forbid.
