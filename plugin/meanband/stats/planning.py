@@ -10,10 +10,22 @@ from meanband import defaults
 from meanband.errors import TrialError, hide_plugin_frames
 from meanband.stats.sample import check_confidence, check_probability
 
-__all__ = ["expected_power", "power_against_edge", "power_inside_band", "trials_needed"]
+__all__ = [
+    "SD_BOUND",
+    "expected_power",
+    "power_against_edge",
+    "power_inside_band",
+    "sd_upper_bound",
+    "trials_needed",
+]
 __tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
 
 _N_MIN = 2
+
+#: Confidence of the upper bound on a pilot's sd that suggested counts are planned with
+#: (Browne 1995): the value that landed the delivered power nearest the planned one among the
+#: rules of studies/suggested_power.py.
+SD_BOUND = 0.8
 
 
 def trials_needed(
@@ -94,8 +106,25 @@ def trials_needed(
     return _smallest_n(lambda n: power_against_edge(margin / sd, n, alpha) >= power, n_max)
 
 
-#: Quantile points of the chi distribution used to integrate over the sample sd.
-_SD_POINTS = 4000
+def sd_upper_bound(sd: float, df: float, confidence: float = SD_BOUND) -> float:
+    """The one-sided upper confidence bound s sqrt(df / chi2_(1-confidence)(df)) on the true sd
+    from a sample sd with ``df`` degrees of freedom (the chi-square interval for a variance,
+    NIST/SEMATECH e-Handbook 7.2.3.1).
+
+    Planning a count with it instead of s makes the count reach its power with probability at
+    least ``confidence`` over the pilot's sd (Browne 1995, Statistics in Medicine 14:1933-1940).
+    """
+    from scipy.special import chdtri
+
+    level = check_probability(confidence, "confidence of the sd bound")
+    if not (math.isfinite(df) and df > 0):
+        raise TrialError(f"the sd's degrees of freedom must be a positive number, got {df!r}")
+    return float(sd) * math.sqrt(df / float(chdtri(df, level)))
+
+
+#: Quantile points of the chi distribution used to integrate over the sample sd (the midpoint
+#: rule on quantiles; 512 points agree with 4,000 to about 1e-5 and cost an eighth).
+_SD_POINTS = 512
 #: Quantile points of the pilot sd's chi-square law in ``expected_power``.
 _PILOT_POINTS = 64
 #: Quantile points of the rerun's own sd in ``expected_power`` for a band (both edges).
@@ -174,15 +203,14 @@ def power_inside_band(low_effect: float, high_effect: float, n: int, alpha: floa
     quantile), averaged over s/sigma ~ sqrt(chi2(n-1)/(n-1)) (Owen 1965 gives the same
     integral in closed form); the average is taken on a grid of the chi law's quantiles.
     """
-    from scipy.stats import chi2, norm
-    from scipy.stats import t as student_t
+    from scipy.special import chdtri, ndtr, stdtrit
 
     df = float(n - 1)
-    critical = float(student_t.ppf(1.0 - alpha, df))
+    critical = float(stdtrit(df, 1.0 - alpha))
     u = (np.arange(_SD_POINTS) + 0.5) / _SD_POINTS
-    ratio = np.sqrt(chi2.ppf(u, df) / df)
+    ratio = np.sqrt(chdtri(df, 1.0 - u) / df)
     root_n = math.sqrt(n)
-    inside = norm.cdf(root_n * high_effect - critical * ratio) - norm.cdf(
+    inside = ndtr(root_n * high_effect - critical * ratio) - ndtr(
         -root_n * low_effect + critical * ratio
     )
     return float(np.mean(np.clip(inside, 0.0, None)))

@@ -3,11 +3,11 @@
 The noncentral t power assumes normal trials; on skewed trials (a log-normal timing, say) the t
 interval's bound moves with the sd, and a count planned for normal trials passes less often than
 it states. Here the rerun is simulated instead: its trials are the pilot's standardised values,
-resampled, scaled by a true sd and shifted to a true mean drawn as in
-``planning.expected_power`` (the sd from the pilot sd's chi-square law; the mean too for an
-assurance), and the t interval decides each simulated rerun. This is simulation-based sample-size
-determination (Arnold et al. 2011, BMC Medical Research Methodology 11:94) with the pilot's
-empirical distribution as the trial model (a residual bootstrap, Efron & Tibshirani 1993, ch. 9).
+resampled, scaled to the planning sd (the pilot sd's upper bound, ``planning.sd_upper_bound``)
+and shifted to the pilot's mean, and the t interval decides each simulated rerun. This is
+simulation-based sample-size determination (Arnold et al. 2011, BMC Medical Research
+Methodology 11:94) with the pilot's empirical distribution as the trial model (a residual
+bootstrap; Efron & Tibshirani 1993).
 """
 
 from __future__ import annotations
@@ -34,13 +34,12 @@ def simulated_power(
     low: float,
     high: float,
     confidence: float,
-    sd_df: float,
-    mean_uncertain: bool,
+    planning_sd: float,
 ) -> float:
     """Simulated chance that a rerun of ``n`` trials decides correctly (see the module), from
     the same draws as :func:`simulated_count` for counts up to four times the ceiling."""
     top = max(n, 4 * SIMULATION_CEILING)
-    return _power_function(values, low, high, confidence, sd_df, mean_uncertain, top)(n)
+    return _power_function(values, low, high, confidence, planning_sd, top)(n)
 
 
 def simulated_count(
@@ -51,8 +50,7 @@ def simulated_count(
     confidence: float,
     power: float,
     start: int,
-    sd_df: float,
-    mean_uncertain: bool,
+    planning_sd: float,
     n_max: int,
 ) -> int:
     """The smallest count near ``start`` whose simulated chance of a correct decision reaches
@@ -68,8 +66,7 @@ def simulated_count(
     if start > SIMULATION_CEILING or x.size < 3 or not float(x.std(ddof=1)) > 0:
         return start
     top = min(n_max, 4 * SIMULATION_CEILING)
-    power_at = _power_function(x, low, high, confidence, sd_df, mean_uncertain,
-                               4 * SIMULATION_CEILING)
+    power_at = _power_function(x, low, high, confidence, planning_sd, 4 * SIMULATION_CEILING)
 
     def reaches(n: int) -> bool:
         return power_at(n) >= power
@@ -96,8 +93,7 @@ def simulated_count(
 
 
 def _power_function(
-    values: np.ndarray, low: float, high: float, confidence: float, sd_df: float,
-    mean_uncertain: bool, top: int,
+    values: np.ndarray, low: float, high: float, confidence: float, planning_sd: float, top: int,
 ) -> Callable[[int], float]:
     """The simulated power as a function of the count, with its draws fixed once."""
     from scipy.special import stdtrit
@@ -110,21 +106,17 @@ def _power_function(
     shape = (x - mean) / (sd * math.sqrt((m - 1) / m))
     seed = int.from_bytes(hashlib.blake2b(x.tobytes(), digest_size=8).digest(), "little")
     rng = np.random.default_rng(seed)
-    true_sd = sd / np.sqrt(rng.chisquare(sd_df, RERUNS) / sd_df)
-    true_mean = np.full(RERUNS, mean)
-    if mean_uncertain:
-        true_mean = mean + true_sd * rng.standard_normal(RERUNS) / math.sqrt(m)
-    inside = (true_mean > low) & (true_mean < high)
+    inside = low < mean < high
     picks = rng.integers(0, m, size=(RERUNS, top))
     q = 0.5 + confidence / 2.0 if two_sided else confidence
 
     def power_at(n: int) -> float:
-        trials = true_mean[:, None] + true_sd[:, None] * shape[picks[:, :n]]
+        trials = mean + planning_sd * shape[picks[:, :n]]
         centre = trials.mean(axis=1)
         reach = float(stdtrit(n - 1, q)) * trials.std(axis=1, ddof=1) / math.sqrt(n)
         lower, upper = centre - reach, centre + reach
         passed = (lower >= low) & (upper <= high)
         failed = (upper < low) | (lower > high)
-        return float(np.mean(np.where(inside, passed, failed)))
+        return float(np.mean(passed if inside else failed))
 
     return power_at

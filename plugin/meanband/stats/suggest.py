@@ -11,7 +11,13 @@ import numpy as np
 
 from meanband import defaults
 from meanband.errors import TrialError, hide_plugin_frames
-from meanband.stats.planning import expected_power, trials_needed
+from meanband.stats.planning import (
+    SD_BOUND,
+    power_against_edge,
+    power_inside_band,
+    sd_upper_bound,
+    trials_needed,
+)
 from meanband.stats.sample import check_confidence, check_probability
 from meanband.stats.verdict import Verdict
 from meanband.units import SECONDS, format_value
@@ -99,12 +105,11 @@ def suggest_trials(
     two-sided band, the two one-sided tests' at both edges at once), with the effect
     (mean - edge) / sd taken from this run (noncentral t; see ``planning.trials_needed``). This
     run's sd is an estimate with ``sd_df`` degrees of freedom (n - 1 unless given, e.g. fewer for
-    batch means): the count reaches ``power`` on average over the true sd it leaves possible
-    (Julious & Owen 2006, ``planning.expected_power``), and ``power_now`` is that average too.
-    After a PASS the mean's uncertainty is averaged over as well (the assurance of O'Hagan,
-    Stevens & Campbell 2005); after an UNDECIDED it is not, since its interval straddles the
-    edge and that average would ask for many times the count needed
-    (studies/suggested_power.py). A FAIL gets no suggestion: the interval already lies
+    batch means): the count is planned with its ``SD_BOUND`` upper confidence bound (Browne
+    1995, ``planning.sd_upper_bound``), and so is ``power_now``. Among the rules measured in
+    studies/suggested_power.py (the sd as known, this bound, the power averaged over the sd as
+    Julious & Owen 2006, and over the mean too) it landed the delivered power nearest the
+    planned one. A FAIL gets no suggestion: the interval already lies
     wholly outside the band, and more trials only confirm it. A PASS whose count could shrink
     by at least ``MIN_SAVING`` of its trials gets the smaller count, with the CI seconds saved
     when ``trial_seconds`` is known.
@@ -140,17 +145,14 @@ def suggest_trials(
     pilot_df = float(n - 1) if sd_df is None else float(sd_df)
     if not (pilot_df > 0 and math.isfinite(pilot_df)):
         raise TrialError(f"sd_df must be a positive number of degrees of freedom, got {sd_df!r}")
-    # A PASS plans with the mean's uncertainty too (assurance); an UNDECIDED interval straddles
-    # the edge, so that average would include true means on the edge, which no count decides,
-    # and ask for many times the count needed: it averages over the sd alone.
-    pilot_n = n if verdict is Verdict.PASS else None
-    power_now = _power(margin, sd, n, alpha, pilot_df, far, pilot_n)
+    planning_sd = sd_upper_bound(sd, pilot_df, SD_BOUND)
+    power_now = _power(margin, planning_sd, n, alpha, far)
     floor = max(int(min_n), 2)
 
     if isinstance(instrument_count, str):
         needed = trials_needed(
-            sd, margin=margin, confidence=level, side=side, power=power, n_max=_N_CEILING,
-            other_margin=far, sd_df=pilot_df, pilot_n=pilot_n,
+            planning_sd, margin=margin, confidence=level, side=side, power=power,
+            n_max=_N_CEILING, other_margin=far,
         )
     else:
         needed = instrument_count
@@ -177,13 +179,11 @@ def suggest_trials(
             simulated_power,
         )
 
-        uncertain = pilot_n is not None
         needed = simulated_count(sample, low=low, high=high, confidence=level, power=power,
-                                 start=needed, sd_df=pilot_df, mean_uncertain=uncertain,
-                                 n_max=_N_CEILING)
+                                 start=needed, planning_sd=planning_sd, n_max=_N_CEILING)
         if n <= SIMULATION_CEILING:
             power_now = simulated_power(sample, n, low=low, high=high, confidence=level,
-                                        sd_df=pilot_df, mean_uncertain=uncertain)
+                                        planning_sd=planning_sd)
     by_power, needed = needed, max(needed, floor)
 
     if verdict is Verdict.UNDECIDED:
@@ -239,11 +239,9 @@ def _resampled(
     return sample
 
 
-def _power(
-    margin: float, sd: float, n: int, alpha: float, sd_df: float, far: float | None,
-    pilot_n: int | None,
-) -> float:
+def _power(margin: float, sd: float, n: int, alpha: float, far: float | None) -> float:
     if sd == 0:
         return 1.0 if margin > 0 else 0.0
-    return expected_power(margin / sd, n, alpha, sd_df, None if far is None else far / sd,
-                          pilot_n)
+    if far is not None:
+        return power_inside_band(margin / sd, far / sd, n, alpha)
+    return float(power_against_edge(margin / sd, n, alpha))
