@@ -21,8 +21,12 @@ points). The measurement uses only ``suggest_trials``, ``meanband.trials_needed`
 copy of the package (``git archive 66ba121 plugin | tar -x -C /tmp/before``), and
 ``--before DIR`` prints both side by side.
 
+Two more tables, from the current code only: counts planned at k times an UNDECIDED pilot's
+effect (why no pilot-only rule serves every effect), and four rules for the pilot's sd.
+
 Run: ``nice -n 19 .venv/bin/python studies/suggested_power.py [--pilots N] [--seed S]
-[--before /tmp/before/plugin]``. Nothing here is asserted; tests/test_suggest.py checks the
+[--before /tmp/before/plugin]`` (300 pilots a cell by default: about four minutes with
+``--before`` on a shared two-core machine). Nothing here is asserted; tests/test_suggest.py checks the
 properties on a few seeded cases.
 """
 
@@ -50,7 +54,7 @@ def _arguments() -> argparse.Namespace:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--meanband-path", help="put this directory first on sys.path")
     parser.add_argument("--before", help="also measure the package in this directory, side by side")
-    parser.add_argument("--pilots", type=int, default=600, help="pilots per cell")
+    parser.add_argument("--pilots", type=int, default=300, help="pilots per cell")
     parser.add_argument("--seed", type=int, default=2026)
     parser.add_argument("--json", action="store_true", help="print the figures as JSON")
     return parser.parse_args()
