@@ -6,6 +6,8 @@ import math
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from meanband import TrialError, trials_needed
 from meanband.stats.planning import power_against_edge
 
@@ -212,3 +214,71 @@ def test_centred_band_plan_uses_both_edges_and_delivers_its_power() -> None:
     # Before: the near-edge count delivers well under 90% when the mean sits mid-band.
     assert power_inside_band(0.6, 0.6, near_only, 0.025) < 0.87
     assert 0.9 <= power_inside_band(0.6, 0.6, both, 0.025) < 0.92
+
+
+# -- the pilot's sd (and mean) taken with their uncertainty ------------------------------------
+
+
+def test_expected_power_matches_direct_integration_over_the_sd() -> None:
+    from meanband.stats.planning import expected_power
+    from scipy import integrate
+    from scipy import stats as sstats
+
+    # Reference: the Julious & Owen (2006) average written as a direct numerical integral
+    # (scipy.integrate.quad) over u = s / sigma, u^2 df ~ chi2(df): power of the one-sided t
+    # test (scipy.stats.nct) at effect * u.
+    for effect, n, df in ((0.4, 60, 7), (0.25, 150, 9), (0.8, 20, 29)):
+        critical = sstats.t.ppf(0.95, n - 1)
+
+        def integrand(u: float, effect: float, n: int, df: int, critical: float) -> float:
+            density = sstats.chi2.pdf(u * u * df, df) * 2 * u * df
+            return float(sstats.nct.sf(critical, n - 1, effect * u * math.sqrt(n)) * density)
+
+        reference, _ = integrate.quad(integrand, 0, 6, args=(effect, n, df, critical), limit=200)
+        assert expected_power(effect, n, 0.05, df) == pytest.approx(reference, abs=2e-3)
+
+
+def test_expected_power_with_a_well_known_sd_is_the_noncentral_t_power() -> None:
+    from meanband.stats.planning import expected_power, power_inside_band
+    from statsmodels.stats.power import TTestPower
+
+    # Reference: statsmodels.stats.power.TTestPower.power (one-sample t, one-sided) for the
+    # budget; power_inside_band (checked against simulation above) for a band.
+    for effect, n in ((0.5, 30), (0.3, 80)):
+        ref = TTestPower().power(effect_size=effect, nobs=n, alpha=0.05, alternative="larger")
+        assert expected_power(effect, n, 0.05, 1e7) == pytest.approx(float(ref), abs=1e-3)
+    assert expected_power(0.6, 40, 0.025, 1e7, 0.9) == pytest.approx(
+        power_inside_band(0.6, 0.9, 40, 0.025), abs=3e-3)
+
+
+def test_assurance_matches_a_simulation_of_the_posterior() -> None:
+    from meanband.stats.planning import expected_power
+    from scipy import stats as sstats
+
+    # Reference: Monte Carlo of the assurance (O'Hagan, Stevens & Campbell 2005) under the
+    # reference prior: sigma = s sqrt(df / chi2), mu = mean + sigma z / sqrt(m); the chance of
+    # the correct decision is the noncentral-t power against the edge on whichever side mu is.
+    rng = np.random.default_rng(5)
+    m, effect, n = 15, 0.5, 40
+    sigma = np.sqrt((m - 1) / rng.chisquare(m - 1, 200_000))
+    true = (effect - sigma * rng.standard_normal(200_000) / math.sqrt(m)) / sigma
+    critical = sstats.t.ppf(0.95, n - 1)
+    reference = float(np.mean(sstats.nct.sf(critical, n - 1, np.abs(true) * math.sqrt(n))))
+    assert expected_power(effect, n, 0.05, m - 1, pilot_n=m) == pytest.approx(reference, abs=0.01)
+
+
+@settings(max_examples=30, deadline=None)
+@given(effect=st.floats(0.1, 2.0), df=st.integers(2, 200))
+def test_an_uncertain_sd_asks_for_more_and_less_so_as_it_firms_up(effect, df):
+    # Property (Julious & Owen 2006): averaging over the sd's uncertainty never lowers the count
+    # below the known-sd one, and more pilot df never raise it.
+    known = trials_needed(1.0, margin=effect, side="upper")
+    loose = trials_needed(1.0, margin=effect, side="upper", sd_df=df)
+    firm = trials_needed(1.0, margin=effect, side="upper", sd_df=df * 4)
+    assert known is not None and loose is not None and firm is not None
+    assert known <= firm <= loose
+
+
+def test_bad_pilot_degrees_of_freedom_are_refused() -> None:
+    with pytest.raises(TrialError, match="sd_df"):
+        trials_needed(1.0, margin=0.3, sd_df=0)

@@ -78,8 +78,20 @@ def suggestion_for_row(
         min_n=int(settings.get("min_n") or 2),
         trial_seconds=trial_seconds(row),
         unit=decision.get("unit") or row.get("unit"),
+        sd_df=_spread_df(interval),
+        values=row.get("values") or None,
+        method=str(interval.get("method") or "t"),
         **_instrument_count(row, decision),
     )
+
+
+def _spread_df(interval: Mapping[str, Any]) -> float | None:
+    """Degrees of freedom of the spread the count is planned with: the interval's own (n - 1 for
+    t, fewer for batch means), or None (n - 1) when the row has none usable."""
+    df = interval.get("df")
+    if isinstance(df, (int, float)) and math.isfinite(df) and df > 0:
+        return float(df)
+    return None
 
 
 def _instrument_count(row: Mapping[str, Any], decision: Mapping[str, Any]) -> dict[str, Any]:

@@ -3,12 +3,21 @@
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
 
+import numpy as np
+
 from meanband import defaults
 from meanband.errors import TrialError, hide_plugin_frames
-from meanband.stats.planning import power_against_edge, power_inside_band, trials_needed
+from meanband.stats.planning import (
+    SD_BOUND,
+    power_against_edge,
+    power_inside_band,
+    sd_upper_bound,
+    trials_needed,
+)
 from meanband.stats.sample import check_confidence, check_probability
 from meanband.stats.verdict import Verdict
 from meanband.units import SECONDS, format_value
@@ -88,6 +97,9 @@ def suggest_trials(
     unit: str | None = None,
     instrument_count: int | str | None = "none given",
     spread: str = "sd",
+    sd_df: float | None = None,
+    values: Sequence[float] | np.ndarray | None = None,
+    method: str = "t",
 ) -> Suggestion | None:
     """The count that decides a check at ``power``, from its mean, sd and band.
 
@@ -95,13 +107,24 @@ def suggest_trials(
     combined uncertainty scaled to one trial. The count is the one-sample t test's at the edge
     nearest the mean (for a mean inside a
     two-sided band, the two one-sided tests' at both edges at once), with the effect
-    (mean - edge) / sd taken from this run (noncentral t; see ``planning.trials_needed``). A
-    FAIL gets no suggestion: the interval already lies wholly outside the band, and more
-    trials only confirm it. A PASS whose count could shrink by at least ``MIN_SAVING`` of its
-    trials gets the smaller count, with the CI seconds saved when ``trial_seconds`` is known.
+    (mean - edge) / sd taken from this run (noncentral t; see ``planning.trials_needed``). This
+    run's sd is an estimate with ``sd_df`` degrees of freedom (n - 1 unless given, e.g. fewer for
+    batch means): the count is planned with its ``SD_BOUND`` upper confidence bound (Browne
+    1995, ``planning.sd_upper_bound``), and so is ``power_now``. Among the rules measured in
+    studies/suggested_power.py (the sd as known, this bound, the power averaged over the sd as
+    Julious & Owen 2006, and over the mean too) it landed the delivered power nearest the
+    planned one. A FAIL gets no suggestion: the interval already lies
+    wholly outside the band, and more trials only confirm it. A PASS whose count could shrink
+    by at least ``MIN_SAVING`` of its trials gets the smaller count, with the CI seconds saved
+    when ``trial_seconds`` is known.
     When the check carries an instrument (Type B) uncertainty, pass the count its decision
     computed with it as ``instrument_count`` (None: no count decides it); the t test alone
     would promise a decision that the instrument's own uncertainty can forbid.
+
+    Give the trials as ``values`` (and the interval ``method``) to plan with their shape: for
+    the t interval the count and ``power_now`` then come from reruns simulated from the values
+    themselves (``stats.shape_power``), since skewed trials pass less often than the normal
+    theory says. Other methods keep the normal-theory count, a stated proxy.
     """
     level = check_confidence(confidence)
     power = check_power(power)
@@ -123,13 +146,17 @@ def suggest_trials(
     alpha = (1.0 - level) / 2.0 if side == "two-sided" else 1.0 - level
     # A mean inside a two-sided band must clear both edges at once: plan with both.
     far = max(high - mean, mean - low) if side == "two-sided" and low < mean < high else None
-    power_now = _power(margin, sd, n, alpha, far)
+    pilot_df = float(n - 1) if sd_df is None else float(sd_df)
+    if not (pilot_df > 0 and math.isfinite(pilot_df)):
+        raise TrialError(f"sd_df must be a positive number of degrees of freedom, got {sd_df!r}")
+    planning_sd = sd_upper_bound(sd, pilot_df, SD_BOUND)
+    power_now = _power(margin, planning_sd, n, alpha, far)
     floor = max(int(min_n), 2)
 
     if isinstance(instrument_count, str):
         needed = trials_needed(
-            sd, margin=margin, confidence=level, side=side, power=power, n_max=_N_CEILING,
-            other_margin=far,
+            planning_sd, margin=margin, confidence=level, side=side, power=power,
+            n_max=_N_CEILING, other_margin=far,
         )
     else:
         needed = instrument_count
@@ -148,6 +175,19 @@ def suggest_trials(
                 f"{format_value(sd, unit)}"
             )
         return Suggestion(None, reason, "none", n, power, power_now)
+    sample = _resampled(values, n, method, instrument_count)
+    if sample is not None:
+        from meanband.stats.shape_power import (
+            SIMULATION_CEILING,
+            simulated_count,
+            simulated_power,
+        )
+
+        needed = simulated_count(sample, low=low, high=high, confidence=level, power=power,
+                                 start=needed, planning_sd=planning_sd, n_max=_N_CEILING)
+        if n <= SIMULATION_CEILING:
+            power_now = simulated_power(sample, n, low=low, high=high, confidence=level,
+                                        planning_sd=planning_sd)
     by_power, needed = needed, max(needed, floor)
 
     if verdict is Verdict.UNDECIDED:
@@ -186,7 +226,24 @@ def suggest_trials(
     return Suggestion(n, reason, "keep", n, power, power_now)
 
 
-def _power(margin: float, sd: float, n: int, alpha: float, far: float | None = None) -> float:
+def _resampled(
+    values: Sequence[float] | np.ndarray | None, n: int, method: str,
+    instrument_count: int | str | None,
+) -> np.ndarray | None:
+    """The trials to simulate reruns from, or None where the normal theory stands: no values,
+    a method other than t, or an instrument uncertainty in the budget."""
+    if values is None or method != "t" or not isinstance(instrument_count, str):
+        return None
+    sample = np.asarray(values, dtype=np.float64)
+    if sample.ndim != 1 or sample.size != n or not np.all(np.isfinite(sample)):
+        raise TrialError(
+            f"values must be the check's {n} finite trials, got {sample.size} of shape "
+            f"{sample.shape}"
+        )
+    return sample
+
+
+def _power(margin: float, sd: float, n: int, alpha: float, far: float | None) -> float:
     if sd == 0:
         return 1.0 if margin > 0 else 0.0
     if far is not None:
