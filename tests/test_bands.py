@@ -11,6 +11,7 @@ import numpy as np
 import pytest
 from meanband import Band, Decision, TrialError, Verdict, decide, diagnose, make_band, trials_needed
 from meanband.stats.decision import edge_margin
+from meanband.stats.planning import sd_upper_bound
 
 
 @dataclass(frozen=True)
@@ -167,11 +168,15 @@ class TestDecisionContents:
         band = make_band(high=1.01)
         decision = decide(x, band, confidence=0.95, power=0.8)
         assert decision.verdict is Verdict.UNDECIDED
+        # Planned with the sd's 80% upper confidence bound (Browne 1995), as suggestions are.
         expected = trials_needed(
-            decision.interval.sd, margin=1.01 - decision.interval.mean, confidence=0.95,
-            side="upper", power=0.8,
+            sd_upper_bound(decision.interval.sd, x.size - 1), margin=1.01 - decision.interval.mean,
+            confidence=0.95, side="upper", power=0.8,
         )
         assert decision.suggested_n == expected
+        known = trials_needed(decision.interval.sd, margin=1.01 - decision.interval.mean,
+                              confidence=0.95, side="upper", power=0.8)
+        assert known is not None and expected is not None and expected > known
         assert decision.suggested_n is not None and decision.suggested_n > x.size
 
     def test_suggested_n_uses_the_nearest_edge(self) -> None:
@@ -180,7 +185,8 @@ class TestDecisionContents:
         assert decision.verdict is Verdict.UNDECIDED
         margin = decision.interval.mean - 3.98
         assert edge_margin(decision.interval.mean, decision.band) == pytest.approx(margin)
-        assert decision.suggested_n == trials_needed(decision.interval.sd, margin=margin)
+        assert decision.suggested_n == trials_needed(sd_upper_bound(decision.interval.sd, 5),
+                                                     margin=margin)
 
     def test_no_suggestion_on_fail(self) -> None:
         decision = decide([10.0, 10.1, 9.9, 10.05], make_band(high=5.0))

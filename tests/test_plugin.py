@@ -112,8 +112,12 @@ def test_it(trials):
     trials.extend(STRADDLE)
     trials.check(high=85.4)
 """))
+    from meanband.stats.planning import sd_upper_bound
+
     iv = mean_interval(STRADDLE, 0.95, "upper")
-    expected = trials_needed(iv.sd, margin=85.4 - iv.mean, confidence=0.95, side="upper", power=0.9)
+    # The sd's 80% upper confidence bound plans the count (Browne 1995).
+    expected = trials_needed(sd_upper_bound(iv.sd, iv.n - 1), margin=85.4 - iv.mean,
+                             confidence=0.95, side="upper", power=0.9)
     result = run_suite()
     result.stdout.fnmatch_lines([f"*about {expected} trials would likely decide it*"])
 

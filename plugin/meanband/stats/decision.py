@@ -28,7 +28,7 @@ from meanband.stats.decision_rules import (
 from meanband.stats.diagnostics import Diagnostics, diagnose
 from meanband.stats.interval import Interval
 from meanband.stats.methods import mean_interval
-from meanband.stats.planning import trials_needed
+from meanband.stats.planning import SD_BOUND, sd_upper_bound, trials_needed
 from meanband.stats.rules import GUARDED, RULES, RuleOutcome, apply_rule, check_rule
 from meanband.stats.sample import as_sample, check_confidence, check_probability
 from meanband.stats.uncertainty import (
@@ -189,10 +189,13 @@ def decide(
             )
         else:
             # sem * sqrt(n) is the sd per trial that the method's interval implies: the plain
-            # sd for independent trials, the long-run sd for batch means of correlated ones.
+            # sd for independent trials, the long-run sd for batch means of correlated ones;
+            # planned with its upper confidence bound, as the suggestions are (Browne 1995).
             spread = interval.sem * math.sqrt(interval.n)
+            df = interval.df if math.isfinite(interval.df) and interval.df > 0 else interval.n - 1
             suggested = trials_needed(
-                spread, margin=margin, confidence=level, side=side, power=power
+                sd_upper_bound(spread, df, SD_BOUND) if df > 0 else spread, margin=margin,
+                confidence=level, side=side, power=power,
             )
     ratio = tolerance_uncertainty_ratio(budget, band)
     if ratio is not None:
