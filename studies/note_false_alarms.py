@@ -288,7 +288,7 @@ def main(argv: list[str] | None = None) -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--meanband-path", help="directory to import meanband from")
     parser.add_argument("--before", help="also measure the meanband under this directory")
-    parser.add_argument("--reps", type=int, default=2000)
+    parser.add_argument("--reps", type=int, default=1000)
     parser.add_argument("--json", action="store_true", help="print the raw figures as JSON")
     args = parser.parse_args(argv)
     if args.meanband_path:
