@@ -380,3 +380,40 @@ def test_no_resampling_method_is_recommended_below_twenty_trials() -> None:
                 assert not any(note.get("recommend", "").startswith("bootstrap") for note in notes)
                 told_to_collect += any("collect at least 20" in note["text"] for note in notes)
     assert told_to_collect > 0
+
+
+def test_autocorrelation_note_sits_at_the_box_jenkins_limit_and_asks_for_risk() -> None:
+    from dataclasses import replace
+
+    # One-sided white-noise limit -1/n + z(0.99)/sqrt(n) (Box & Jenkins 1976, section 2.1.6
+    # large-sample limits; z(0.99) = 2.3263 from scipy.stats.norm.ppf).
+    base = diagnose(normal(0, 50))
+    limit = -1 / 50 + stats.norm.ppf(0.99) / math.sqrt(50)
+    assert "autocorrelated" in codes_of(replace(base, lag1=limit + 1e-9))
+    assert "autocorrelated" not in codes_of(replace(base, lag1=limit - 1e-9))
+    # At n = 5000 the limit is r = 0.033: significant, but an AR(1) series with phi that small
+    # loses under 2 points of coverage, so no note (risk, not significance).
+    big = replace(diagnose(normal(0, 5000)), lag1=0.04)
+    assert 0.95 - ar1_coverage(0.04) < 0.02
+    assert "autocorrelated" not in codes_of(big)
+    assert "autocorrelated" in codes_of(replace(big, lag1=0.2))
+
+
+def test_not_normal_note_fires_where_the_guarded_skew_moves_a_bound_by_two_points() -> None:
+    from dataclasses import replace
+
+    # Shapiro-Wilk rejects these log-normal trials; the note's line is
+    # 0.1102 (|G1| - se(G1)) / sqrt(n) = 0.02 (Edgeworth term, Hall 1992; se per Joanes & Gill
+    # 1998), here with the log-normal fit out of play (a sample whose logs fail normality).
+    x = 5.0 + np.random.default_rng(4).exponential(1.0, 40) ** 2
+    d = diagnose(x)
+    assert d.normality.rejects(0.05)
+    # (2 z^2 + 1) phi(z) / 6 at z = 1.6449 by hand: 6.4110 * 0.10314 / 6 = 0.11021.
+    assert skew_shift(1.0, 1) == pytest.approx(0.11021, rel=1e-4)
+    line = 0.02 * math.sqrt(40) / 0.11021 + skewness_se(40)
+    assert "not-normal" in codes_of(replace(d, skewness=line + 0.01))
+    assert "not-normal" not in codes_of(replace(d, skewness=line - 0.01))
+
+
+def codes_of(d: Diagnostics) -> set[str]:
+    return {note["code"] for note in assumption_notes(d)}
