@@ -20,8 +20,10 @@ from meanband.record.settings import Settings
 from meanband.stats.bands import Band, Edge, Tolerance, make_band
 from meanband.stats.decision import Decision
 from meanband.stats.decision_rules import DecisionRule, ProcessPrior
+from meanband.stats.diagnostics import lag1_autocorrelation
 from meanband.stats.interval import Interval
 from meanband.stats.methods import mean_interval
+from meanband.stats.notes import FALLBACK_METHOD, FALLBACK_MIN_N, batch_means_fallback
 from meanband.stats.rules import GUARDED
 from meanband.stats.sample import as_sample
 from meanband.stats.uncertainty import InstrumentSpec
@@ -52,6 +54,9 @@ class Series:
         # Trials of this series taken by an earlier try of the same commit in the same CI
         # pipeline: n="until-decided" continues their sequence instead of looking afresh.
         self.earlier: sequential.Earlier | None = None
+        # Whether a marker, option, ini key or plan set the interval method: timings whose
+        # method nobody chose fall back to batch means when lag-1 r is in doubt.
+        self.method_chosen = False
 
     # -- collecting -------------------------------------------------------------------------
 
@@ -371,12 +376,15 @@ class Series:
             recorded = {**settings.to_dict(), "n": "auto"}
         else:
             band = make_band(low, high, center=center, tolerance=tolerance, unit=self.unit)
+            fallback = self._fallback(method)
+            if fallback is not None:
+                settings = settings.merged(method=FALLBACK_METHOD)
             decision, notes = decide_with_notes(
                 self._values, band, settings.to_dict(),
                 instrument_uncertainty=instrument_uncertainty, rule=rule, process=process,
                 skip={note["code"] for note in self._timing_notes},
             )
-            notes = self._timing_notes + notes
+            notes = self._timing_notes + ([fallback] if fallback else []) + notes
             recorded = settings.to_dict()
         notes = drop_immaterial_drift(notes, decision)
         repeated = self._repeats(recorded, decision)
@@ -397,6 +405,16 @@ class Series:
         if not decision.passed:
             raise BandViolation(describe(decision, label=self._label(), notes=notes), decision)
         return decision
+
+    def _fallback(self, method: str | None) -> dict[str, str] | None:
+        """The batch-means fallback's note for timings whose method nobody set and whose lag-1
+        r is in doubt (``meanband.stats.notes.batch_means_fallback``), else None."""
+        if method is not None or self.method_chosen or self.source != "time":
+            return None
+        if self.unit != SECONDS or self._values.size < FALLBACK_MIN_N:
+            return None
+        x = self._values
+        return batch_means_fallback(lag1_autocorrelation(x, float(np.mean(x))), x.size)
 
     def _repeats(self, settings: dict[str, Any], decision: Decision) -> int:
         """The 1-based number of an earlier check of this series on the same trials, band and
@@ -482,6 +500,7 @@ class Recorder(Series):
             self._series[name] = Series(name, settings, self.nodeid)
             self._series[name]._test_timing = self._test_timing
             self._series[name].earlier = self._earlier.get(name)
+            self._series[name].method_chosen = self.method_chosen
         return self._series[name]
 
     def compare(

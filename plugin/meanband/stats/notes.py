@@ -15,6 +15,9 @@ __all__ = [
     "COCHRAN_FACTOR",
     "DIP_ALPHA",
     "DRIFT_ALPHA",
+    "FALLBACK_DOUBT_Z",
+    "FALLBACK_METHOD",
+    "FALLBACK_MIN_N",
     "LOG_BIMODAL_LIMIT",
     "MAX_COVERAGE_LOSS",
     "MAX_SKEW_SHIFT",
@@ -22,6 +25,7 @@ __all__ = [
     "SHAPE_FREE_METHOD",
     "ar1_coverage",
     "assumption_notes",
+    "batch_means_fallback",
     "drift_words",
     "guarded_skewness",
     "judged_skewness",
@@ -75,6 +79,16 @@ DIP_ALPHA = 0.05
 #: coefficient stayed below 0.8 in every one of 300 samples per shape and n = 30-300 of the
 #: shapes above; one call in ten at three times the usual time reaches about 1.
 LOG_BIMODAL_LIMIT = 0.8
+#: Where the lag-1 r of timings is "in doubt": above -1/n + z/sqrt(n) with z = 1.2816, which
+#: independent trials pass in one run in ten (Box & Jenkins 1976 large-sample limits, one-sided
+#: at 0.10). Timings whose method was not set take batch means there: on AR(1) phi = 0.3 at
+#: n = 50 that raises coverage from about 85% to 92%, at 1.8x the width on those series and
+#: 1.09x on average on independent ones (studies/note_false_alarms.py).
+FALLBACK_DOUBT_Z = 1.2816
+#: Fewest trials at which timings fall back to batch means: 30 trials make 3 batches (df 2).
+FALLBACK_MIN_N = 30
+#: The method timings in doubt fall back to.
+FALLBACK_METHOD = "batch-means"
 #: Methods that assume roughly normal raw trials (batch means average them first).
 _NORMAL_THEORY = ("t",)
 _LOG_NORMAL_THEORY = ("log-t", "cox")
@@ -368,6 +382,24 @@ def _independence_notes(d: Diagnostics, alpha: float, method: str) -> list[dict[
         "method='batch-means' allows for a random wander",
         "recommend": "batch-means",
     }]
+
+
+def batch_means_fallback(lag1: float, n: int) -> dict[str, str] | None:
+    """The note of timings that fall back to batch means, or None when lag-1 r is not in
+    doubt (see ``FALLBACK_DOUBT_Z``); the caller decides whether the fallback applies (timings
+    whose method was not set)."""
+    if n < FALLBACK_MIN_N or not math.isfinite(lag1):
+        return None
+    limit = -1.0 / n + FALLBACK_DOUBT_Z / math.sqrt(n)
+    if lag1 <= limit:
+        return None
+    return {
+        "code": "batch-means-fallback",
+        "text": f"interval by batch means, not t: lag-1 r = {lag1:.3f} is above {limit:.3f}, "
+        "which independent trials pass in one run in ten, so these timings may be "
+        "autocorrelated (t would then be too narrow); batch means allow for it at the cost of "
+        "a wider interval; set method='t' to keep the t interval",
+    }
 
 
 def drift_words(drift: DriftTest, unit: str | None) -> str:
