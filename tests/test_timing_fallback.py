@@ -119,3 +119,43 @@ def test_the_doubt_limit() -> None:
     assert batch_means_fallback(limit - 1e-6, n) is None
     assert batch_means_fallback(0.9, FALLBACK_MIN_N - 1) is None
     assert batch_means_fallback(float("nan"), n) is None
+
+
+def test_pooling_a_run_that_fell_back_with_one_that_did_not_judges_the_pool_afresh() -> None:
+    import numpy as np
+    from meanband.report.merge import merge_reports
+    from meanband.store import report_json
+    from report_rows import make_row
+
+    def report(rows: list[dict]) -> dict:
+        built = report_json.build_report(
+            rows, environment=report_json.environment(),
+            configuration={"args": [], "options": {}}, include_trials=True,
+        )
+        return report_json.loads(report_json.dumps(built))
+
+    # Invented: two CI runs of one latency check, 40 timings each; the first run's timings
+    # wander (AR(1) phi 0.8), so it fell back; the second's are independent.
+    rng = np.random.default_rng(5)
+    wander = np.empty(40)
+    level = 0.0
+    for i in range(40):
+        level = 0.8 * level + rng.normal(0.0, 0.6)
+        wander[i] = 1.0e-3 + 1e-4 * level
+    steady = rng.normal(1.0e-3, 1e-4, 40)
+    fell = make_row("t.py::test_quote", wander, band={"high": "2ms"}, unit="s")
+    note = batch_means_fallback(float(np.corrcoef(wander[:-1], wander[1:])[0, 1]), 40)
+    assert note is not None
+    fell["notes"].insert(0, note)
+    fell["settings"]["method"] = "batch-means"
+    kept = make_row("t.py::test_quote", steady, band={"high": "2ms"}, unit="s")
+    merged = merge_reports([("a.json", report([fell])), ("b.json", report([kept]))], pool=True)
+    [row] = merged["rows"]
+    pooled = np.r_[wander, steady]
+    expected = batch_means_fallback(
+        float(np.sum((pooled[:-1] - pooled.mean()) * (pooled[1:] - pooled.mean()))
+              / np.sum((pooled - pooled.mean()) ** 2)), 80)
+    # The pool takes the fallback exactly when its own lag-1 r is in doubt (NIST StRD r(1)).
+    assert ("batch-means-fallback" in codes(row)) == (expected is not None)
+    assert method(row) == ("batch-means" if expected is not None else "t")
+    assert sum(n["code"] == "batch-means-fallback" for n in row["notes"]) <= 1

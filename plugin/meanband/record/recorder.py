@@ -13,17 +13,16 @@ from meanband.collect.progress import take_with_progress
 from meanband.collect.timing import time_calls
 from meanband.errors import BandViolation, TrialError, hide_plugin_frames
 from meanband.record import adaptive, sequential
-from meanband.record.check import decide_with_notes, drop_immaterial_drift
+from meanband.record.check import decide_with_notes, drop_immaterial_drift, fallback_note
 from meanband.record.message import describe
 from meanband.record.row import ResultRow, build_row
 from meanband.record.settings import Settings
 from meanband.stats.bands import Band, Edge, Tolerance, make_band
 from meanband.stats.decision import Decision
 from meanband.stats.decision_rules import DecisionRule, ProcessPrior
-from meanband.stats.diagnostics import lag1_autocorrelation
 from meanband.stats.interval import Interval
 from meanband.stats.methods import mean_interval
-from meanband.stats.notes import FALLBACK_METHOD, FALLBACK_MIN_N, batch_means_fallback
+from meanband.stats.notes import FALLBACK_METHOD
 from meanband.stats.rules import GUARDED
 from meanband.stats.sample import as_sample
 from meanband.stats.uncertainty import InstrumentSpec
@@ -409,12 +408,9 @@ class Series:
     def _fallback(self, method: str | None) -> dict[str, str] | None:
         """The batch-means fallback's note for timings whose method nobody set and whose lag-1
         r is in doubt (``meanband.stats.notes.batch_means_fallback``), else None."""
-        if method is not None or self.method_chosen or self.source != "time":
+        if method is not None or self.method_chosen:
             return None
-        if self.unit != SECONDS or self._values.size < FALLBACK_MIN_N:
-            return None
-        x = self._values
-        return batch_means_fallback(lag1_autocorrelation(x, float(np.mean(x))), x.size)
+        return fallback_note(self._values, source=self.source, unit=self.unit)
 
     def _repeats(self, settings: dict[str, Any], decision: Decision) -> int:
         """The 1-based number of an earlier check of this series on the same trials, band and

@@ -15,6 +15,7 @@ __all__ = [
     "COCHRAN_FACTOR",
     "DIP_ALPHA",
     "DRIFT_ALPHA",
+    "FALLBACK_CODE",
     "FALLBACK_DOUBT_Z",
     "FALLBACK_METHOD",
     "FALLBACK_MIN_N",
@@ -87,8 +88,9 @@ LOG_BIMODAL_LIMIT = 0.8
 FALLBACK_DOUBT_Z = 1.2816
 #: Fewest trials at which timings fall back to batch means: 30 trials make 3 batches (df 2).
 FALLBACK_MIN_N = 30
-#: The method timings in doubt fall back to.
+#: The method timings in doubt fall back to, and the code of the note that says so.
 FALLBACK_METHOD = "batch-means"
+FALLBACK_CODE = "batch-means-fallback"
 #: Methods that assume roughly normal raw trials (batch means average them first).
 _NORMAL_THEORY = ("t",)
 _LOG_NORMAL_THEORY = ("log-t", "cox")
@@ -394,7 +396,7 @@ def batch_means_fallback(lag1: float, n: int) -> dict[str, str] | None:
     if lag1 <= limit:
         return None
     return {
-        "code": "batch-means-fallback",
+        "code": FALLBACK_CODE,
         "text": f"interval by batch means, not t: lag-1 r = {lag1:.3f} is above {limit:.3f}, "
         "which independent trials pass in one run in ten, so these timings may be "
         "autocorrelated (t would then be too narrow); batch means allow for it at the cost of "
