@@ -368,7 +368,7 @@ def test_lognormal_skewness_of_an_extreme_spread_is_infinite_not_an_error() -> N
 
 
 def test_no_resampling_method_is_recommended_below_twenty_trials() -> None:
-    # Issue 19's figures (BCa covers 69.9 / 81.5 / 90.5% at n = 3 / 5 / 10 where t covers
+    # An outside study's figures (BCa covers 69.9 / 81.5 / 90.5% at n = 3 / 5 / 10 where t covers
     # 97.4 / 94.0 / 94.9%): below 20 trials a note advises more trials, never the bootstrap.
     rng = np.random.default_rng(19)
     told_to_collect = 0

@@ -96,7 +96,7 @@ _NORMAL_THEORY = ("t",)
 _LOG_NORMAL_THEORY = ("log-t", "cox")
 #: Fewest trials at which a resampling interval is recommended: below about 20 the bootstrap
 #: covers worse than t (BCa 69.9 / 81.5 / 90.5% at n = 3 / 5 / 10 against t's 97.4 / 94.0 /
-#: 94.9% on normal data, issue 19's study), so no note recommends it there.
+#: 94.9% on normal data, an outside study of the notes), so no note recommends it there.
 MIN_BOOTSTRAP_TRIALS = 20
 #: The shape-free method the notes recommend at n >= MIN_BOOTSTRAP_TRIALS: the studentised
 #: bootstrap falsely passes less often than BCa on every skewed scenario of
