@@ -59,6 +59,15 @@ def test_fail_raises_an_assertion_error_with_the_decision() -> None:
     assert re.search(r"^  band +<= 84(\.0*)?$", message, re.M)
     assert re.search(r"^  verdict +FAIL$", message, re.M)
     assert "normality  Shapiro-Wilk" in message
+    # The skewness and how far it moves a 95% bound stay visible when no note is written:
+    # 0.1102 |G1| / sqrt(n) (Hall 1992 Edgeworth term, as meanband.stats.notes.skew_shift).
+    shown = re.search(r"skewness G1 = ([-\d.]+), moves a 95% bound by about ([\d.]+) points",
+                      message)
+    assert shown is not None
+    g1 = error.decision.diagnostics.skewness
+    assert float(shown.group(1)) == pytest.approx(g1, abs=0.006)
+    assert float(shown.group(2)) == pytest.approx(100 * 0.1102 * abs(g1) / math.sqrt(12),
+                                                  abs=0.06)
     assert "lag-1 r" in message
     assert "to decide" not in message
 

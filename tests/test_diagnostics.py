@@ -8,6 +8,8 @@ import warnings
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from meanband import Diagnostics, NormalityTest, TrialError, diagnose
 from meanband.stats.diagnostics import SHAPIRO_MAX_N, dagostino_pearson, lag1_autocorrelation
 from reference_data import DATA, STRD_NAMES, STRD_RTOL, load_values, strd_certified
@@ -330,3 +332,48 @@ class TestObjects:
         assert test.rejects(0.05)
         assert not test.rejects(0.01)
         assert not NormalityTest("Shapiro-Wilk", math.nan, math.nan, False, "why").rejects(0.5)
+
+
+# --- the dip test of unimodality -------------------------------------------------------------
+
+
+def test_dip_statistic_reaches_its_bounds() -> None:
+    from meanband.stats.diagnostics import dip_test
+
+    # The dip of n trials lies in [1/(2n), 1/4]: 1/(2n) for evenly spaced trials (their
+    # distribution function is as close to a unimodal one as n steps allow), 1/4 for two equal
+    # point groups (Hartigan & Hartigan 1985, Annals of Statistics 13, section 2; from memory).
+    assert dip_test(np.linspace(0.0, 1.0, 20))[0] == pytest.approx(1 / 40, rel=1e-9)
+    rng = np.random.default_rng(0)
+    two = np.r_[rng.normal(0.0, 1e-6, 50), rng.normal(1.0, 1e-6, 50)]
+    dip, pvalue = dip_test(two)
+    assert dip == pytest.approx(0.25, abs=1e-4) and pvalue < 1e-3
+
+
+def test_dip_p_value_is_the_share_of_uniform_samples_with_a_larger_dip() -> None:
+    from meanband.stats.diagnostics import dip_test
+
+    # The p-value is P(dip of a uniform sample of n >= observed dip), the uniform being the
+    # least favourable unimodal law (Hartigan & Hartigan 1985): checked against 2000 uniform
+    # samples simulated here (Monte-Carlo standard error about 1 point).
+    rng = np.random.default_rng(7)
+    n = 50
+    observed = np.r_[rng.normal(0.0, 1.0, 35), rng.normal(3.5, 1.0, 15)]
+    dip, pvalue = dip_test(observed)
+    uniform = [dip_test(rng.random(n))[0] for _ in range(2000)]
+    share = float(np.mean(np.array(uniform) >= dip))
+    assert pvalue == pytest.approx(share, abs=0.035)
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.lists(st.integers(-10**6, 10**6), min_size=4, max_size=60, unique=True))
+def test_dip_is_within_its_bounds_and_unchanged_by_scale(values: list[int]) -> None:
+    from meanband.stats.diagnostics import dip_test
+
+    x = np.array(values, dtype=float)  # distinct trials: ties make point masses
+    dip, pvalue = dip_test(x)
+    # Bounds per Hartigan & Hartigan 1985 (from memory); the dip depends on ranks and
+    # spacings only through the distribution function, so an affine map leaves it unchanged.
+    assert 1 / (2 * x.size) - 1e-9 <= dip <= 0.25 + 1e-9
+    assert 0.0 <= pvalue <= 1.0
+    assert dip_test(3.0 * x + 7.0)[0] == pytest.approx(dip, abs=1e-9)

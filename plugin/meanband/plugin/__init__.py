@@ -154,6 +154,11 @@ def trials(request: pytest.FixtureRequest) -> Recorder:
         other_series=with_plan("", {}),
         timing=timing_session(config),
     )
+    # Timings fall back to batch means when lag-1 r is in doubt, unless someone chose the
+    # method: a marker, the plan (for the test or any of its series), an option or ini key.
+    chosen = [values for _, values in [*layers, *tail]]
+    chosen += [plan, *(dict(values) for values in series_plans.values())]
+    recorder.method_chosen = any(values.get("method") is not None for values in chosen)
     item.stash[RECORDER_KEY] = recorder
     return recorder
 

@@ -14,7 +14,7 @@ from meanband.errors import hide_plugin_frames
 from meanband.stats.bands import Band
 from meanband.stats.decision import WIDE_MARGIN, Decision, decide, edge_margin, headroom
 from meanband.stats.decision_rules import DecisionRule, ProcessPrior
-from meanband.stats.notes import assumption_notes
+from meanband.stats.notes import FALLBACK_MIN_N, assumption_notes, batch_means_fallback
 from meanband.stats.rules import GUARDED
 from meanband.stats.uncertainty import InstrumentSpec
 
@@ -23,6 +23,7 @@ __all__ = [
     "SHAPE_NOTES",
     "decide_with_notes",
     "drop_immaterial_drift",
+    "fallback_note",
     "metrology_notes",
 ]
 __tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
@@ -66,6 +67,21 @@ def decide_with_notes(
         # The shape of the data cannot change this verdict: nothing to say about normality.
         notes = [note for note in notes if note["code"] not in SHAPE_NOTES]
     return decision, notes
+
+
+def fallback_note(
+    values: np.ndarray, *, source: str | None, unit: str | None
+) -> dict[str, str] | None:
+    """The ``batch-means-fallback`` note when these trials are timings (source ``time``, unit
+    s) of at least ``FALLBACK_MIN_N`` whose lag-1 r is in doubt, else None; the caller has
+    checked that nobody set the method."""
+    from meanband.stats.diagnostics import lag1_autocorrelation
+    from meanband.units import SECONDS
+
+    if source != "time" or unit != SECONDS or values.size < FALLBACK_MIN_N:
+        return None
+    return batch_means_fallback(lag1_autocorrelation(values, float(np.mean(values))),
+                                values.size)
 
 
 #: Notes on the shape of the data (normality, and the outliers that make a skew): left out of

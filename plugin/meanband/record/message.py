@@ -8,6 +8,7 @@ from typing import Any
 
 from meanband.errors import hide_plugin_frames
 from meanband.stats.decision import Decision
+from meanband.stats.notes import skew_shift
 from meanband.stats.verdict import Verdict
 from meanband.units import (
     SECONDS,
@@ -131,8 +132,14 @@ def describe(
         lines.append(f"  rule       {rule_words(words, unit, scale)}")
     normality = d.normality
     if normality.testable:
-        lines.append(f"  normality  {normality.method} W/stat = {normality.statistic:.4g}, "
-                     f"p = {normality.pvalue:.3g}")
+        line = (f"  normality  {normality.method} W/stat = {normality.statistic:.4g}, "
+                f"p = {normality.pvalue:.3g}")
+        if math.isfinite(d.skewness):
+            # The figures a rejection without a note rests on: how far the skew can move a
+            # 95% bound's error rate at this n (the not-normal note fires above 2 points).
+            line += (f"; skewness G1 = {d.skewness:.2f}, moves a 95% bound by about "
+                     f"{100 * skew_shift(d.skewness, d.n):.1f} points")
+        lines.append(line)
     else:
         lines.append(f"  normality  not testable ({normality.reason})")
     if not math.isnan(d.lag1):

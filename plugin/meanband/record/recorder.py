@@ -13,7 +13,7 @@ from meanband.collect.progress import take_with_progress
 from meanband.collect.timing import time_calls
 from meanband.errors import BandViolation, TrialError, hide_plugin_frames
 from meanband.record import adaptive, sequential
-from meanband.record.check import decide_with_notes, drop_immaterial_drift
+from meanband.record.check import decide_with_notes, drop_immaterial_drift, fallback_note
 from meanband.record.message import describe
 from meanband.record.row import ResultRow, build_row
 from meanband.record.settings import Settings
@@ -22,6 +22,7 @@ from meanband.stats.decision import Decision
 from meanband.stats.decision_rules import DecisionRule, ProcessPrior
 from meanband.stats.interval import Interval
 from meanband.stats.methods import mean_interval
+from meanband.stats.notes import FALLBACK_METHOD
 from meanband.stats.rules import GUARDED
 from meanband.stats.sample import as_sample
 from meanband.stats.uncertainty import InstrumentSpec
@@ -52,6 +53,9 @@ class Series:
         # Trials of this series taken by an earlier try of the same commit in the same CI
         # pipeline: n="until-decided" continues their sequence instead of looking afresh.
         self.earlier: sequential.Earlier | None = None
+        # Whether a marker, option, ini key or plan set the interval method: timings whose
+        # method nobody chose fall back to batch means when lag-1 r is in doubt.
+        self.method_chosen = False
 
     # -- collecting -------------------------------------------------------------------------
 
@@ -371,12 +375,15 @@ class Series:
             recorded = {**settings.to_dict(), "n": "auto"}
         else:
             band = make_band(low, high, center=center, tolerance=tolerance, unit=self.unit)
+            fallback = self._fallback(method)
+            if fallback is not None:
+                settings = settings.merged(method=FALLBACK_METHOD)
             decision, notes = decide_with_notes(
                 self._values, band, settings.to_dict(),
                 instrument_uncertainty=instrument_uncertainty, rule=rule, process=process,
                 skip={note["code"] for note in self._timing_notes},
             )
-            notes = self._timing_notes + notes
+            notes = self._timing_notes + ([fallback] if fallback else []) + notes
             recorded = settings.to_dict()
         notes = drop_immaterial_drift(notes, decision)
         repeated = self._repeats(recorded, decision)
@@ -397,6 +404,13 @@ class Series:
         if not decision.passed:
             raise BandViolation(describe(decision, label=self._label(), notes=notes), decision)
         return decision
+
+    def _fallback(self, method: str | None) -> dict[str, str] | None:
+        """The batch-means fallback's note for timings whose method nobody set and whose lag-1
+        r is in doubt (``meanband.stats.notes.batch_means_fallback``), else None."""
+        if method is not None or self.method_chosen:
+            return None
+        return fallback_note(self._values, source=self.source, unit=self.unit)
 
     def _repeats(self, settings: dict[str, Any], decision: Decision) -> int:
         """The 1-based number of an earlier check of this series on the same trials, band and
@@ -482,6 +496,7 @@ class Recorder(Series):
             self._series[name] = Series(name, settings, self.nodeid)
             self._series[name]._test_timing = self._test_timing
             self._series[name].earlier = self._earlier.get(name)
+            self._series[name].method_chosen = self.method_chosen
         return self._series[name]
 
     def compare(

@@ -14,7 +14,7 @@ __all__ = ["ALWAYS_SHOWN", "threatens_verdict"]
 ALWAYS_SHOWN = frozenset({
     "calibration-overdue", "low-uncertainty-ratio", "zero-spread", "time-limit", "read-cost",
     "coarse-clock", "loop-limit", "two-stage-capped", "until-decided-capped", "log-out-of-order",
-    "repeated-check",
+    "repeated-check", "batch-means-fallback",
 })
 
 

@@ -103,10 +103,13 @@ def pool_rows(found: Sequence[tuple[str, Mapping[str, Any]]], *, label: str = ""
     features (a baseline comparison, say) were computed from one shard's trials alone: they are
     left out and named in the row's ``pooled.dropped`` and in a note.
     """
-    from meanband.record.check import decide_with_notes
+    import numpy as np
+
+    from meanband import defaults
+    from meanband.record.check import decide_with_notes, fallback_note
     from meanband.record.row import build_row, decision_record
     from meanband.stats.bands import Band
-    from meanband.stats.notes import ASSUMPTION_CODES
+    from meanband.stats.notes import ASSUMPTION_CODES, FALLBACK_CODE, FALLBACK_METHOD
 
     first_name, first = found[0]
     where = label or first["nodeid"]
@@ -122,7 +125,7 @@ def pool_rows(found: Sequence[tuple[str, Mapping[str, Any]]], *, label: str = ""
         ("source", lambda r: r["source"]),
         ("band", lambda r: r["decision"] and r["decision"]["band"]),
         ("confidence", lambda r: r["settings"]["confidence"]),
-        ("method", lambda r: r["settings"]["method"]),
+        ("method", _chosen_method),
         ("instrument uncertainty", _instrument),
         ("decision rule", _rule),
     ):
@@ -141,7 +144,17 @@ def pool_rows(found: Sequence[tuple[str, Mapping[str, Any]]], *, label: str = ""
         runs.extend(row["pooled"]["runs"] if "pooled" in row else [row["run"]])
         counts.extend(row["pooled"]["counts"] if "pooled" in row else [len(row["values"])])
     dropped = sorted({key for _, row in found for key in row if key not in _CORE_KEYS})
-    settings = first["settings"]
+    settings = dict(first["settings"])
+    # A timing that fell back to batch means in some run had no method chosen: the pool is
+    # judged afresh on the pooled trials, as the run itself would be.
+    fell_back = any(_fell_back(row) for _, row in found)
+    fallback = None
+    if fell_back:
+        settings["method"] = defaults.METHOD
+        fallback = fallback_note(np.asarray(values, dtype=np.float64), source=first["source"],
+                                 unit=first["unit"])
+        if fallback is not None:
+            settings["method"] = FALLBACK_METHOD
     notes: list[dict[str, str]] = []
     decision: Any = None
     uncertainty: Any = None
@@ -155,11 +168,14 @@ def pool_rows(found: Sequence[tuple[str, Mapping[str, Any]]], *, label: str = ""
             skip={"drift"},
         )
         decision, uncertainty, rule = decision_record(result)
+    if fallback is not None:
+        notes.insert(0, fallback)
     seen = {(note["code"], note["text"]) for note in notes}
     for _, row in found:
         for note in row["notes"]:
             pair = (note["code"], note["text"])
-            if note["code"] in ASSUMPTION_CODES or note["code"] == "pooled" or pair in seen:
+            if (note["code"] in ASSUMPTION_CODES or note["code"] in ("pooled", FALLBACK_CODE)
+                    or pair in seen):
                 continue
             seen.add(pair)
             notes.append(dict(note))
@@ -178,6 +194,20 @@ def pool_rows(found: Sequence[tuple[str, Mapping[str, Any]]], *, label: str = ""
         values=values, warmup=warmup, decision=decision, notes=notes, settings=first["settings"],
         timing=first.get("timing"), **extra,
     ))
+
+
+def _fell_back(row: Mapping[str, Any]) -> bool:
+    """Whether the row's timings fell back to batch means (no method was chosen)."""
+    from meanband.stats.notes import FALLBACK_CODE
+
+    return any(note.get("code") == FALLBACK_CODE for note in row.get("notes") or [])
+
+
+def _chosen_method(row: Mapping[str, Any]) -> Any:
+    """The row's method as chosen: the default where the timings fell back to batch means."""
+    from meanband import defaults
+
+    return defaults.METHOD if _fell_back(row) else row["settings"]["method"]
 
 
 def _instrument(row: Mapping[str, Any]) -> tuple[float, float] | None:

@@ -21,6 +21,7 @@ __all__ = [
     "bimodality_coefficient",
     "dagostino_pearson",
     "diagnose",
+    "dip_test",
     "drift_test",
     "end_means",
     "lag1_autocorrelation",
@@ -36,6 +37,8 @@ BIMODAL_THRESHOLD = 5.0 / 9.0
 #: Above this many trials the Mann-Kendall test runs on evenly spaced trials: O(n log n) anyway,
 #: and 20,000 trials detect any drift worth a note, at a small share of diagnose's time.
 DRIFT_MAX_N = 20_000
+#: Above this many trials the dip test runs on evenly spaced trials (it sorts them: O(n log n)).
+DIP_MAX_N = 20_000
 #: Above this many trials Sen's slope (O(n^2) pairs) is taken from evenly spaced trials.
 SLOPE_MAX_N = 400
 
@@ -124,6 +127,9 @@ class Diagnostics:
     log_normality_pvalue: float = math.nan
     log_bimodality: float = math.nan
     log_sd: float = math.nan
+    dip: float = math.nan
+    dip_pvalue: float = math.nan
+    log_dip_pvalue: float = math.nan
 
     def __post_init__(self) -> None:
         # Rebuilt from ``to_dict()`` output (JSON, a report row): nested tests come back as dicts.
@@ -164,7 +170,8 @@ def diagnose(values: Iterable[float] | np.ndarray, *, alpha: float = 0.05) -> Di
       removed;
     - drift: ``drift_test`` (Mann-Kendall with Sen's slope);
     - bimodality: Sarle's coefficient (G1^2 + 1) / (G2 + 3(n-1)^2/((n-2)(n-3))), above 5/9
-      suggesting two modes (SAS Institute 1990; Pfister et al. 2013).
+      suggesting two modes (SAS Institute 1990; Pfister et al. 2013), and Hartigan &
+      Hartigan's (1985) dip test of unimodality on x and, for positive trials, on log x.
     """
     alpha = check_probability(alpha, "alpha")
     x = as_sample(values, minimum=1)
@@ -204,6 +211,11 @@ def diagnose(values: Iterable[float] | np.ndarray, *, alpha: float = 0.05) -> Di
     log_sd, log_skewness, log_kurtosis, log_pvalue = math.nan, math.nan, math.nan, math.nan
     if n > 3 and not zero_spread and bool(np.all(x > 0.0)):
         log_sd, log_skewness, log_kurtosis, log_pvalue = _log_shape(np.log(x))
+    dip, dip_pvalue, log_dip_pvalue = math.nan, math.nan, math.nan
+    if n > 3 and not zero_spread:
+        dip, dip_pvalue = dip_test(x)
+        if bool(np.all(x > 0.0)):
+            log_dip_pvalue = dip_test(np.log(x))[1]
     fences = tukey_fences(x)
     outliers = int(np.count_nonzero((x < fences[0]) | (x > fences[1])))
     return Diagnostics(
@@ -227,7 +239,26 @@ def diagnose(values: Iterable[float] | np.ndarray, *, alpha: float = 0.05) -> Di
         log_normality_pvalue=log_pvalue,
         log_bimodality=bimodality_coefficient(log_skewness, log_kurtosis, n),
         log_sd=log_sd,
+        dip=dip,
+        dip_pvalue=dip_pvalue,
+        log_dip_pvalue=log_dip_pvalue,
     )
+
+
+def dip_test(values: Iterable[float] | np.ndarray) -> tuple[float, float]:
+    """Hartigan & Hartigan's (1985) dip statistic and its p-value against unimodality.
+
+    The dip is the largest distance between the empirical distribution function and the
+    nearest unimodal one; the p-value is interpolated in the table of the dip of uniform samples
+    (the least favourable unimodal case), as the ``diptest`` package computes it. Above
+    ``DIP_MAX_N`` trials the test uses evenly spaced trials.
+    """
+    import diptest
+
+    x = as_sample(values, minimum=4)
+    x = x[_evenly_spaced(x.size, DIP_MAX_N)]
+    dip, pvalue = diptest.diptest(x, allow_zero=False)  # the dip is at least 1/(2n)
+    return float(dip), float(pvalue)
 
 
 def _excess_kurtosis(n: int, sum4: float) -> float:
