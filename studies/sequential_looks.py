@@ -1,6 +1,7 @@
 """Study: how often a budget check may look at its trials, and what stopping early saves.
 
-Part 1 reproduces the figures that motivate issue 16: with the true mean exactly on a one-sided
+Part 1 reproduces the figures that motivate a confidence sequence: with the true mean exactly
+on a one-sided
 budget, an ordinary t bound at C = 0.95 passes falsely far more often than 5% when it is looked
 at after every trial from 10 to 200, at 10 looks (n = 20, 40, ..., 200), or when a red run is
 rerun until green (three tries).

@@ -1,7 +1,8 @@
 """Budgets on skewed timings: false PASS with the true mean on the budget, for t, cox and remedies.
 
 Part A reproduces, with the current code (methods "t" and "cox", written out vectorised here and
-checked equal to ``meanband.mean_interval`` on a few samples), the figures of issue 19, item 1.
+checked equal to ``meanband.mean_interval`` on a few samples), the figures of the
+independent review of budgets on skewed timings.
 Part B evaluates skewness-corrected intervals from ``meanband.skewed_intervals`` (Johnson 1978,
 Hall 1992, the bootstrap-t, Hall's statistic calibrated by the bootstrap) on right-skewed
 scenarios and on normal data, for one-sided budgets and two-sided bands.
@@ -127,7 +128,7 @@ def check_vectorised_equals_current() -> str:
 
 
 # ---------------------------------------------------------------------------------------------
-# Part A: the figures of issue 19, item 1
+# Part A: the review's figures
 
 
 def _rate(hits: np.ndarray) -> tuple[float, float]:
@@ -142,8 +143,8 @@ def _fmt(p: float, se: float) -> str:
 def part_a(reps: int) -> list[str]:
     by_name = {s.name: s for s in scenarios()}
     lines = [f"PART A. Current code, {reps} samples a cell; rate (Monte-Carlo SE), in points",
-             f"{'what':<58} {'here':>15} {'issue':>7} {'stated':>7}"]
-    issue = {  # (method, C, n): (one-sided false PASS, two-sided high edge) as the issue states them
+             f"{'what':<58} {'here':>15} {'review':>7} {'stated':>7}"]
+    review = {  # (method, C, n): (one-sided false PASS, two-sided high edge) as the review states them
         ("t", 0.95, 10): (10.9, 7.4), ("t", 0.95, 30): (9.0, 5.2),
         ("t", 0.99, 10): (4.5, None), ("t", 0.99, 30): (3.2, None),
         ("cox", 0.95, 10): (6.9, None), ("cox", 0.95, 30): (6.3, None),
@@ -152,7 +153,7 @@ def part_a(reps: int) -> list[str]:
     ln05 = by_name["lognormal s=0.5"]
     for n in (10, 30):
         x = ln05.draw(np.random.default_rng(SEED + n), reps, n)
-        for (method, confidence, size), (budget, edge) in issue.items():
+        for (method, confidence, size), (budget, edge) in review.items():
             if size != n:
                 continue
             bounds = t_bounds if method == "t" else cox_bounds

@@ -49,30 +49,20 @@ def rate(hits: np.ndarray) -> tuple[float, float]:
 
 def timing_default_bounds(x: np.ndarray, confidence: float, side: str
                           ) -> tuple[np.ndarray, np.ndarray]:
-    """The default interval of a timing check, row by row: ``defaults.METHOD`` (t) unless the
-    package says otherwise for timings (``stats.notes.timing_method`` when present)."""
-    from meanband import defaults
+    """The default interval of a fixed-n timing check whose method nobody set, row by row: t,
+    or batch means where the package falls back for lag-1 r in doubt
+    (``stats.notes.batch_means_fallback``)."""
+    from meanband.stats.diagnostics import lag1_autocorrelation
+    from meanband.stats.methods import mean_interval
+    from meanband.stats.notes import FALLBACK_METHOD, batch_means_fallback
     from skewed_budgets import t_bounds
 
-    chooser = _timing_chooser()
-    if chooser is None and defaults.METHOD == "t":
-        return t_bounds(x, confidence, side)
-    from meanband.stats.methods import mean_interval
-
-    lows, highs = np.empty(len(x)), np.empty(len(x))
+    low, high = t_bounds(x, confidence, side)
     for i, row in enumerate(x):
-        method = defaults.METHOD if chooser is None else chooser(row)
-        interval = mean_interval(row, confidence, side=side, method=method)
-        lows[i], highs[i] = interval.low, interval.high
-    return lows, highs
-
-
-def _timing_chooser():  # type: ignore[no-untyped-def]
-    try:
-        from meanband.stats.notes import timing_method  # type: ignore[attr-defined]
-    except ImportError:
-        return None
-    return timing_method
+        if batch_means_fallback(lag1_autocorrelation(row, float(row.mean())), row.size):
+            interval = mean_interval(row, confidence, side=side, method=FALLBACK_METHOD)
+            low[i], high[i] = interval.low, interval.high
+    return low, high
 
 
 def part_1(reps: int) -> list[str]:
@@ -81,8 +71,8 @@ def part_1(reps: int) -> list[str]:
     by_name = {s.name: s for s in scenarios()}
     rng = np.random.default_rng(20_261_203)
     out = ["PART 1. Budgets on skewed timings: true mean on the budget, false PASS % (MC SE)",
-           f"{reps} samples a cell; before: t (the default then); after: the default for a "
-           "timing check now",
+           f"{reps} samples a cell; before: t (the default then); after: the default of a "
+           "fixed-n timing check now (t, batch means when lag-1 r is in doubt from 30 trials)",
            f"{'cell':52} {'study':>7} {'before':>13} {'after':>13} {'stated':>7}"]
     cells = [
         ("lognormal s=0.5", 10, 0.95, "upper", "t", 10.9, 5.0),
@@ -227,9 +217,9 @@ def main(argv: list[str] | None = None) -> int:
         sections = [
             part_1(int(40_000 * scale)),
             part_2(int(1000 * scale)),
-            external("suggested_power.py", before, ["--quick"] if args.quick else [],
+            external("suggested_power.py", before, ["--pilots", "100" if args.quick else "300"],
                      "PARTS 3. Suggested counts and the power they deliver"),
-            external("note_false_alarms.py", before, ["--quick"] if args.quick else [],
+            external("note_false_alarms.py", before, ["--reps", "250" if args.quick else "1000"],
                      "PARTS 4 AND 5. Following the notes; notes on normal, independent data"),
             part_6(int(1000 * scale), before),
         ]

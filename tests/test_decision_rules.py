@@ -327,7 +327,7 @@ def test_global_risks_match_a_monte_carlo_estimate() -> None:
 
 
 def test_cp_1_cm_2_guarded_rejects_about_23_percent_of_conforming_units() -> None:
-    # Issue 18's figure, with JCGM 106:2012, 9.5 (from memory): Cp = (T_U - T_L)/(6 u_p) = 1,
+    # The review's 23 % figure, with JCGM 106:2012, 9.5 (from memory): Cp = (T_U - T_L)/(6 u_p) = 1,
     # Cm = (T_U - T_L)/(4 u_m) = 2, process centred, guarded acceptance w = U = 2 u_m.
     low, high = -1.0, 1.0
     sd = (high - low) / 6.0
@@ -340,7 +340,7 @@ def test_cp_1_cm_2_guarded_rejects_about_23_percent_of_conforming_units() -> Non
     # Checked against scipy.stats.multivariate_normal.cdf (as above).
     inside = _bvn_rectangle(0.0, sd, u, (low, high), (-0.5, 0.5))
     assert risks.producer_risk == pytest.approx(risks.conforming_probability - inside, abs=1e-7)
-    # The other reading, Cm = (T_U - T_L)/(4U), gives about 3 %: not the issue's 23 %.
+    # The other reading, Cm = (T_U - T_L)/(4U), gives about 3 %: not the review's 23 %.
     other = global_risks(ProcessPrior(0.0, sd), u / 2, low, high, 2 * (u / 2))
     assert other.conforming_rejected_share == pytest.approx(0.033, abs=0.002)
 

@@ -41,7 +41,7 @@ def test_diagnostics_are_scale_free(values: list[float], scale: float) -> None:
 
 
 def test_data_near_1e_minus_300_have_their_spread() -> None:
-    # The case: sd 0 and a false PASS, where the same data at 1e300 are UNDECIDED.
+    # The case that once went wrong: sd 0 and a false PASS, where the same data at 1e300 are UNDECIDED.
     tiny = mean_interval([1e-300, 1.2e-300, 0.9e-300, 1.1e-300])
     assert tiny.sd > 0 and tiny.low < 1e-300 < tiny.high
 

@@ -26,7 +26,7 @@ def test_plain():
 def test_numpy_value_added_by_a_hook_is_converted_and_the_run_recorded(
     pytester: pytest.Pytester, run_suite
 ) -> None:
-    # The case 1: np.int64 in a row used to raise TypeError and hide every result.
+    # A case that once hid every result: np.int64 in a row used to raise TypeError and hide every result.
     pytester.makeconftest("import numpy as np\n\ndef pytest_meanband_result(config, row):\n"
                           "    row['bench'] = np.int64(3)\n    row['where'] = __import__('pathlib')"
                           ".Path('rig')\n")

@@ -141,7 +141,7 @@ def test_prefix_bounds_equal_the_interval_of_each_prefix():
     seed=st.integers(0, 2**32 - 1),
 )
 def test_anytime_interval_contains_the_fixed_n_t_interval(n, confidence, side, tightest_at, seed):
-    # Property required by issue 16; the fixed-n t interval comes from interval.py (Student 1908).
+    # A confidence sequence is never narrower than the fixed-n interval; the fixed-n t interval comes from interval.py (Student 1908).
     x = np.random.default_rng(seed).normal(0.0, 1.0, min(n, 400)) if n <= 400 else None
     if x is None:  # large n: compare the multipliers, which are all the data enter through
         w = float(anytime_multiplier([n], confidence, side, tightest_at)[0])
@@ -351,7 +351,7 @@ def test_monte_carlo_spending_and_expected_count():
 
 
 def test_obrien_fleming_costs_little_and_saves_under_an_effect():
-    # Issue 16's figures: about +3% in maximum n and about 25% less expected n for 5 looks
+    # The figures quoted for group-sequential designs: about +3% in maximum n and about 25% less expected n for 5 looks
     # (Jennison & Turnbull 2000, ch. 7, from memory: R about 1.02-1.03 for this spending).
     design = group_sequential_design(5, confidence=0.975, shape="obrien-fleming", power=0.9)
     assert 1.015 < design.inflation < 1.035
