@@ -157,5 +157,6 @@ def test_pooling_a_run_that_fell_back_with_one_that_did_not_judges_the_pool_afre
               / np.sum((pooled - pooled.mean()) ** 2)), 80)
     # The pool takes the fallback exactly when its own lag-1 r is in doubt (NIST StRD r(1)).
     assert ("batch-means-fallback" in codes(row)) == (expected is not None)
-    assert method(row) == ("batch-means" if expected is not None else "t")
+    # Not in doubt, 80 timings take the skew-corrected default (record/check.timing_method).
+    assert method(row) == ("batch-means" if expected is not None else "bootstrap-t")
     assert sum(n["code"] == "batch-means-fallback" for n in row["notes"]) <= 1

@@ -13,7 +13,7 @@ from meanband.collect.progress import take_with_progress
 from meanband.collect.timing import time_calls
 from meanband.errors import BandViolation, TrialError, hide_plugin_frames
 from meanband.record import adaptive, sequential
-from meanband.record.check import decide_with_notes, drop_immaterial_drift, fallback_note
+from meanband.record.check import decide_with_notes, drop_immaterial_drift, timing_method
 from meanband.record.message import describe
 from meanband.record.row import ResultRow, build_row
 from meanband.record.settings import Settings
@@ -22,7 +22,6 @@ from meanband.stats.decision import Decision
 from meanband.stats.decision_rules import DecisionRule, ProcessPrior
 from meanband.stats.interval import Interval
 from meanband.stats.methods import mean_interval
-from meanband.stats.notes import FALLBACK_METHOD
 from meanband.stats.rules import GUARDED
 from meanband.stats.sample import as_sample
 from meanband.stats.uncertainty import InstrumentSpec
@@ -375,9 +374,10 @@ class Series:
             recorded = {**settings.to_dict(), "n": "auto"}
         else:
             band = make_band(low, high, center=center, tolerance=tolerance, unit=self.unit)
-            fallback = self._fallback(method)
-            if fallback is not None:
-                settings = settings.merged(method=FALLBACK_METHOD)
+            chosen = self._timing_method(method)
+            fallback = None if chosen is None else chosen[1]
+            if chosen is not None:
+                settings = settings.merged(method=chosen[0])
             decision, notes = decide_with_notes(
                 self._values, band, settings.to_dict(),
                 instrument_uncertainty=instrument_uncertainty, rule=rule, process=process,
@@ -405,12 +405,12 @@ class Series:
             raise BandViolation(describe(decision, label=self._label(), notes=notes), decision)
         return decision
 
-    def _fallback(self, method: str | None) -> dict[str, str] | None:
-        """The batch-means fallback's note for timings whose method nobody set and whose lag-1
-        r is in doubt (``meanband.stats.notes.batch_means_fallback``), else None."""
+    def _timing_method(self, method: str | None) -> tuple[str, dict[str, str]] | None:
+        """The method (and its note) of timings whose method nobody set: batch means when lag-1
+        r is in doubt, bootstrap-t from 20 timings (``record.check.timing_method``)."""
         if method is not None or self.method_chosen:
             return None
-        return fallback_note(self._values, source=self.source, unit=self.unit)
+        return timing_method(self._values, source=self.source, unit=self.unit)
 
     def _repeats(self, settings: dict[str, Any], decision: Decision) -> int:
         """The 1-based number of an earlier check of this series on the same trials, band and

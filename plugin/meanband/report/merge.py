@@ -106,10 +106,10 @@ def pool_rows(found: Sequence[tuple[str, Mapping[str, Any]]], *, label: str = ""
     import numpy as np
 
     from meanband import defaults
-    from meanband.record.check import decide_with_notes, fallback_note
+    from meanband.record.check import decide_with_notes, timing_method
     from meanband.record.row import build_row, decision_record
     from meanband.stats.bands import Band
-    from meanband.stats.notes import ASSUMPTION_CODES, FALLBACK_CODE, FALLBACK_METHOD
+    from meanband.stats.notes import ASSUMPTION_CODES, FALLBACK_CODE, TIMING_METHOD_CODE
 
     first_name, first = found[0]
     where = label or first["nodeid"]
@@ -145,16 +145,16 @@ def pool_rows(found: Sequence[tuple[str, Mapping[str, Any]]], *, label: str = ""
         counts.extend(row["pooled"]["counts"] if "pooled" in row else [len(row["values"])])
     dropped = sorted({key for _, row in found for key in row if key not in _CORE_KEYS})
     settings = dict(first["settings"])
-    # A timing that fell back to batch means in some run had no method chosen: the pool is
-    # judged afresh on the pooled trials, as the run itself would be.
+    # A timing whose method was the default for timings in some run had no method chosen: the
+    # pool is judged afresh on the pooled trials, as the run itself would be.
     fell_back = any(_fell_back(row) for _, row in found)
     fallback = None
     if fell_back:
         settings["method"] = defaults.METHOD
-        fallback = fallback_note(np.asarray(values, dtype=np.float64), source=first["source"],
-                                 unit=first["unit"])
-        if fallback is not None:
-            settings["method"] = FALLBACK_METHOD
+        chosen = timing_method(np.asarray(values, dtype=np.float64), source=first["source"],
+                               unit=first["unit"])
+        if chosen is not None:
+            settings["method"], fallback = chosen
     notes: list[dict[str, str]] = []
     decision: Any = None
     uncertainty: Any = None
@@ -174,7 +174,8 @@ def pool_rows(found: Sequence[tuple[str, Mapping[str, Any]]], *, label: str = ""
     for _, row in found:
         for note in row["notes"]:
             pair = (note["code"], note["text"])
-            if (note["code"] in ASSUMPTION_CODES or note["code"] in ("pooled", FALLBACK_CODE)
+            if (note["code"] in ASSUMPTION_CODES
+                    or note["code"] in ("pooled", FALLBACK_CODE, TIMING_METHOD_CODE)
                     or pair in seen):
                 continue
             seen.add(pair)
@@ -197,14 +198,16 @@ def pool_rows(found: Sequence[tuple[str, Mapping[str, Any]]], *, label: str = ""
 
 
 def _fell_back(row: Mapping[str, Any]) -> bool:
-    """Whether the row's timings fell back to batch means (no method was chosen)."""
-    from meanband.stats.notes import FALLBACK_CODE
+    """Whether the row's timings took the default for timings (batch means or bootstrap-t)
+    because no method was chosen."""
+    from meanband.stats.notes import FALLBACK_CODE, TIMING_METHOD_CODE
 
-    return any(note.get("code") == FALLBACK_CODE for note in row.get("notes") or [])
+    return any(note.get("code") in (FALLBACK_CODE, TIMING_METHOD_CODE)
+               for note in row.get("notes") or [])
 
 
 def _chosen_method(row: Mapping[str, Any]) -> Any:
-    """The row's method as chosen: the default where the timings fell back to batch means."""
+    """The row's method as chosen: the default where the timings took the timing default."""
     from meanband import defaults
 
     return defaults.METHOD if _fell_back(row) else row["settings"]["method"]

@@ -24,6 +24,7 @@ __all__ = [
     "MAX_SKEW_SHIFT",
     "MIN_BOOTSTRAP_TRIALS",
     "SHAPE_FREE_METHOD",
+    "TIMING_METHOD_CODE",
     "ar1_coverage",
     "assumption_notes",
     "batch_means_fallback",
@@ -32,6 +33,7 @@ __all__ = [
     "judged_skewness",
     "lognormal_skewness",
     "skew_shift",
+    "skewed_timing_note",
     "skewness_se",
     "trials_for_skewness",
 ]
@@ -384,6 +386,21 @@ def _independence_notes(d: Diagnostics, alpha: float, method: str) -> list[dict[
         "method='batch-means' allows for a random wander",
         "recommend": "batch-means",
     }]
+
+
+#: Code of the note that says a timing check took the bootstrap-t interval by default.
+TIMING_METHOD_CODE = "timing-method"
+
+
+def skewed_timing_note(n: int) -> dict[str, str]:
+    """The note of timings whose method nobody set that take the bootstrap-t interval."""
+    return {
+        "code": TIMING_METHOD_CODE,
+        "text": f"interval by {SHAPE_FREE_METHOD}, the default for {n} timings: timings are "
+        "skewed to the right, where the t bound passes a mean on the budget more often than "
+        "it states; the studentised bootstrap allows for the skew (set method='t' to keep the "
+        "t interval)",
+    }
 
 
 def batch_means_fallback(lag1: float, n: int) -> dict[str, str] | None:
