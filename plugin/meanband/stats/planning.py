@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
+from typing import Any
 
 import numpy as np
 
@@ -16,6 +18,7 @@ __all__ = [
     "power_against_edge",
     "power_inside_band",
     "sd_upper_bound",
+    "smallest_count",
     "trials_needed",
 ]
 __tracebackhide__ = hide_plugin_frames  # a failing test shows its own line, not ours
@@ -78,7 +81,7 @@ def trials_needed(
             raise TrialError(f"half_width must be a positive number, got {half_width!r}")
         if sd == 0:
             return _N_MIN
-        return _smallest_n(lambda n: _half_width(sd, n, level, side) <= half_width, n_max)
+        return smallest_count(lambda n: _half_width(sd, n, level, side) <= half_width, n_max)
     assert margin is not None
     if not math.isfinite(margin):
         raise TrialError(f"margin must be a finite number, got {margin!r}")
@@ -97,13 +100,13 @@ def trials_needed(
         if not (sd_df > 0 and math.isfinite(sd_df)):
             raise TrialError(f"sd_df must be a positive number of degrees of freedom, got {sd_df!r}")
         df = float(sd_df)
-        return _smallest_n(
+        return smallest_count(
             lambda n: expected_power(margin / sd, n, alpha, df, far, pilot_n) >= power, n_max
         )
     if far is not None:
         near = margin / sd
-        return _smallest_n(lambda n: power_inside_band(near, far, n, alpha) >= power, n_max)
-    return _smallest_n(lambda n: power_against_edge(margin / sd, n, alpha) >= power, n_max)
+        return smallest_count(lambda n: power_inside_band(near, far, n, alpha) >= power, n_max)
+    return smallest_count(lambda n: power_against_edge(margin / sd, n, alpha) >= power, n_max)
 
 
 def sd_upper_bound(sd: float, df: float, confidence: float = SD_BOUND) -> float:
@@ -235,7 +238,7 @@ def _half_width(sd: float, n: int | np.ndarray, level: float, side: str) -> np.n
     return np.asarray(student_t.ppf(q, n_arr - 1.0) * sd / np.sqrt(n_arr))
 
 
-def _smallest_n(meets, n_max: int) -> int | None:  # type: ignore[no-untyped-def]
+def smallest_count(meets: Callable[[int], Any], n_max: int) -> int | None:
     """Smallest n in [2, n_max] for which the monotone predicate ``meets`` holds."""
     if bool(meets(_N_MIN)):
         return _N_MIN

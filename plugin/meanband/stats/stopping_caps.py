@@ -23,6 +23,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from meanband.errors import TrialError, hide_plugin_frames
+from meanband.stats.planning import smallest_count
 from meanband.stats.sample import check_confidence
 from meanband.stats.sequential import DEFAULT_TIGHTEST_AT, anytime_multiplier
 
@@ -87,16 +88,7 @@ def trials_to_decide(
         w = float(anytime_multiplier(np.array([n]), level, side, tightest_at)[0])
         return w / math.sqrt(n)
 
-    if reach(ceiling) > effect:
-        return None
-    low, high = 1, ceiling  # reach(low) > effect (or unbounded), reach(high) <= effect
-    while high - low > 1:
-        middle = (low + high) // 2
-        if middle >= 2 and reach(middle) <= effect:
-            high = middle
-        else:
-            low = middle
-    return high
+    return smallest_count(lambda n: reach(n) <= effect, ceiling)
 
 
 def _round_up(count: float, block: int) -> int:
